@@ -1,0 +1,5 @@
+"""Allow ``python -m checker``."""
+
+from checker.cli import main
+
+raise SystemExit(main())

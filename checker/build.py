@@ -1,0 +1,337 @@
+"""Build the Stage model from a validated plain tree: units, parts, references.
+
+Knows units and parts, nothing of syntax: every node's position comes from the
+ParsedFile's position index. All problems of a file are collected and raised together.
+"""
+
+from __future__ import annotations
+
+import difflib
+import math
+from collections import Counter
+from dataclasses import replace
+
+from checker.io.grammar import PART_PARAMETERS, REQUIREMENTS
+from checker.io.load import ParsedFile
+from checker.io.positions import InputErrors, InputProblem, Path, locate
+from checker.model import (PART_ATTRIBUTES, REQUIREMENT_ATTRIBUTES, Load, OpAmp, OpAmpPart,
+                           Origin, Passive, Requirements, Source, Stage, Supply)
+from checker.units import UnitError, parse_value
+
+# Passive values must be positive; these kinds of parameter must not be negative.
+_NON_NEGATIVE = {"resistance", "capacitance", "inductance", "frequency", "current",
+                 "slew-rate", "voltage-noise", "current-noise", "power", "percentage"}
+_PASSIVE_KIND = {"resistors": ("resistor", "resistance"),
+                 "capacitors": ("capacitor", "capacitance"),
+                 "inductors": ("inductor", "inductance")}
+
+
+class _Builder:
+    """Collects problems while converting one file's tree."""
+
+    def __init__(self, parsed: ParsedFile):
+        self.parsed = parsed
+        self.problems: list[InputProblem] = []
+
+    def origin(self, path: Path) -> Origin:
+        pos = locate(self.parsed.positions, path)
+        return Origin(self.parsed.path, pos.line, pos.column)
+
+    def fail(self, path: Path, message: str, element: str | None = None) -> None:
+        pos = locate(self.parsed.positions, path)
+        self.problems.append(InputProblem(self.parsed.path, pos.line, pos.column, message,
+                                          element))
+
+    def value(self, node: dict, key: str, kind: str, path: Path, where: str,
+              positive: bool = False) -> float | None:
+        if key not in node:
+            return None
+        try:
+            number = parse_value(node[key], kind)
+        except UnitError as error:
+            self.fail(path + (key,), f"{key} of {where}: {error}")
+            return None
+        if positive and number <= 0:
+            self.fail(path + (key,), f"{key} of {where} must be greater than zero,"
+                                     f" not {node[key]!r}")
+            return None
+        if kind in _NON_NEGATIVE and number < 0:
+            self.fail(path + (key,), f"{key} of {where} cannot be negative ({node[key]!r})")
+            return None
+        return number
+
+    # -- parts -----------------------------------------------------------------------
+    def part(self, node: dict, path: Path, name: str, builtin: bool = False) -> OpAmpPart:
+        values = self.part_values(node, path, f"part {name}")
+        return OpAmpPart(name=name, family=node.get("class"), note=node.get("note"),
+                         builtin=builtin, origin=self.origin(path), **values)
+
+    def part_values(self, node: dict, path: Path, where: str) -> dict[str, float]:
+        values = {}
+        for keyword, kind in PART_PARAMETERS.items():
+            positive = keyword in ("open-loop-gain", "gbw", "second-pole", "min-stable-gain")
+            number = self.value(node, keyword, kind, path, where, positive=positive)
+            if number is not None:
+                values[PART_ATTRIBUTES[keyword]] = number
+        return values
+
+    # -- stages ----------------------------------------------------------------------
+    def stage(self, node: dict, path: Path, parts: dict[str, OpAmpPart]) -> Stage | None:
+        name = node["name"]
+        where = f"stage {name}"
+        ground = node["ground"]
+        supplies = []
+        for i, item in enumerate(node.get("supplies", [])):
+            item_path = path + ("supplies", i)
+            voltage = self.value(item, "voltage", "voltage", item_path, f"supply {item['net']}")
+            if item["net"] == ground:
+                self.fail(item_path, f"supply {item['net']} is the ground net of {where};"
+                                     " the ground is 0 V by definition")
+            elif voltage is not None:
+                supplies.append(Supply(item["net"], voltage, self.origin(item_path)))
+        opamps = [self.opamp(item, path + ("opamps", i), parts)
+                  for i, item in enumerate(node.get("opamps", []))]
+        passives = []
+        for key, (kind, quantity) in _PASSIVE_KIND.items():
+            for i, item in enumerate(node.get(key, [])):
+                passives.append(self.passive(item, path + (key, i), kind, quantity))
+        sources = [self.source(item, path + ("sources", i))
+                   for i, item in enumerate(node.get("sources", []))]
+        loads = [self.load(item, path + ("loads", i)) for i, item in enumerate(node.get("loads", []))]
+        require = self.requirements(node.get("require"), path + ("require",))
+        if None in opamps or None in passives or None in sources or None in loads:
+            return None
+        stage = Stage(name=name, origin=self.origin(path), ground=ground,
+                      supplies=tuple(supplies), opamps=tuple(opamps),
+                      passives=tuple(passives), sources=tuple(sources), loads=tuple(loads),
+                      require=require, note=node.get("note"))
+        self.check_references(stage, node, path)
+        return stage
+
+    def opamp(self, node: dict, path: Path, parts: dict[str, OpAmpPart]) -> OpAmp | None:
+        ref = node["ref"]
+        part = None
+        if "part" in node:
+            part = parts.get(node["part"])
+            if part is None:
+                close = difflib.get_close_matches(node["part"], list(parts), n=1, cutoff=0.5)
+                hint = f"; did you mean {close[0]!r}?" if close else (
+                    "; `ampcheck parts` lists the built-in parts")
+                self.fail(path + ("part",), f"op-amp {ref}: unknown part {node['part']!r}{hint}",
+                          ref)
+                return None
+        if "params" in node:
+            overrides = self.part_values(node["params"], path + ("params",), f"op-amp {ref}")
+            if part is None:
+                part = OpAmpPart(name=f"{ref} (inline)", origin=self.origin(path + ("params",)),
+                                 **overrides)
+            else:
+                part = replace(part, name=f"{part.name} (adjusted)", **overrides)
+        return OpAmp(ref=ref, part=part, in_pos=node["in+"], in_neg=node["in-"],
+                     out=node["out"], v_pos=node["v+"], v_neg=node["v-"],
+                     origin=self.origin(path))
+
+    def passive(self, node: dict, path: Path, kind: str, quantity: str) -> Passive | None:
+        ref = node["ref"]
+        where = f"{kind} {ref}"
+        value = self.value(node, "value", quantity, path, where, positive=True)
+        tolerance = self.value(node, "tolerance", "percentage", path, where)
+        rating = self.value(node, "power-rating", "power", path, where, positive=True)
+        if tolerance is not None and tolerance >= 0.5:
+            self.fail(path + ("tolerance",), f"tolerance of {where} is {tolerance:.0%};"
+                                             " expected a few percent, e.g. 1%")
+        net_a, net_b = node["nets"]
+        if net_a == net_b:
+            self.fail(path + ("nets",), f"{where} has both ends on net {net_a}")
+        if value is None:
+            return None
+        return Passive(ref=ref, kind=kind, net_a=net_a, net_b=net_b, value=value,
+                       tolerance=tolerance, power_rating_w=rating, origin=self.origin(path))
+
+    def source(self, node: dict, path: Path) -> Source | None:
+        kind = node.get("kind", "voltage")
+        where = f"source at {node['net']}"
+        signal = "voltage" if kind == "voltage" else "current"
+        low = high = amplitude = None
+        if "range" in node:
+            ends = [self.pair_value(node["range"], i, signal, path + ("range",), where)
+                    for i in range(2)]
+            if None in ends:
+                return None
+            low, high = min(ends), max(ends)
+        if "amplitude" in node:
+            amplitude = self.value(node, "amplitude", signal, path, where)
+            offset = self.value(node, "offset", signal, path, where) or 0.0
+            if amplitude is None:
+                return None
+            low, high = offset - abs(amplitude), offset + abs(amplitude)
+        elif "offset" in node:
+            self.fail(path + ("offset",), f"{where}: offset goes with amplitude")
+        band_low = band_high = None
+        if "band" in node:
+            band = [self.pair_value(node["band"], i, "frequency", path + ("band",), where)
+                    for i in range(2)]
+            if None in band:
+                return None
+            band_low, band_high = sorted(band)
+            if band_high <= 0:
+                self.fail(path + ("band",), f"{where}: the band's upper edge must be above 0 Hz")
+        impedance = self.value(node, "impedance", "resistance", path, where,
+                               positive=kind == "current")
+        capacitance = self.value(node, "capacitance", "capacitance", path, where)
+        if capacitance is not None and kind == "voltage":
+            self.fail(path + ("capacitance",), f"{where}: capacitance belongs to current"
+                      " sources (a sensor's shunt capacitance); for a voltage source put a"
+                      " capacitor in the stage")
+        return Source(net=node["net"], kind=kind, origin=self.origin(path),
+                      label=node.get("label"), low=low, high=high, amplitude=amplitude,
+                      band_low_hz=band_low, band_high_hz=band_high,
+                      impedance_ohm=impedance, capacitance_f=capacitance)
+
+    def pair_value(self, pair: list, i: int, kind: str, path: Path, where: str) -> float | None:
+        try:
+            number = parse_value(pair[i], kind)
+        except UnitError as error:
+            self.fail(path + (i,), f"{path[-1]} of {where}: {error}")
+            return None
+        if kind == "frequency" and number < 0:
+            self.fail(path + (i,), f"{path[-1]} of {where}: a frequency cannot be negative")
+            return None
+        return number
+
+    def load(self, node: dict, path: Path) -> Load | None:
+        where = f"load at {node['net']}"
+        resistance = self.value(node, "resistance", "resistance", path, where, positive=True)
+        capacitance = self.value(node, "capacitance", "capacitance", path, where)
+        feeds = node.get("feeds") or {}
+        return Load(net=node["net"], origin=self.origin(path), resistance_ohm=resistance,
+                    capacitance_f=capacitance, feeds_stage=feeds.get("stage"),
+                    feeds_net=feeds.get("net"))
+
+    def requirements(self, node: dict | None, path: Path) -> Requirements:
+        if node is None:
+            return Requirements()
+        values = {}
+        for keyword, kind in REQUIREMENTS.items():
+            if keyword == "gain" and isinstance(node.get(keyword), (int, float)):
+                values["gain"] = float(node[keyword])
+                continue
+            number = self.value(node, keyword, kind, path, "the requirements",
+                                positive=keyword in ("input-resistance", "bandwidth", "cmrr"))
+            if number is not None:
+                values[REQUIREMENT_ATTRIBUTES[keyword]] = number
+        return Requirements(origin=self.origin(path), **values)
+
+    # -- references ------------------------------------------------------------------
+    def check_references(self, stage: Stage, node: dict, path: Path) -> None:
+        where = f"stage {stage.name}"
+        seen: dict[str, Origin] = {}
+        for element in (*stage.opamps, *stage.passives):
+            if element.ref in seen:
+                self.fail_at(element.origin, f"designator {element.ref} is used twice in"
+                             f" {where} (first at line {seen[element.ref].line})", element.ref)
+            seen.setdefault(element.ref, element.origin)
+        if not stage.opamps:
+            self.fail(path, f"{where} has no op-amp: an (opamp REF ...) is required")
+        rails = stage.rail_voltages
+        if len(set(s.net for s in stage.supplies)) != len(stage.supplies):
+            self.fail(path, f"{where} declares a supply net twice")
+        for opamp in stage.opamps:
+            for pin, net in (("v+", opamp.v_pos), ("v-", opamp.v_neg)):
+                if net not in rails:
+                    self.fail_at(opamp.origin, f"op-amp {opamp.ref}: its {pin} pin is on net"
+                                 f" {net!r}, which is not a supply; declare (supply {net} VOLTS)"
+                                 " or use the ground net", opamp.ref)
+            if opamp.v_pos in rails and opamp.v_neg in rails and \
+                    rails[opamp.v_pos] <= rails[opamp.v_neg]:
+                self.fail_at(opamp.origin, f"op-amp {opamp.ref}: v+ ({rails[opamp.v_pos]:g} V)"
+                             f" must be above v- ({rails[opamp.v_neg]:g} V)", opamp.ref)
+        pins = Counter()
+        for opamp in stage.opamps:
+            for pin, net in opamp.pins.items():
+                if pin not in ("v+", "v-"):
+                    pins[net] += 1
+        for passive in stage.passives:
+            pins.update(passive.nets)
+        for source in stage.sources:
+            pins[source.net] += 1
+        for load in stage.loads:
+            if load.resistance_ohm is not None or load.capacitance_f is not None or load.feeds_stage:
+                pins[load.net] += 1
+        for net in rails:
+            pins[net] += 1
+        for source in stage.sources:
+            if pins[source.net] < 2:
+                self.fail_at(source.origin, f"{source.name}: nothing in {where} is connected"
+                             f" to net {source.net!r}")
+        for load in stage.loads:
+            if pins[load.net] < 2:
+                self.fail_at(load.origin, f"load at {load.net}: nothing in {where} drives"
+                             f" net {load.net!r}")
+        for element in (*stage.opamps, *stage.passives):
+            nets = element.nets if isinstance(element, Passive) else (
+                element.in_pos, element.in_neg, element.out)
+            for net in nets:
+                if pins[net] == 1 and net not in rails:
+                    close = difflib.get_close_matches(net, [n for n in pins if pins[n] > 1
+                                                            and n != net], n=1, cutoff=0.6)
+                    hint = f"; did you mean {close[0]!r}?" if close else ""
+                    self.fail_at(element.origin, f"{element.ref}: net {net!r} is connected"
+                                 f" to nothing else in {where} (dangling){hint}", element.ref)
+
+    def fail_at(self, origin: Origin, message: str, element: str | None = None) -> None:
+        self.problems.append(InputProblem(origin.path, origin.line, origin.column, message,
+                                          element))
+
+
+def build_parts(parsed: ParsedFile, builtin: bool = False) -> list[OpAmpPart]:
+    """The parts defined in a file; InputErrors on bad values or duplicate names."""
+    builder = _Builder(parsed)
+    parts = []
+    names = set()
+    for i, node in enumerate(parsed.tree.get("parts", [])):
+        if node["name"] in names:
+            builder.fail(("parts", i), f"part {node['name']} is defined twice in this file")
+        names.add(node["name"])
+        parts.append(builder.part(node, ("parts", i), node["name"], builtin=builtin))
+    if builder.problems:
+        raise InputErrors(builder.problems)
+    return parts
+
+
+def build_stages(parsed: ParsedFile, library: dict[str, OpAmpPart]) -> list[Stage]:
+    """The stages of a file with parts resolved (inline parts first, then ``library``)."""
+    parts = dict(library)
+    parts.update({part.name: part for part in build_parts(parsed)})
+    builder = _Builder(parsed)
+    stages = []
+    names: dict[str, int] = {}
+    for i, node in enumerate(parsed.tree.get("stages", [])):
+        if node["name"] in names:
+            builder.fail(("stages", i), f"stage {node['name']} is defined twice in this file")
+        names[node["name"]] = i
+        stage = builder.stage(node, ("stages", i), parts)
+        if stage is not None:
+            stages.append(stage)
+    by_name = {stage.name: stage for stage in stages}
+    for stage in stages:
+        for load in stage.loads:
+            if load.feeds_stage is None:
+                continue
+            target = by_name.get(load.feeds_stage)
+            if target is None:
+                builder.fail_at(load.origin, f"load at {load.net} feeds stage"
+                                f" {load.feeds_stage!r}, which this file does not define")
+            elif load.feeds_net and load.feeds_net not in {s.net for s in target.sources}:
+                builder.fail_at(load.origin, f"load at {load.net} feeds net {load.feeds_net!r}"
+                                f" of stage {target.name}, which has no source there")
+            elif not target.sources:
+                builder.fail_at(load.origin, f"stage {target.name} has no source for load"
+                                f" at {load.net} to feed")
+    if builder.problems:
+        raise InputErrors(builder.problems)
+    return stages
+
+
+def finite(value: float | None) -> bool:
+    return value is not None and math.isfinite(value)

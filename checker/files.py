@@ -1,0 +1,59 @@
+"""Find stage files and turn each into stages or input findings, never raising."""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass, field
+
+from checker.build import build_stages
+from checker.findings import Finding, input_finding
+from checker.io.load import STAGE_ENDINGS, read_file
+from checker.io.positions import InputErrors, InputProblem
+from checker.model import OpAmpPart, Stage
+
+
+@dataclass
+class LoadedFile:
+    """One input file: the stages it built, or the problems that stopped it."""
+
+    path: str
+    stages: list[Stage] = field(default_factory=list)
+    problems: list[Finding] = field(default_factory=list)
+
+    @property
+    def ok(self) -> bool:
+        return not self.problems
+
+
+def discover(paths: list[str]) -> tuple[list[str], list[Finding]]:
+    """Stage files named by ``paths`` (directories searched recursively), sorted.
+
+    A named file is taken whatever its ending; in directories only our endings count.
+    Paths that do not exist become input findings.
+    """
+    found: set[str] = set()
+    missing: list[Finding] = []
+    for path in paths:
+        if os.path.isdir(path):
+            for root, dirs, names in os.walk(path):
+                dirs[:] = sorted(d for d in dirs if not d.startswith("."))
+                for name in names:
+                    if name.endswith(STAGE_ENDINGS):
+                        found.add(os.path.normpath(os.path.join(root, name)))
+        elif os.path.exists(path):
+            found.add(os.path.normpath(path))
+        else:
+            missing.append(input_finding(InputProblem(path, 1, 1, "no such file or directory")))
+    return sorted(found), missing
+
+
+def load_file(path: str, library: dict[str, OpAmpPart]) -> LoadedFile:
+    """Read, validate and build one file; every failure becomes an input finding."""
+    try:
+        stages = build_stages(read_file(path), library)
+    except InputErrors as errors:
+        return LoadedFile(path, problems=[input_finding(p) for p in errors.problems])
+    except RecursionError:
+        return LoadedFile(path, problems=[input_finding(InputProblem(
+            path, 1, 1, "nesting too deep to read"))])
+    return LoadedFile(path, stages=stages)

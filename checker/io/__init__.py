@@ -1,0 +1,1 @@
+"""Readers and writers of the stage-description format: syntax and positions only."""

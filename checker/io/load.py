@@ -1,0 +1,71 @@
+"""Read one file of the stage format, whichever syntax, into a validated plain tree."""
+
+from __future__ import annotations
+
+import os
+from dataclasses import dataclass
+
+from checker.io.json_reader import read_json
+from checker.io.positions import InputErrors, InputProblem, LineIndex, Path, Position
+from checker.io.schema import validate
+from checker.io.sexp_reader import read_sexp
+
+STAGE_ENDINGS = (".stage", ".stage.json")
+PART_ENDINGS = (".parts", ".parts.json")
+ALL_ENDINGS = STAGE_ENDINGS + PART_ENDINGS
+MAX_FILE_BYTES = 4 * 1024 * 1024
+
+
+@dataclass(frozen=True)
+class ParsedFile:
+    """A file's validated plain tree and the position of each of its nodes."""
+
+    path: str
+    syntax: str  # "sexp" | "json"
+    tree: dict
+    positions: dict[Path, Position]
+
+
+def syntax_of(path: str) -> str:
+    """'json' for files ending in .json, else 'sexp'."""
+    return "json" if path.endswith(".json") else "sexp"
+
+
+def read_text(path: str) -> str:
+    """The file's text as UTF-8; InputErrors for unreadable, oversized or non-UTF-8 files."""
+    try:
+        size = os.path.getsize(path)
+        if size > MAX_FILE_BYTES:
+            raise InputErrors([InputProblem(path, 1, 1, f"file is {size / 1e6:.1f} MB; the"
+                                            f" limit is {MAX_FILE_BYTES / 1e6:.0f} MB")])
+        with open(path, "rb") as handle:
+            data = handle.read()
+    except OSError as error:
+        raise InputErrors([InputProblem(path, 1, 1, f"cannot read: {error.strerror}")]) from None
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as error:
+        pos = LineIndex(data[: error.start].decode("utf-8", "replace")).position(
+            len(data[: error.start].decode("utf-8", "replace")))
+        raise InputErrors([InputProblem(path, pos.line, pos.column,
+                                        f"not UTF-8 text: byte 0x{data[error.start]:02x}"
+                                        " cannot be decoded; save the file as UTF-8")]) from None
+    return text.removeprefix("\ufeff")
+
+
+def parse_text(text: str, path: str, syntax: str | None = None) -> ParsedFile:
+    """Parse and validate ``text``; raise InputErrors with every problem found."""
+    syntax = syntax or syntax_of(path)
+    if syntax == "json":
+        tree, positions = read_json(text, path)
+    else:
+        tree, positions = read_sexp(text, path)
+    problems = validate(tree, positions, path)
+    if problems:
+        raise InputErrors(problems)
+    return ParsedFile(path, syntax, tree, positions)
+
+
+def read_file(path: str) -> ParsedFile:
+    """Read, parse and validate one file."""
+    return parse_text(read_text(path), path)

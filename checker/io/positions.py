@@ -1,0 +1,63 @@
+"""File positions: offsets to (line, column), and the problem record every reader emits."""
+
+from __future__ import annotations
+
+import bisect
+from dataclasses import dataclass
+
+Path = tuple  # a path into the plain tree: ("stages", 0, "resistors", 1, "value")
+
+
+@dataclass(frozen=True)
+class Position:
+    """A 1-based line and column in a file."""
+
+    line: int
+    column: int
+
+
+@dataclass(frozen=True)
+class InputProblem:
+    """Something wrong with an input file, located as precisely as the reader could."""
+
+    path: str
+    line: int
+    column: int
+    message: str
+    element: str | None = None
+
+    def __str__(self) -> str:
+        return f"{self.path}:{self.line}:{self.column}: {self.message}"
+
+
+class InputErrors(Exception):
+    """Raised by a reader or the builder with every problem it found in one file."""
+
+    def __init__(self, problems: list[InputProblem]):
+        super().__init__("; ".join(str(p) for p in problems))
+        self.problems = problems
+
+
+class LineIndex:
+    """Maps character offsets of a text to 1-based (line, column) with one bisect."""
+
+    def __init__(self, text: str):
+        self._starts = [0]
+        start = text.find("\n")
+        while start != -1:
+            self._starts.append(start + 1)
+            start = text.find("\n", start + 1)
+
+    def position(self, offset: int) -> Position:
+        line = bisect.bisect_right(self._starts, offset)
+        return Position(line, offset - self._starts[line - 1] + 1)
+
+
+def locate(positions: dict[Path, Position], path: Path) -> Position:
+    """The position of ``path``, or of its nearest ancestor that has one (else 1:1)."""
+    path = tuple(path)
+    while path:
+        if path in positions:
+            return positions[path]
+        path = path[:-1]
+    return positions.get((), Position(1, 1))

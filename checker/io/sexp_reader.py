@@ -1,0 +1,229 @@
+"""Read the s-expression syntax into the plain tree, with a position for every node.
+
+sexpdata parses the text but keeps no positions, so a single regular-expression pass
+first checks the structure (balanced parentheses, closed strings, a sane depth) and
+records the offset of every opening parenthesis and every atom in document order. The
+parse result is then walked in that same order, so the n-th list or atom met is the
+n-th recorded token: positions cost one integer per token, nothing per character.
+"""
+
+from __future__ import annotations
+
+import difflib
+import re
+
+import sexpdata
+
+from checker.io.grammar import FORMS, Child, Form, positional_slots
+from checker.io.positions import InputErrors, InputProblem, LineIndex, Path, Position
+
+MAX_DEPTH = 40
+MAX_REPORTED = 10
+
+_TOKEN = re.compile(
+    r'(?P<space>\s+)|(?P<comment>;[^\n]*)|(?P<open>\()|(?P<close>\))'
+    r'|(?P<string>"(?:[^"\\]|\\.)*")|(?P<badstring>")|(?P<bad>[\[\]\'`,])'
+    r'|(?P<atom>[^\s()";\[\]\'`,]+)'
+)
+
+
+class SNode:
+    """A parsed list or atom and where it starts."""
+
+    __slots__ = ("value", "pos")
+
+    def __init__(self, value, pos: Position):
+        self.value = value  # list[SNode] for a list; str, int or float for an atom
+        self.pos = pos
+
+    @property
+    def is_list(self) -> bool:
+        return isinstance(self.value, list)
+
+
+def scan(text: str, path: str) -> tuple[list[int], list[InputProblem]]:
+    """Check structure; return the offsets of every '(' and atom in order, and problems."""
+    index = LineIndex(text)
+    offsets: list[int] = []
+    problems: list[InputProblem] = []
+    open_stack: list[int] = []
+    too_deep_reported = False
+
+    def problem(offset: int, message: str) -> None:
+        pos = index.position(offset)
+        problems.append(InputProblem(path, pos.line, pos.column, message))
+
+    for match in _TOKEN.finditer(text):
+        kind, start = match.lastgroup, match.start()
+        if kind == "open":
+            open_stack.append(start)
+            offsets.append(start)
+            if len(open_stack) > MAX_DEPTH and not too_deep_reported:
+                problem(start, f"nesting deeper than {MAX_DEPTH} levels; the format needs"
+                               " at most 4")
+                too_deep_reported = True
+        elif kind == "close":
+            if open_stack:
+                open_stack.pop()
+            else:
+                problem(start, "unexpected ')': it closes nothing (an extra parenthesis?)")
+        elif kind in ("string", "atom"):
+            offsets.append(start)
+        elif kind == "badstring":
+            problem(start, 'unterminated string: this \'"\' is never closed')
+            break
+        elif kind == "bad":
+            problem(start, f"unexpected character {match.group()!r}: the format uses"
+                           " only parentheses, atoms, \"strings\" and ; comments")
+    for start in open_stack[:MAX_REPORTED]:
+        problem(start, "this '(' is never closed (a missing ')')")
+    return offsets, problems[:MAX_REPORTED]
+
+
+def parse(text: str, path: str) -> list[SNode]:
+    """Parse ``text`` into top-level SNodes; raise InputErrors on any syntax problem."""
+    offsets, problems = scan(text, path)
+    if problems:
+        raise InputErrors(problems)
+    if not offsets:
+        raise InputErrors([InputProblem(path, 1, 1, "the file holds no forms: expected"
+                                        " (stage NAME ...) or (part NAME ...)")])
+    index = LineIndex(text)
+    try:
+        raw = sexpdata.parse(text, nil=None, true=None, false=None)
+    except Exception as error:  # sexpdata raises several kinds; scan() already caught most
+        raise InputErrors([InputProblem(path, 1, 1, f"cannot parse: {error}")]) from None
+    cursor = iter(offsets)
+
+    def attach(value) -> SNode:
+        pos = index.position(next(cursor))
+        if isinstance(value, list):
+            return SNode([attach(item) for item in value], pos)
+        if isinstance(value, sexpdata.Symbol):
+            return SNode(str(value), pos)
+        return SNode(value, pos)
+
+    return [attach(item) for item in raw]
+
+
+def read_sexp(text: str, path: str) -> tuple[dict, dict[Path, Position]]:
+    """Parse and convert an s-expression file to (tree, positions)."""
+    nodes = parse(text, path)
+    converter = _Converter(path)
+    tree = converter.document(nodes)
+    if converter.problems:
+        raise InputErrors(converter.problems[:MAX_REPORTED])
+    return tree, converter.positions
+
+
+class _Converter:
+    """Walks SNodes by the grammar table, building the tree and its positions."""
+
+    def __init__(self, path: str):
+        self.path = path
+        self.positions: dict[Path, Position] = {(): Position(1, 1)}
+        self.problems: list[InputProblem] = []
+
+    def fail(self, pos: Position, message: str) -> None:
+        self.problems.append(InputProblem(self.path, pos.line, pos.column, message))
+
+    def document(self, nodes: list[SNode]) -> dict:
+        tree: dict = {}
+        self.children(FORMS["document"], "file", nodes, tree, ())
+        return tree
+
+    def children(self, form: Form, context: str, nodes: list[SNode], tree: dict,
+                 path: Path) -> None:
+        for node in nodes:
+            if not node.is_list or not node.value or node.value[0].is_list:
+                self.fail(node.pos, f"expected a (keyword ...) form in {context},"
+                                    f" found {_show(node)}")
+                continue
+            keyword = node.value[0].value
+            if not isinstance(keyword, str):
+                self.fail(node.pos, f"expected a keyword in {context}, found {keyword!r}")
+                continue
+            child = form.children.get(keyword)
+            if child is None:
+                child = Child(keyword, "unknown")
+                hint = _nearest(keyword, form.children)
+                self.fail(node.pos, f"unknown keyword {keyword!r} in {context}{hint}")
+                continue
+            if child.repeated:
+                items = tree.setdefault(child.key, [])
+                item_path = path + (child.key, len(items))
+                items.append(None)
+            else:
+                if child.key in tree:
+                    self.fail(node.pos, f"({keyword} ...) appears twice in {context}")
+                    continue
+                item_path = path + (child.key,)
+            self.positions[item_path] = node.pos
+            value = self.value(child, keyword, node, item_path)
+            if child.repeated:
+                tree[child.key][item_path[-1]] = value
+            else:
+                tree[child.key] = value
+
+    def value(self, child: Child, keyword: str, node: SNode, path: Path):
+        args = node.value[1:]
+        if child.shape in ("scalar", "pair"):
+            want = 1 if child.shape == "scalar" else 2
+            atoms = [a for a in args if not a.is_list]
+            if len(atoms) != want or len(args) != want:
+                example = "VALUE" if want == 1 else "LOW HIGH"
+                self.fail(node.pos, f"({keyword} ...) takes {want} value"
+                                    f"{'s' if want > 1 else ''}: ({keyword} {example})")
+                return None
+            if want == 1:
+                return atoms[0].value
+            for i, atom in enumerate(atoms):
+                self.positions[path + (i,)] = atom.pos
+            return [a.value for a in atoms]
+        return self.form(FORMS[child.shape], keyword, node, args, path)
+
+    def form(self, form: Form, keyword: str, node: SNode, args: list[SNode],
+             path: Path) -> dict:
+        tree: dict = {}
+        name = keyword
+        rest = list(args)
+        for key, count, optional in positional_slots(form):
+            atoms = []
+            while rest and not rest[0].is_list and len(atoms) < count:
+                atoms.append(rest.pop(0))
+            if len(atoms) < count:
+                if optional and not atoms:
+                    continue
+                fields = " ".join(" ".join([s[0].upper().rstrip("S")] * s[1])
+                                  for s in positional_slots(form))
+                self.fail(node.pos, f"({keyword} ...) is missing its {key}:"
+                                    f" expected ({keyword} {fields} ...)")
+                return tree
+            self.positions[path + (key,)] = atoms[0].pos
+            if count == 1:
+                tree[key] = atoms[0].value
+            else:
+                tree[key] = [a.value for a in atoms]
+                for i, atom in enumerate(atoms):
+                    self.positions[path + (key, i)] = atom.pos
+            if key in ("name", "ref") and isinstance(atoms[0].value, str):
+                name = f"{keyword} {atoms[0].value}"
+        stray = [a for a in rest if not a.is_list]
+        for atom in stray[:1]:
+            self.fail(atom.pos, f"unexpected value {_show(atom)} in {name}: every further"
+                                " item is a (keyword ...) form")
+        self.children(form, name, [a for a in rest if a.is_list], tree, path)
+        return tree
+
+
+def _nearest(word: str, choices) -> str:
+    close = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.6)
+    if close:
+        return f"; did you mean {close[0]!r}?"
+    return f"; expected one of: {', '.join(sorted(choices))}"
+
+
+def _show(node: SNode) -> str:
+    if node.is_list:
+        return "a list"
+    return repr(node.value)

@@ -1,0 +1,1 @@
+"""The part library: built-in generic op-amp classes and user part files."""

@@ -1,0 +1,1 @@
+"""Reporters: one module per output format; they know findings and figures only."""

@@ -1,0 +1,71 @@
+"""Rich tables for `ampcheck parts` and the read summary of `ampcheck check`."""
+
+from __future__ import annotations
+
+from rich.console import Console
+from rich.table import Table
+
+from checker.units import format_si
+
+
+def console(stderr: bool = False) -> Console:
+    """A console that honours NO_COLOR / FORCE_COLOR and goes plain off a terminal."""
+    return Console(stderr=stderr, highlight=False, soft_wrap=False)
+
+
+_PART_COLUMNS = [
+    ("GBW", "gbw_hz", "Hz"), ("A0", "open_loop_gain", ""), ("SR", "slew_rate_v_per_s", "V/s"),
+    ("Vos", "offset_voltage_v", "V"), ("Ib", "bias_current_a", "A"),
+    ("Cin cm/diff", None, None), ("Ro", "output_resistance_ohm", "Ω"),
+    ("headroom", "output_headroom_high_v", "V"), ("Iout", "output_current_a", "A"),
+    ("supply", None, None), ("en", "voltage_noise_v_per_rthz", "V/√Hz"),
+    ("min gain", "min_stable_gain", ""),
+]
+
+
+def print_parts(library: dict) -> None:
+    table = Table(title="Op-amp parts", title_justify="left")
+    table.add_column("name", style="bold")
+    table.add_column("class")
+    for heading, _attr, _unit in _PART_COLUMNS:
+        table.add_column(heading, justify="right")
+    for name in sorted(library):
+        part = library[name]
+        cells = []
+        for _heading, attr, unit in _PART_COLUMNS:
+            if _heading == "Cin cm/diff":
+                cells.append(f"{_short(part.input_capacitance_cm_f, 'F')}/"
+                             f"{_short(part.input_capacitance_diff_f, 'F')}")
+            elif _heading == "supply":
+                cells.append(f"{_short(part.supply_min_v, 'V')}–{_short(part.supply_max_v, 'V')}")
+            else:
+                cells.append(_short(getattr(part, attr), unit))
+        origin = "" if part.builtin else " *"
+        table.add_row(name + origin, part.family or "", *cells)
+    out = console()
+    out.print(table)
+    out.print("Built-in parts are generic classes with typical values, not real parts."
+              " * marks parts from your files.")
+
+
+def _short(value, unit) -> str:
+    return "—" if value is None else format_si(value, unit)
+
+
+def print_load_summary(loaded, missing) -> None:
+    out = console()
+    for finding in missing:
+        out.print(f"[bold red]error[/] {finding.path}: {finding.message}")
+    for item in loaded:
+        if not item.ok:
+            for finding in item.problems:
+                out.print(f"[bold red]error[/] {finding.path}:{finding.line}:{finding.column}:"
+                          f" {finding.message}", markup=True)
+            continue
+        for stage in item.stages:
+            opamps = ", ".join(f"{o.ref} ({o.part.name})" for o in stage.opamps)
+            out.print(f"[green]ok[/] {stage.path}:{stage.origin.line} stage [bold]{stage.name}"
+                      f"[/]: {opamps}; {len(stage.passives)} passives, {len(stage.nets)} nets")
+    bad = len(missing) + sum(1 for item in loaded if not item.ok)
+    stages = sum(len(item.stages) for item in loaded)
+    out.print(f"{len(loaded)} files, {stages} stages, {bad} files with problems")

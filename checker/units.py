@@ -1,0 +1,227 @@
+"""Engineering values: SI prefixes, unit symbols and RKM codes (IEC 60062).
+
+Every value in a stage file passes through :func:`parse_value`, which returns a plain
+SI float or raises :class:`UnitError` with a message meant for the user.
+
+Accepted forms (``m`` is always milli and ``M`` always mega):
+
+* plain numbers: ``10``, ``-3.3``, ``1e5``, ``2.2e-6``;
+* a number, an optional SI prefix and an optional unit symbol, with or without a space:
+  ``10k``, ``10 kOhm``, ``10kΩ``, ``100n``, ``100nF``, ``2.2u``, ``2.2µF``, ``0.5V/us``;
+* RKM codes per IEC 60062, where the prefix letter stands in for the decimal point:
+  ``4k7`` (4.7 k), ``2R2`` (2.2), ``R47`` (0.47), ``1M5`` (1.5 M), ``4n7`` (4.7 n);
+* percentages for tolerances (``1%`` -> 0.01) and decibels for gains (``100dB`` -> 1e5).
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from dataclasses import dataclass
+
+PREFIXES: dict[str, float] = {
+    "f": 1e-15,
+    "p": 1e-12,
+    "n": 1e-9,
+    "u": 1e-6,
+    "µ": 1e-6,  # micro sign U+00B5
+    "μ": 1e-6,  # Greek small letter mu U+03BC
+    "m": 1e-3,
+    "": 1.0,
+    "k": 1e3,
+    "K": 1e3,
+    "M": 1e6,
+    "G": 1e9,
+    "T": 1e12,
+}
+
+
+@dataclass(frozen=True)
+class Quantity:
+    """A kind of value: its canonical SI symbol and the spellings accepted for it."""
+
+    symbol: str
+    spellings: tuple[str, ...]
+    allow_prefix: bool = True
+
+
+OHM = Quantity("Ω", ("Ω", "ohm", "ohms", "Ohm", "Ohms", "R"))
+FARAD = Quantity("F", ("F",))
+HENRY = Quantity("H", ("H",))
+VOLT = Quantity("V", ("V",))
+AMPERE = Quantity("A", ("A",))
+HERTZ = Quantity("Hz", ("Hz",))
+WATT = Quantity("W", ("W",))
+SLEW = Quantity("V/s", ("V/s",))
+VOLT_NOISE = Quantity("V/√Hz", ("V/√Hz", "V/rtHz", "V/sqrtHz"))
+AMP_NOISE = Quantity("A/√Hz", ("A/√Hz", "A/rtHz", "A/sqrtHz"))
+DEGREE = Quantity("°", ("°", "deg"), allow_prefix=False)
+RATIO = Quantity("", ("",), allow_prefix=False)
+FRACTION = Quantity("%", ("%",), allow_prefix=False)
+GAIN = Quantity("V/V", ("V/V", "dB"))
+KELVIN = Quantity("K", ("K",), allow_prefix=False)
+
+QUANTITIES: dict[str, Quantity] = {
+    "resistance": OHM,
+    "capacitance": FARAD,
+    "inductance": HENRY,
+    "voltage": VOLT,
+    "current": AMPERE,
+    "frequency": HERTZ,
+    "power": WATT,
+    "slew-rate": SLEW,
+    "voltage-noise": VOLT_NOISE,
+    "current-noise": AMP_NOISE,
+    "angle": DEGREE,
+    "ratio": RATIO,
+    "percentage": FRACTION,
+    "gain": GAIN,
+    "temperature": KELVIN,
+}
+
+
+class UnitError(ValueError):
+    """A value that cannot be read as the quantity its place asks for."""
+
+
+_NUMBER = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
+_PLAIN = re.compile(rf"^\s*({_NUMBER})\s*(.*?)\s*$")
+# RKM (IEC 60062): digits, a multiplier letter in place of the decimal point, digits.
+_RKM = re.compile(r"^\s*([+-]?)(\d*)([RrfpnuµμmkKMGT])(\d+)\s*(.*?)\s*$")
+_RKM_FACTORS = dict(PREFIXES, R=1.0, r=1.0)
+_TIME_PREFIXES = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6, "μs": 1e-6, "ns": 1e-9}
+
+
+def parse_value(value: object, kind: str) -> float:
+    """Return ``value`` as an SI float for the quantity ``kind`` (a key of QUANTITIES).
+
+    Raises UnitError for text that is not a value, a unit that does not fit the
+    quantity, NaN or an infinity.
+    """
+    quantity = QUANTITIES[kind]
+    if isinstance(value, bool) or not isinstance(value, (int, float, str)):
+        raise UnitError(f"expected a {kind} value, got {value!r}")
+    if isinstance(value, (int, float)):
+        number = float(value)
+        if kind == "percentage":
+            raise UnitError(f"a tolerance needs a percent sign: write {value}%")
+    else:
+        number = _parse_text(value.strip(), quantity, kind)
+    if not math.isfinite(number):
+        raise UnitError(f"{value!r} is not a finite number")
+    return number
+
+
+def _parse_text(text: str, quantity: Quantity, kind: str) -> float:
+    rkm = _RKM.match(text)
+    if rkm and quantity.allow_prefix:
+        sign, whole, letter, fraction, rest = rkm.groups()
+        mantissa = float(f"{whole or '0'}.{fraction}")
+        factor = _RKM_FACTORS[letter]
+        if letter in "Rr" and quantity is not OHM:
+            raise UnitError(f"{text!r}: the RKM letter R marks ohms, not a {kind}")
+        unit_factor = _unit_factor(text, rest, quantity, kind)
+        return (-1.0 if sign == "-" else 1.0) * mantissa * factor * unit_factor
+    plain = _PLAIN.match(text)
+    if plain:
+        mantissa, rest = float(plain.group(1)), plain.group(2)
+        if quantity is GAIN and rest == "dB":
+            return 10 ** (mantissa / 20)
+        return mantissa * _suffix_factor(text, rest, quantity, kind)
+    raise UnitError(f"{text!r} is not a {kind} value (expected e.g. {_example(kind)})")
+
+
+def _suffix_factor(text: str, rest: str, quantity: Quantity, kind: str) -> float:
+    """Factor for what follows the number: an optional prefix, then the unit."""
+    if rest == "":
+        return 1.0
+    if quantity is FRACTION:
+        if rest == "%":
+            return 0.01
+        if rest == "ppm":
+            return 1e-6
+        raise UnitError(f"{text!r}: a tolerance is written as a percentage, e.g. 1%")
+    if quantity is SLEW:
+        for time_unit, factor in _TIME_PREFIXES.items():
+            for volt_prefix, vfactor in PREFIXES.items():
+                if rest == f"{volt_prefix}V/{time_unit}":
+                    return vfactor / factor
+    if rest in quantity.spellings:
+        return 1.0
+    if quantity.allow_prefix:
+        return _unit_factor(text, rest, quantity, kind)
+    raise UnitError(_wrong_unit(text, rest, quantity, kind))
+
+
+def _unit_factor(text: str, rest: str, quantity: Quantity, kind: str) -> float:
+    """Split ``rest`` into an SI prefix and one of the quantity's spellings."""
+    if rest == "":
+        return 1.0
+    if rest in PREFIXES and quantity.allow_prefix:
+        return PREFIXES[rest]
+    for prefix, factor in PREFIXES.items():
+        if prefix and rest.startswith(prefix) and rest[len(prefix):] in quantity.spellings:
+            return factor
+    if rest in quantity.spellings:
+        return 1.0
+    raise UnitError(_wrong_unit(text, rest, quantity, kind))
+
+
+def _wrong_unit(text: str, rest: str, quantity: Quantity, kind: str) -> str:
+    for other_kind, other in QUANTITIES.items():
+        if other is not quantity and any(rest.endswith(s) for s in other.spellings if s):
+            return (f"{text!r} is a {other_kind}, but this place takes a {kind}"
+                    f" (e.g. {_example(kind)})")
+    return f"{text!r}: unknown unit or prefix {rest!r} for a {kind} (e.g. {_example(kind)})"
+
+
+_EXAMPLES = {
+    "resistance": "10k, 4k7, 2R2 or 10 kΩ",
+    "capacitance": "100n, 4n7 or 10pF",
+    "inductance": "10uH",
+    "voltage": "5V or 3.3",
+    "current": "10mA or 2nA",
+    "frequency": "1kHz or 10M",
+    "power": "0.25W or 250mW",
+    "slew-rate": "0.5V/us",
+    "voltage-noise": "10nV/rtHz",
+    "current-noise": "1pA/rtHz",
+    "angle": "45 or 45deg",
+    "ratio": "10",
+    "percentage": "1%",
+    "gain": "-10 or 100dB",
+    "temperature": "300K",
+}
+
+
+def _example(kind: str) -> str:
+    return _EXAMPLES.get(kind, "a number")
+
+
+_FORMAT_PREFIXES = [
+    (1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""),
+    (1e-3, "m"), (1e-6, "µ"), (1e-9, "n"), (1e-12, "p"), (1e-15, "f"),
+]
+
+
+def format_si(value: float | None, unit: str = "", digits: int = 3) -> str:
+    """Format an SI float in engineering notation: 4700 -> '4.7 kΩ' (unit 'Ω')."""
+    if value is None:
+        return "n/a"
+    if not math.isfinite(value):
+        return f"{value} {unit}".strip()
+    if unit in ("", "%", "°", "dB", "V/V"):
+        if unit == "%":
+            return f"{value * 100:.{digits}g} %"
+        return f"{value:.{digits}g}{' ' + unit if unit else ''}"
+    magnitude = abs(value)
+    if magnitude == 0:
+        return f"0 {unit}"
+    for factor, prefix in _FORMAT_PREFIXES:
+        if magnitude >= factor * 0.9995:
+            break
+    scaled = value / factor
+    text = f"{scaled:.{digits}g}"
+    if "e" in text:  # rounding pushed it over 1000: use the next prefix up
+        text = f"{scaled:.0f}"
+    return f"{text} {prefix}{unit}"

@@ -1,0 +1,1 @@
+"""Built-in design rules, one concern per file; installed as ``checker.rules``."""
