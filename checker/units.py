@@ -120,8 +120,14 @@ def _parse_text(text: str, quantity: Quantity, kind: str) -> float:
         factor = _RKM_FACTORS[letter]
         if letter in "Rr" and quantity is not OHM:
             raise UnitError(f"{text!r}: the RKM letter R marks ohms, not a {kind}")
-        unit_factor = _unit_factor(text, rest, quantity, kind)
-        return (-1.0 if sign == "-" else 1.0) * mantissa * factor * unit_factor
+        if rest and rest not in quantity.spellings:
+            # The RKM letter is the prefix: only a unit may follow (not 4k7k or 4n7nF).
+            message = _wrong_unit(text, rest, quantity, kind)
+            if " is a " not in message:
+                message = (f"{text!r}: in an RKM code the letter {letter!r} is the prefix,"
+                           f" so only a unit may follow, not {rest!r}")
+            raise UnitError(message)
+        return (-1.0 if sign == "-" else 1.0) * mantissa * factor
     plain = _PLAIN.match(text)
     if plain:
         mantissa, rest = float(plain.group(1)), plain.group(2)
@@ -133,6 +139,8 @@ def _parse_text(text: str, quantity: Quantity, kind: str) -> float:
 
 def _suffix_factor(text: str, rest: str, quantity: Quantity, kind: str) -> float:
     """Factor for what follows the number: an optional prefix, then the unit."""
+    if quantity is FRACTION and rest == "":
+        raise UnitError(f"a tolerance needs a percent sign: write {text}%")
     if rest == "":
         return 1.0
     if quantity is FRACTION:

@@ -14,6 +14,7 @@ import re
 from checker.io.positions import InputErrors, InputProblem, LineIndex, Path, Position
 
 _TOKEN = re.compile(r'"(?:[^"\\]|\\.)*"|[{}\[\]:,]|[^\s{}\[\]:,"]+')
+MAX_DEPTH = 40
 
 
 def read_json(text: str, path: str) -> tuple[dict, dict[Path, Position]]:
@@ -29,8 +30,10 @@ def read_json(text: str, path: str) -> tuple[dict, dict[Path, Position]]:
     except ValueError as error:
         raise InputErrors([InputProblem(path, 1, 1, str(error))]) from None
     except RecursionError:
-        raise InputErrors([InputProblem(path, 1, 1, "nesting too deep: the format needs"
-                                        " at most 6 levels")]) from None
+        tree = None
+    too_deep = _too_deep(text, path)
+    if too_deep or tree is None:
+        raise InputErrors([too_deep or InputProblem(path, 1, 1, "nesting too deep to read")])
     positions, problems = index_positions(text, path)
     if problems:
         raise InputErrors(problems)
@@ -38,6 +41,22 @@ def read_json(text: str, path: str) -> tuple[dict, dict[Path, Position]]:
         raise InputErrors([InputProblem(path, 1, 1, "expected a JSON object at the top"
                                         ' level, such as {"stages": [...]}')])
     return tree, positions
+
+
+def _too_deep(text: str, path: str) -> InputProblem | None:
+    """A problem at the first '[' or '{' nested deeper than MAX_DEPTH, if any."""
+    depth = 0
+    for match in _TOKEN.finditer(text):
+        token = match.group()
+        if token in "{[":
+            depth += 1
+            if depth > MAX_DEPTH:
+                pos = LineIndex(text).position(match.start())
+                return InputProblem(path, pos.line, pos.column, f"nesting deeper than"
+                                    f" {MAX_DEPTH} levels; the format needs at most 6")
+        elif token in "}]":
+            depth -= 1
+    return None
 
 
 def _reject_constant(name: str):

@@ -20,10 +20,14 @@ from checker.io.positions import InputErrors, InputProblem, LineIndex, Path, Pos
 MAX_DEPTH = 40
 MAX_REPORTED = 10
 
+# Token boundaries must match sexpdata's exactly, or positions drift: it separates atoms
+# only by ASCII whitespace and reads a backslash in an atom as an escape, so other
+# spaces and a bare backslash are reported instead of being read.
 _TOKEN = re.compile(
-    r'(?P<space>\s+)|(?P<comment>;[^\n]*)|(?P<open>\()|(?P<close>\))'
-    r'|(?P<string>"(?:[^"\\]|\\.)*")|(?P<badstring>")|(?P<bad>[\[\]\'`,])'
-    r'|(?P<atom>[^\s()";\[\]\'`,]+)'
+    r'(?P<space>[ \t\n\r\f\v]+)|(?P<comment>;[^\n]*)|(?P<open>\()|(?P<close>\))'
+    r'|(?P<string>"(?:[^"\\]|\\[\s\S])*")|(?P<badstring>")'
+    r'|(?P<oddspace>[^\S \t\n\r\f\v])|(?P<bad>[\[\]\'`,\\])'
+    r'|(?P<atom>[^\s()";\[\]\'`,\\]+)'
 )
 
 
@@ -72,6 +76,9 @@ def scan(text: str, path: str) -> tuple[list[int], list[InputProblem]]:
         elif kind == "badstring":
             problem(start, 'unterminated string: this \'"\' is never closed')
             break
+        elif kind == "oddspace":
+            problem(start, f"unexpected space character U+{ord(match.group()):04X}:"
+                           " separate items with plain spaces")
         elif kind == "bad":
             problem(start, f"unexpected character {match.group()!r}: the format uses"
                            " only parentheses, atoms, \"strings\" and ; comments")

@@ -2,16 +2,28 @@
 
 from __future__ import annotations
 
-import json
 import re
 
 from checker.io.grammar import FORMS, Form, child_by_key, positional_slots
 
-# Atoms that read back as the same string: no spaces, quotes, parentheses or comment
-# marks, and not something sexpdata would read as a number.
-_BARE = re.compile(r'^[^\s()";\[\]\'`,]+$')
-_NUMERIC = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
+# Atoms that read back as the same string: no spaces, quotes, parentheses, comment
+# marks or backslashes (sexpdata's escape), and not something sexpdata would read as a
+# number (it tries int() then float(), which also take "nan", "inf" and "1_000").
+_BARE = re.compile(r'^[^\s()";\[\]\'`,\\]+$')
 _INDENT = "  "
+# The escapes sexpdata undoes inside a "string"; any other character is written as is.
+_STRING_ESCAPES = {"\\": "\\\\", '"': '\\"', "\n": "\\n", "\r": "\\r", "\t": "\\t",
+                   "\b": "\\b", "\f": "\\f"}
+
+
+def _reads_as_number(text: str) -> bool:
+    for number in (int, float):
+        try:
+            number(text)
+            return True
+        except ValueError:
+            pass
+    return False
 
 
 def atom(value) -> str:
@@ -21,9 +33,9 @@ def atom(value) -> str:
     if isinstance(value, (int, float)):
         return repr(value)
     text = str(value)
-    if _BARE.match(text) and not _NUMERIC.match(text) and text not in ("t", "nil"):
+    if _BARE.match(text) and not _reads_as_number(text) and text not in ("t", "nil"):
         return text
-    return json.dumps(text, ensure_ascii=False)
+    return '"' + "".join(_STRING_ESCAPES.get(c, c) for c in text) + '"'
 
 
 def write_sexp(tree: dict) -> str:

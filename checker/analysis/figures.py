@@ -1,0 +1,663 @@
+"""Figures of a stage, each computed on first use and cached.
+
+``analyse(stage)`` returns a Figures object at once; nothing is solved until a rule
+reads a figure. The AC figures share one batched solve over the frequency grid with
+every excitation as a right-hand-side column; the DC figures share one DC solve.
+All values are SI floats (or complex arrays over ``frequencies_hz``).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from functools import cached_property
+
+import numpy as np
+
+from checker.analysis.circuit import Circuit, build_circuit
+from checker.analysis.loop import (Margins, crossing_index, interpolate_log, return_ratio,
+                                   unwrapped_phase_deg)
+from checker.analysis.mna import (SingularCircuit, assemble, solve, source_loops,
+                                  system_stack, unreferenced_nodes)
+from checker.model import Source, Stage
+
+REFINE_POINTS = 33  # points of the local grid that pins down each crossover
+
+
+@dataclass(frozen=True)
+class AnalysisOptions:
+    """Knobs of the analysis; the engine fills them from configuration."""
+
+    stray_capacitance_f: float = 0.0  # added at every inverting input
+    points: int = 200  # log-spaced frequency points (band edges are added)
+
+
+@dataclass(frozen=True)
+class AnalysisProblem:
+    """A structural reason the stage cannot be solved as drawn, naming nets or elements."""
+
+    message: str
+    nets: tuple[str, ...] = ()
+    elements: tuple[str, ...] = ()
+    fatal: bool = True
+
+
+@dataclass(frozen=True)
+class LoopFigures:
+    """One op-amp's loop, from its return ratio T(f)."""
+
+    ref: str
+    loop_gain: np.ndarray  # T over frequencies_hz, complex
+    loop_gain_dc: float  # T at 0 Hz (real)
+    noise_gain: np.ndarray  # 1/beta over frequencies_hz, complex
+    noise_gain_dc: float | None  # None where beta is 0 at DC
+    margins: Margins
+
+    @property
+    def crossover_hz(self) -> float | None:
+        return self.margins.crossover_hz
+
+    @property
+    def phase_margin_deg(self) -> float | None:
+        return self.margins.phase_margin_deg
+
+    @property
+    def feedback(self) -> str:
+        """'negative', 'positive' or 'none': the sign of the loop at DC.
+
+        A loop whose DC gain is below 1 but that closes at higher frequencies (an
+        integrator with no DC path) reads 'none' at DC; see ``closes_in_band``.
+        """
+        if self.loop_gain_dc >= 1.0:
+            return "negative"
+        if self.loop_gain_dc < -1e-9:
+            return "positive"
+        return "none"
+
+    @property
+    def closes_anywhere(self) -> bool:
+        """True when negative feedback (Re T > 1) exists at some frequency."""
+        return bool(np.any(self.loop_gain.real > 1.0))
+
+
+@dataclass(frozen=True)
+class SourceFigures:
+    """What one signal source sees and what it gets at the stage output."""
+
+    index: int
+    source: Source
+    gain: np.ndarray  # V(out)/V(net) (V/V), or V(out)/I (ohms) for a current source
+    gain_from_source: np.ndarray  # V(out)/EMF (voltage) or V(out)/I (current)
+    input_impedance: np.ndarray  # looking into the stage from the source's net
+    reference_hz: float  # mid-band frequency the single-number figures are read at
+    gain_mid: complex
+    gain_from_source_mid: complex
+    input_impedance_mid: complex
+    input_resistance_min: float  # smallest |Zin| over the band (or the whole grid)
+    bandwidth_low_hz: float | None
+    bandwidth_high_hz: float | None
+
+    @property
+    def loss_db(self) -> float:
+        """Loss in dB that loading costs between the source's EMF and the stage output:
+        20 log10(|gain from net| / |gain from EMF|) at mid-band; 0 for an ideal source
+        (the voltage divider Zin / (Zs + Zin); common practice)."""
+        if self.gain_mid == 0 or self.gain_from_source_mid == 0:
+            return 0.0
+        return float(20 * np.log10(abs(self.gain_mid) / abs(self.gain_from_source_mid)))
+
+
+@dataclass(frozen=True)
+class NodeRange:
+    """A net's DC voltage over the sources' ranges, with offset and bias errors."""
+
+    net: str
+    nominal_low: float  # over the sources' ranges, no errors
+    nominal_high: float
+    error: float  # worst-case |error| from offset voltage and bias currents
+    clip_low: float | None = None  # op-amp outputs: the rails less the part's headroom
+    clip_high: float | None = None
+
+    @property
+    def low(self) -> float:
+        return self.nominal_low - self.error
+
+    @property
+    def high(self) -> float:
+        return self.nominal_high + self.error
+
+    @property
+    def clipped_low(self) -> float:
+        return self.low if self.clip_low is None else max(self.low, self.clip_low)
+
+    @property
+    def clipped_high(self) -> float:
+        return self.high if self.clip_high is None else min(self.high, self.clip_high)
+
+
+@dataclass(frozen=True)
+class OutputCurrent:
+    """An op-amp's output current over the sources' ranges (positive: sourced)."""
+
+    ref: str
+    most_sourced_a: float
+    most_sunk_a: float  # positive number: the largest current pulled into the output
+
+    @property
+    def peak_a(self) -> float:
+        return max(self.most_sourced_a, self.most_sunk_a)
+
+
+@dataclass
+class _Columns:
+    """Names of the right-hand-side columns of one batched solve."""
+
+    names: list[tuple] = field(default_factory=list)
+
+    def add(self, name: tuple) -> int:
+        self.names.append(name)
+        return len(self.names) - 1
+
+    def index(self, name: tuple) -> int:
+        return self.names.index(name)
+
+
+def analyse(stage: Stage, options: AnalysisOptions | None = None) -> "Figures":
+    """Lazily computed figures of ``stage``."""
+    return Figures(stage, options or AnalysisOptions())
+
+
+class Figures:
+    """Every number the rules read, computed on demand and cached."""
+
+    def __init__(self, stage: Stage, options: AnalysisOptions):
+        self.stage = stage
+        self.options = options
+
+    # -- structure -----------------------------------------------------------------
+    @cached_property
+    def circuit(self) -> Circuit:
+        return build_circuit(self.stage, self.options.stray_capacitance_f)
+
+    @cached_property
+    def problems(self) -> list[AnalysisProblem]:
+        """Structural problems: loops of voltage sources, outputs on supplies, nets with
+        no path to ground at DC (the solve then ties them with a tiny conductance)."""
+        circuit = self.circuit
+        problems = []
+        loops = source_loops(circuit)
+        if loops:
+            problems.append(AnalysisProblem(
+                "a loop of voltage sources and inductors (" + ", ".join(loops) +
+                ") fixes one net at two voltages; the equations are singular",
+                elements=tuple(loops)))
+        rails = self.stage.rail_voltages
+        for opamp in self.stage.opamps:
+            if opamp.out in rails:
+                problems.append(AnalysisProblem(
+                    f"{opamp.ref}'s output is tied to the rail {opamp.out}", nets=(opamp.out,),
+                    elements=(opamp.ref,), fatal=False))
+        floating = [circuit.node_names[n] for n in unreferenced_nodes(circuit, at_dc=True)]
+        if floating:
+            problems.append(AnalysisProblem(
+                "no DC path to ground from net " + ", ".join(floating) +
+                " (only capacitors or op-amp inputs touch it)", nets=tuple(floating),
+                fatal=False))
+        return problems
+
+    @property
+    def solvable(self) -> bool:
+        return not any(p.fatal for p in self.problems)
+
+    def _matrices(self, at_dc: bool):
+        tie = tuple(unreferenced_nodes(self.circuit, at_dc=at_dc))
+        return assemble(self.circuit, tie)
+
+    # -- frequency grid ------------------------------------------------------------
+    @cached_property
+    def frequencies_hz(self) -> np.ndarray:
+        """Log grid from well below the band to well above every op-amp's GBW, plus
+        each source's band edges and centre. Shape (F,)."""
+        high = 1e6
+        low = 1e-2
+        for opamp in self.stage.opamps:
+            for value in (opamp.part.gbw_hz, opamp.part.second_pole_hz):
+                if value:
+                    high = max(high, 30 * value)
+        extra = []
+        for source in self.stage.sources:
+            extra.extend(f for f in (source.band_low_hz, source.band_high_hz,
+                                     _band_centre(source)) if f and f > 0)
+            if source.band_low_hz:
+                low = min(low, source.band_low_hz / 100)
+            if source.band_high_hz:
+                high = max(high, source.band_high_hz * 1000)
+        grid = np.logspace(math.log10(low), math.log10(high), self.options.points)
+        return np.unique(np.concatenate([grid, extra]))
+
+    def _gains(self, frequencies: np.ndarray) -> np.ndarray:
+        s = 2j * np.pi * frequencies
+        blocks = self.circuit.gain_blocks
+        return np.stack([block.gain(s) for block in blocks], axis=1) if blocks else \
+            np.zeros((frequencies.size, 0), dtype=complex)
+
+    # -- AC solve --------------------------------------------------------------------
+    @cached_property
+    def _ac_columns(self) -> tuple[_Columns, np.ndarray]:
+        circuit = self.circuit
+        columns = _Columns()
+        B = []
+        n = circuit.size
+
+        def column(entries: dict[int, float]) -> None:
+            vector = np.zeros(n)
+            for row, value in entries.items():
+                vector[row] += value
+            B.append(vector)
+
+        for i, source in enumerate(self.stage.sources):
+            columns.add(("source", i))
+            if i in circuit.source_branch:
+                column({circuit.row_of_branch(circuit.source_branch[i]): 1.0})
+            else:
+                column({circuit.row_of_node(circuit.source_node[i]): 1.0})
+        out = circuit.node(self.stage.output_net)
+        columns.add(("output",))
+        column({circuit.row_of_node(out): 1.0} if out else {})
+        for block in circuit.gain_blocks:
+            columns.add(("loop", block.ref))
+            column({circuit.row_of_branch(circuit.gain_branch[block.ref]): 1.0})
+        return columns, np.stack(B, axis=1)
+
+    def _solve_ac(self, frequencies: np.ndarray, only: list[tuple] | None = None) -> np.ndarray:
+        """X (F, n, m) for the given frequencies and columns (all by default)."""
+        if not self.solvable:
+            raise SingularCircuit(self.problems[0].message)
+        columns, B = self._ac_columns
+        if only is not None:
+            B = B[:, [columns.index(name) for name in only]]
+        matrices = self._ac_matrices
+        s = 2j * np.pi * frequencies
+        Y = system_stack(matrices, self._gains(frequencies), s)
+        return solve(Y, np.broadcast_to(B, (frequencies.size,) + B.shape))
+
+    @cached_property
+    def _ac_matrices(self):
+        return self._matrices(at_dc=False)
+
+    @cached_property
+    def _ac(self) -> np.ndarray:
+        return self._solve_ac(self.frequencies_hz)
+
+    def _node_response(self, X: np.ndarray, net: str, column: tuple) -> np.ndarray:
+        node = self.circuit.node(net)
+        if node == 0:
+            return np.zeros(X.shape[0], dtype=complex)
+        return X[:, node - 1, self._ac_columns[0].index(column)]
+
+    # -- DC solve --------------------------------------------------------------------
+    @cached_property
+    def _dc(self) -> tuple[_Columns, np.ndarray]:
+        """DC responses: X (n, m) for unit supplies, sources, offsets and bias currents."""
+        if not self.solvable:
+            raise SingularCircuit(self.problems[0].message)
+        circuit = self.circuit
+        columns = _Columns()
+        n = circuit.size
+        B = []
+
+        def column(name: tuple, entries: dict[int, float]) -> None:
+            columns.add(name)
+            vector = np.zeros(n)
+            for row, value in entries.items():
+                vector[row] += value
+            B.append(vector)
+
+        for net, branch in circuit.supply_branch.items():
+            column(("supply", net), {circuit.row_of_branch(branch): 1.0})
+        for i in range(len(self.stage.sources)):
+            if i in circuit.source_branch:
+                column(("source", i), {circuit.row_of_branch(circuit.source_branch[i]): 1.0})
+            else:
+                column(("source", i), {circuit.row_of_node(circuit.source_node[i]): 1.0})
+        for block in circuit.gain_blocks:
+            row = circuit.row_of_branch(circuit.gain_branch[block.ref])
+            column(("vos", block.ref), {row: block.open_loop_gain})
+            column(("ib+", block.ref), {block.in_pos - 1: -1.0} if block.in_pos else {})
+            column(("ib-", block.ref), {block.in_neg - 1: -1.0} if block.in_neg else {})
+            column(("loop", block.ref), {row: 1.0})
+        matrices = self._matrices(at_dc=True)
+        gains = self._gains(np.zeros(1)).real
+        Y = system_stack(matrices, gains, np.zeros(1)).real
+        X = solve(Y, np.stack(B, axis=1)[None])[0]
+        return columns, X
+
+    def dc_transfer(self, net: str, column: tuple) -> float:
+        """DC voltage at ``net`` per unit of the excitation named by ``column``."""
+        columns, X = self._dc
+        node = self.circuit.node(net)
+        return 0.0 if node == 0 else float(X[node - 1, columns.index(column)])
+
+    # -- loops -----------------------------------------------------------------------
+    @cached_property
+    def loops(self) -> dict[str, LoopFigures]:
+        """Loop gain, noise gain and margins of every op-amp, by designator."""
+        result = {}
+        frequencies = self.frequencies_hz
+        gains = self._gains(frequencies)
+        dc_columns, X_dc = self._dc
+        for k, block in enumerate(self.circuit.gain_blocks):
+            z = self._loop_z(self._ac, block, ("loop", block.ref))
+            T, beta = return_ratio(gains[:, k], z)
+            z_dc = -(_pick(X_dc[None], block.in_pos, dc_columns.index(("loop", block.ref)))
+                     - _pick(X_dc[None], block.in_neg, dc_columns.index(("loop", block.ref))))
+            T_dc, beta_dc = return_ratio(np.array([block.open_loop_gain]), z_dc.astype(complex))
+            noise_gain = np.divide(1.0, beta, out=np.full_like(beta, np.inf), where=beta != 0)
+            closes = block.pole1_hz and np.max(np.abs(T)) >= 1.0
+            margins = self._margins(frequencies, T, k, block) if closes else \
+                Margins(None, None, None, None)
+            result[block.ref] = LoopFigures(
+                ref=block.ref, loop_gain=T, loop_gain_dc=float(T_dc.real[0]),
+                noise_gain=noise_gain,
+                noise_gain_dc=float(1 / beta_dc.real[0]) if abs(beta_dc[0]) > 1e-15 else None,
+                margins=margins)
+        return result
+
+    def _loop_z(self, X: np.ndarray, block, column: tuple) -> np.ndarray:
+        index = self._ac_columns[0].index(column)
+        return -(_pick(X, block.in_pos, index) - _pick(X, block.in_neg, index))
+
+    def _margins(self, frequencies: np.ndarray, T: np.ndarray, k: int, block) -> Margins:
+        magnitude = np.abs(T)
+        phase = unwrapped_phase_deg(T)
+        i = crossing_index(magnitude, 1.0)
+        crossover = phase_margin = None
+        if i is not None and magnitude[0] >= 1.0:
+            crossover, phase_at = self._refine(frequencies, T, phase, i, k, block)
+            phase_margin = 180.0 + phase_at
+        gain_margin = phase_crossover = None
+        j = crossing_index(phase, -180.0)
+        if j is not None:
+            phase_crossover = interpolate_log(frequencies, phase, j, -180.0, phase)
+            log_mag = np.log10(magnitude)
+            fraction = (np.log(phase_crossover) - np.log(frequencies[j])) / (
+                np.log(frequencies[j + 1]) - np.log(frequencies[j]))
+            gain_margin = float(-20 * (log_mag[j] + fraction * (log_mag[j + 1] - log_mag[j])))
+        return Margins(crossover, phase_margin, gain_margin, phase_crossover)
+
+    def _refine(self, frequencies, T, phase, i, k, block) -> tuple[float, float]:
+        """Crossover frequency and unwrapped phase there, from a fine local solve."""
+        local = np.geomspace(frequencies[i], frequencies[i + 1], REFINE_POINTS)
+        X = self._solve_ac(local, only=[("loop", block.ref)])
+        gain = self._gains(local)[:, k]
+        z = -(_pick(X, block.in_pos, 0) - _pick(X, block.in_neg, 0))
+        T_local, _ = return_ratio(gain, z)
+        local_phase = unwrapped_phase_deg(T_local)
+        local_phase += 360.0 * np.round((phase[i] - local_phase[0]) / 360.0)
+        log_mag = np.log10(np.abs(T_local))
+        j = crossing_index(log_mag, 0.0)
+        if j is None:  # numerically flat at the crossing: take the grid point
+            return float(frequencies[i]), float(phase[i])
+        crossover = interpolate_log(local, log_mag, j, 0.0, log_mag)
+        fraction = (np.log(crossover) - np.log(local[j])) / (np.log(local[j + 1]) - np.log(local[j]))
+        return crossover, float(local_phase[j] + fraction * (local_phase[j + 1] - local_phase[j]))
+
+    # -- sources: gain, input impedance, bandwidth -------------------------------------
+    @cached_property
+    def sources(self) -> list[SourceFigures]:
+        """Per-source gain, input impedance and bandwidth at the stage output."""
+        X = self._ac
+        frequencies = self.frequencies_hz
+        s = 2j * np.pi * frequencies
+        circuit = self.circuit
+        result = []
+        for i, source in enumerate(self.stage.sources):
+            column = ("source", i)
+            v_out = self._node_response(X, self.stage.output_net, column)
+            v_net = self._node_response(X, source.net, column)
+            if source.kind == "voltage":
+                branch_row = circuit.row_of_branch(circuit.source_branch[i])
+                current = -X[:, branch_row, self._ac_columns[0].index(column)]
+                z_in = _safe_divide(v_net, current)
+                gain = _safe_divide(v_out, v_net)
+                gain_from_source = v_out
+            else:
+                shunt = np.zeros_like(s)
+                if source.impedance_ohm:
+                    shunt = shunt + 1 / source.impedance_ohm
+                if source.capacitance_f:
+                    shunt = shunt + s * source.capacitance_f
+                z_in = _safe_divide(1.0, _safe_divide(1.0, v_net) - shunt)
+                gain = v_out
+                gain_from_source = v_out
+            reference = self._reference_hz(source, gain)
+            at = int(np.argmin(np.abs(frequencies - reference)))
+            band = _band_mask(frequencies, source)
+            low, high = _bandwidth(frequencies, gain, at)
+            result.append(SourceFigures(
+                index=i, source=source, gain=gain, gain_from_source=gain_from_source,
+                input_impedance=z_in, reference_hz=float(frequencies[at]),
+                gain_mid=complex(gain[at]), gain_from_source_mid=complex(gain_from_source[at]),
+                input_impedance_mid=complex(z_in[at]),
+                input_resistance_min=float(np.min(np.abs(z_in[band]))),
+                bandwidth_low_hz=low, bandwidth_high_hz=high))
+        return result
+
+    def _reference_hz(self, source: Source, gain: np.ndarray) -> float:
+        centre = _band_centre(source)
+        if centre:
+            return centre
+        crossovers = [loop.crossover_hz for loop in self.loops.values() if loop.crossover_hz]
+        frequencies = self.frequencies_hz
+        limit = min(crossovers) / 100 if crossovers else frequencies[-1]
+        below = frequencies <= max(limit, frequencies[0])
+        return float(frequencies[below][np.argmax(np.abs(gain[below]))])
+
+    # -- output impedance ----------------------------------------------------------------
+    @cached_property
+    def output_impedance(self) -> np.ndarray:
+        """Closed-loop impedance looking back into the stage output (the load excluded),
+        over frequencies_hz."""
+        z_with_load = self._node_response(self._ac, self.stage.output_net, ("output",))
+        s = 2j * np.pi * self.frequencies_hz
+        load_admittance = np.zeros_like(s)
+        for load in self.stage.loads:
+            if load.net == self.stage.output_net:
+                if load.resistance_ohm:
+                    load_admittance = load_admittance + 1 / load.resistance_ohm
+                if load.capacitance_f:
+                    load_admittance = load_admittance + s * load.capacitance_f
+        return _safe_divide(1.0, _safe_divide(1.0, z_with_load) - load_admittance)
+
+    # -- feedback-network pole -----------------------------------------------------------
+    @cached_property
+    def inverting_input(self) -> dict[str, tuple[float, float, float | None]]:
+        """Per op-amp: (resistance seen at in-, capacitance at in-, feedback pole Hz).
+
+        The resistance is the DC resistance from the inverting input to AC ground with
+        this op-amp's output held at 0 V (its source zeroed, other op-amps active), its
+        own input resistance and capacitances removed; the capacitance is its Ccm + Cdiff
+        + stray plus capacitors and sensor capacitance from that net to a fixed net. The
+        pole is 1/(2 pi R C) (R. Mancini (ed.), Op Amps for Everyone, stability chapter).
+        """
+        result = {}
+        stage = self.stage
+        rails = set(stage.rail_voltages)
+        for opamp in stage.opamps:
+            resistance = self._resistance_at(opamp.ref, opamp.in_neg)
+            part = opamp.part
+            capacitance = (part.input_capacitance_cm_f or 0.0) + \
+                (part.input_capacitance_diff_f or 0.0) + self.options.stray_capacitance_f
+            for passive in stage.capacitors():
+                if opamp.in_neg in passive.nets and passive.other(opamp.in_neg) in rails:
+                    capacitance += passive.value
+            for source in stage.sources:
+                if source.net == opamp.in_neg and source.capacitance_f:
+                    capacitance += source.capacitance_f
+            pole = None
+            if resistance and capacitance and math.isfinite(resistance):
+                pole = 1.0 / (2 * math.pi * resistance * capacitance)
+            result[opamp.ref] = (resistance, capacitance, pole)
+        return result
+
+    def _resistance_at(self, ref: str, net: str) -> float:
+        circuit = self.circuit
+        node = circuit.node(net)
+        if node == 0:
+            return 0.0
+        skip = {f"{ref}.Rin"}
+        pruned = Circuit(node_names=circuit.node_names,
+                         conductances=[c for c in circuit.conductances if c.element not in skip],
+                         capacitances=[], branches=circuit.branches,
+                         gain_blocks=[b for b in circuit.gain_blocks if b.ref != ref],
+                         gain_branch={r: i for r, i in circuit.gain_branch.items() if r != ref})
+        tie = tuple(unreferenced_nodes(pruned, at_dc=True))
+        matrices = assemble(pruned, tie)
+        gains = np.array([[b.open_loop_gain for b in pruned.gain_blocks]])
+        Y = system_stack(matrices, gains, np.zeros(1)).real
+        B = np.zeros((1, circuit.size, 1))
+        B[0, node - 1, 0] = 1.0
+        try:
+            X = solve(Y, B)
+        except SingularCircuit:
+            return math.inf
+        if node in tie:
+            return math.inf
+        return float(X[0, node - 1, 0])
+
+    # -- DC extremes -------------------------------------------------------------------
+    def _source_terms(self) -> list[tuple[tuple, float, float, float | None]]:
+        """Per source: (column, midpoint, half-span, AC peak gain factor or None)."""
+        terms = []
+        for i, source in enumerate(self.stage.sources):
+            if source.low is None:
+                continue
+            mid = (source.low + source.high) / 2
+            half = (source.high - source.low) / 2
+            terms.append((("source", i), mid, half, source))
+        return terms
+
+    def _swing_transfer(self, net: str, i: int, source: Source) -> float:
+        """|transfer| from source i to ``net`` for its swing: the DC transfer for a
+        range, the peak over its band for an AC amplitude."""
+        if source.amplitude is not None and source.band_high_hz:
+            frequencies = self.frequencies_hz
+            band = _band_mask(frequencies, source)
+            response = self._node_response(self._ac, net, ("source", i))
+            return float(np.max(np.abs(response[band])))
+        return abs(self.dc_transfer(net, ("source", i)))
+
+    def node_range(self, net: str) -> NodeRange:
+        """DC extremes of ``net`` over the sources' ranges, with offset and bias errors
+        (worst case: each error term adds with the sign that hurts most)."""
+        rails = self.stage.rail_voltages
+        base = sum(rails[n] * self.dc_transfer(net, ("supply", n))
+                   for n in self.circuit.supply_branch)
+        swing = 0.0
+        for column, mid, half, source in self._source_terms():
+            base += mid * self.dc_transfer(net, column)
+            swing += half * self._swing_transfer(net, column[1], source)
+        error = 0.0
+        for opamp in self.stage.opamps:
+            part = opamp.part
+            if part.offset_voltage_v:
+                error += abs(part.offset_voltage_v * self.dc_transfer(net, ("vos", opamp.ref)))
+            plus = self.dc_transfer(net, ("ib+", opamp.ref))
+            minus = self.dc_transfer(net, ("ib-", opamp.ref))
+            if part.bias_current_a:
+                error += abs(part.bias_current_a * (plus + minus))
+            if part.offset_current_a:
+                error += abs(part.offset_current_a / 2 * (plus - minus))
+        clip_low = clip_high = None
+        for opamp in self.stage.opamps:
+            if opamp.out == net:
+                clip_low = rails[opamp.v_neg] + (opamp.part.output_headroom_low_v or 0.0)
+                clip_high = rails[opamp.v_pos] - (opamp.part.output_headroom_high_v or 0.0)
+        return NodeRange(net, base - swing, base + swing, error, clip_low, clip_high)
+
+    @cached_property
+    def output_range(self) -> NodeRange:
+        """DC extremes of the stage output net."""
+        return self.node_range(self.stage.output_net)
+
+    @cached_property
+    def output_currents(self) -> dict[str, OutputCurrent]:
+        """Each op-amp's most sourced and most sunk output current over the sources'
+        ranges (load plus feedback network), nominal parts."""
+        columns, X = self._dc
+        circuit = self.circuit
+        rails = self.stage.rail_voltages
+        result = {}
+        for block in circuit.gain_blocks:
+            row = circuit.row_of_branch(circuit.gain_branch[block.ref])
+
+            def current(column: tuple) -> float:
+                return -float(X[row, columns.index(column)])
+
+            base = sum(rails[n] * current(("supply", n)) for n in circuit.supply_branch)
+            swing = 0.0
+            for column, mid, half, _source in self._source_terms():
+                base += mid * current(column)
+                swing += half * abs(current(column))
+            result[block.ref] = OutputCurrent(block.ref, max(base + swing, 0.0),
+                                              max(-(base - swing), 0.0))
+        return result
+
+    # -- summaries ---------------------------------------------------------------------
+    @property
+    def worst_phase_margin(self) -> tuple[str, float] | None:
+        """(op-amp, phase margin) of the op-amp with the smallest margin."""
+        margins = [(ref, loop.phase_margin_deg) for ref, loop in self.loops.items()
+                   if loop.phase_margin_deg is not None]
+        return min(margins, key=lambda item: item[1]) if margins else None
+
+
+def _pick(X: np.ndarray, node: int, column: int) -> np.ndarray:
+    if node == 0:
+        return np.zeros(X.shape[0], dtype=X.dtype)
+    return X[:, node - 1, column]
+
+
+def _safe_divide(a, b):
+    a = np.asarray(a, dtype=complex)
+    b = np.asarray(b, dtype=complex)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        result = a / b
+    return np.where(b == 0, np.inf, result)
+
+
+def _band_centre(source: Source) -> float | None:
+    if source.band_high_hz and source.band_low_hz:
+        return math.sqrt(source.band_low_hz * source.band_high_hz)
+    return None
+
+
+def _band_mask(frequencies: np.ndarray, source: Source) -> np.ndarray:
+    if source.band_high_hz:
+        low = source.band_low_hz or frequencies[0]
+        mask = (frequencies >= low * (1 - 1e-12)) & (frequencies <= source.band_high_hz * (1 + 1e-12))
+        if mask.any():
+            return mask
+    return np.ones(frequencies.shape, dtype=bool)
+
+
+def _bandwidth(frequencies: np.ndarray, gain: np.ndarray, at: int) -> tuple[float | None, float | None]:
+    """-3 dB edges of |gain| around index ``at`` (None where the response stays up)."""
+    magnitude = np.abs(gain)
+    reference = magnitude[at]
+    if reference == 0:
+        return None, None
+    level = reference / math.sqrt(2)
+    high = low = None
+    above = magnitude[at:]
+    i = crossing_index(above, level)
+    if i is not None:
+        log_mag = np.log10(above)
+        high = interpolate_log(frequencies[at:], above, i, math.log10(level), log_mag)
+    below = magnitude[: at + 1][::-1]
+    j = crossing_index(below, level)
+    if j is not None:
+        freqs = frequencies[: at + 1][::-1]
+        log_mag = np.log10(below)
+        low = interpolate_log(freqs, below, j, math.log10(level), log_mag)
+    return low, high

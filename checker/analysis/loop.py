@@ -1,0 +1,55 @@
+"""Loop gain by the return ratio, and the margins read from it.
+
+The return ratio of op-amp k (H. W. Bode, Network Analysis and Feedback Amplifier
+Design, 1945): replace its controlled source by an independent source of value 1,
+zero the other independent sources, and take T = -A_k(s) * v_d, the negated signal the
+source would have produced. Its margins: crossover where |T| = 1, phase margin
+180 deg + arg T there, gain margin -20 log10 |T| where arg T = -180 deg.
+
+T need not be solved on a separate matrix: the closed-loop system differs from the one
+with op-amp k's source made independent by the rank-one term A_k u v^T (u the unit
+vector of its branch row, v^T x = -(v_in+ - v_in-)). With z = v^T Y^-1 u from the
+closed-loop solve, the Sherman-Morrison identity gives w = v^T Y_open^-1 u =
+z / (1 - A_k z) and T = A_k w; w is the feedback factor beta, so 1/w is the noise gain.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+
+def return_ratio(gain: np.ndarray, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(T, beta) from A_k (F,) and the closed-loop response z (F,) (see module doc)."""
+    beta = z / (1 - gain * z)
+    return gain * beta, beta
+
+
+@dataclass(frozen=True)
+class Margins:
+    crossover_hz: float | None  # None: |T| never falls through 1 (or never reaches it)
+    phase_margin_deg: float | None
+    gain_margin_db: float | None  # None: the phase never reaches -180 deg
+    phase_crossover_hz: float | None
+
+
+def crossing_index(values: np.ndarray, level: float) -> int | None:
+    """First i with values[i] >= level > values[i + 1] (a downward crossing)."""
+    above = values >= level
+    hits = np.nonzero(above[:-1] & ~above[1:])[0]
+    return int(hits[0]) if hits.size else None
+
+
+def interpolate_log(f: np.ndarray, y: np.ndarray, i: int, target: float,
+                    x_values: np.ndarray) -> float:
+    """Frequency between f[i] and f[i+1] where x_values (monotone there) hits target,
+    linear in log f; y is not used other than for shape checks."""
+    x0, x1 = x_values[i], x_values[i + 1]
+    fraction = 0.0 if x1 == x0 else (target - x0) / (x1 - x0)
+    return float(np.exp(np.log(f[i]) + fraction * (np.log(f[i + 1]) - np.log(f[i]))))
+
+
+def unwrapped_phase_deg(T: np.ndarray) -> np.ndarray:
+    """arg T in degrees, unwrapped from the lowest frequency."""
+    return np.degrees(np.unwrap(np.angle(T)))

@@ -1,0 +1,154 @@
+"""Modified nodal analysis: stamp primitives into matrices and solve them in batches.
+
+Unknowns ``x`` (length n): node voltages for nodes 1..N-1 (ground, node 0, is the
+reference and has no row), then one current per branch (voltage sources, inductors,
+op-amp gain blocks). The system at complex frequency s is
+
+    Y(s) x = b,   Y(s) = G + s C + sum_k A_k(s) E_k
+
+with G and C real (n, n), and E_k the control pattern of op-amp k's gain block
+(row of its branch: -1 at in+, +1 at in-). Stamps follow the standard MNA formulation
+(C.-W. Ho, A. E. Ruehli, P. A. Brennan, "The modified nodal approach to network
+analysis", IEEE Trans. Circuits and Systems, 1975).
+
+Shapes: ``s`` is (F,), ``Y`` is (F, n, n), right-hand sides are (F, n, m) for m
+excitations; one ``np.linalg.solve`` call covers every frequency and excitation.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from checker.analysis.circuit import Circuit
+
+GMIN_SIEMENS = 1e-12  # tie for nets with no path to ground, as a last resort
+
+
+class SingularCircuit(Exception):
+    """The stage's equations have no unique solution; the message names the culprit."""
+
+
+@dataclass(frozen=True)
+class Matrices:
+    G: np.ndarray  # (n, n) conductances and branch incidences
+    C: np.ndarray  # (n, n) capacitances and -L of inductor branches
+    control_rows: np.ndarray  # (K,) row of each gain block's branch equation
+    control_pos: np.ndarray  # (K,) column of its in+ node, -1 for ground
+    control_neg: np.ndarray  # (K,) column of its in- node, -1 for ground
+
+
+def assemble(circuit: Circuit, tie_nodes: tuple[int, ...] = ()) -> Matrices:
+    """Stamp every primitive into G and C. ``tie_nodes`` get GMIN to ground."""
+    n = circuit.size
+    G = np.zeros((n, n))
+    C = np.zeros((n, n))
+
+    def stamp(matrix: np.ndarray, a: int, b: int, value: float) -> None:
+        ra, rb = a - 1, b - 1
+        if a:
+            matrix[ra, ra] += value
+        if b:
+            matrix[rb, rb] += value
+        if a and b:
+            matrix[ra, rb] -= value
+            matrix[rb, ra] -= value
+
+    for item in circuit.conductances:
+        stamp(G, item.a, item.b, item.siemens)
+    for item in circuit.capacitances:
+        stamp(C, item.a, item.b, item.farads)
+    for node in tie_nodes:
+        stamp(G, node, 0, GMIN_SIEMENS)
+    for k, branch in enumerate(circuit.branches):
+        row = circuit.row_of_branch(k)
+        if branch.a:
+            G[branch.a - 1, row] += 1.0
+            G[row, branch.a - 1] += 1.0
+        if branch.b:
+            G[branch.b - 1, row] -= 1.0
+            G[row, branch.b - 1] -= 1.0
+        if branch.henries:
+            C[row, row] -= branch.henries
+    rows, pos, neg = [], [], []
+    for block in circuit.gain_blocks:
+        rows.append(circuit.row_of_branch(circuit.gain_branch[block.ref]))
+        pos.append(block.in_pos - 1)
+        neg.append(block.in_neg - 1)
+    return Matrices(G, C, np.array(rows, dtype=int), np.array(pos, dtype=int),
+                    np.array(neg, dtype=int))
+
+
+def system_stack(matrices: Matrices, gains: np.ndarray, s: np.ndarray) -> np.ndarray:
+    """Y(s) for every frequency: (F, n, n) complex.
+
+    ``gains`` is (F, K): A_k(s) of each gain block at each frequency.
+    """
+    Y = matrices.G[None, :, :] + s[:, None, None] * matrices.C[None, :, :]
+    Y = Y.astype(complex, copy=False)
+    for k, row in enumerate(matrices.control_rows):
+        if matrices.control_pos[k] >= 0:
+            Y[:, row, matrices.control_pos[k]] -= gains[:, k]
+        if matrices.control_neg[k] >= 0:
+            Y[:, row, matrices.control_neg[k]] += gains[:, k]
+    return Y
+
+
+def solve(Y: np.ndarray, B: np.ndarray) -> np.ndarray:
+    """Solve Y X = B for a stack: Y (F, n, n), B (F, n, m) -> X (F, n, m)."""
+    try:
+        X = np.linalg.solve(Y, B)
+    except np.linalg.LinAlgError:
+        raise SingularCircuit("the stage's equations are singular") from None
+    if not np.all(np.isfinite(X)):
+        raise SingularCircuit("the stage's equations are singular")
+    return X
+
+
+class _Sets:
+    """Union-find over node indices."""
+
+    def __init__(self, count: int):
+        self.parent = list(range(count))
+
+    def find(self, i: int) -> int:
+        while self.parent[i] != i:
+            self.parent[i] = self.parent[self.parent[i]]
+            i = self.parent[i]
+        return i
+
+    def union(self, a: int, b: int) -> bool:
+        ra, rb = self.find(a), self.find(b)
+        if ra == rb:
+            return False
+        self.parent[ra] = rb
+        return True
+
+
+def unreferenced_nodes(circuit: Circuit, at_dc: bool) -> list[int]:
+    """Nodes with no conductive path to ground (capacitors count only when not at DC).
+
+    An op-amp's own input resistance is no path: it leads only to the other input.
+    """
+    sets = _Sets(circuit.node_count)
+    for item in circuit.conductances:
+        if not item.element.endswith(".Rin"):
+            sets.union(item.a, item.b)
+    for branch in circuit.branches:
+        sets.union(branch.a, branch.b)
+    if not at_dc:
+        for item in circuit.capacitances:
+            sets.union(item.a, item.b)
+    ground = sets.find(0)
+    return [node for node in range(1, circuit.node_count) if sets.find(node) != ground]
+
+
+def source_loops(circuit: Circuit) -> list[str]:
+    """Elements closing a loop of voltage sources and inductors (singular at DC)."""
+    sets = _Sets(circuit.node_count)
+    culprits = []
+    for branch in circuit.branches:
+        if not sets.union(branch.a, branch.b):
+            culprits.append(branch.element)
+    return culprits
