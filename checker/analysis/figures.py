@@ -289,6 +289,12 @@ class Figures:
     def _ac(self) -> np.ndarray:
         return self._solve_ac(self.frequencies_hz)
 
+    def node_response(self, net: str, column: tuple) -> np.ndarray:
+        """AC voltage at ``net`` over frequencies_hz per unit of the excitation
+        ``column``: ("source", i) for source i's EMF or current, ("output",) for 1 A
+        into the output net."""
+        return self._node_response(self._ac, net, column)
+
     def _node_response(self, X: np.ndarray, net: str, column: tuple) -> np.ndarray:
         node = self.circuit.node(net)
         if node == 0:
@@ -484,7 +490,7 @@ class Figures:
         stage = self.stage
         rails = set(stage.rail_voltages)
         for opamp in stage.opamps:
-            resistance = self._resistance_at(opamp.ref, opamp.in_neg)
+            resistance = self.resistance_at(opamp.ref, opamp.in_neg)
             part = opamp.part
             capacitance = (part.input_capacitance_cm_f or 0.0) + \
                 (part.input_capacitance_diff_f or 0.0) + self.options.stray_capacitance_f
@@ -500,7 +506,9 @@ class Figures:
             result[opamp.ref] = (resistance, capacitance, pole)
         return result
 
-    def _resistance_at(self, ref: str, net: str) -> float:
+    def resistance_at(self, ref: str, net: str) -> float:
+        """DC resistance from ``net`` to AC ground with op-amp ``ref``'s output held at
+        0 V and its input resistance removed (inf where nothing conducts)."""
         circuit = self.circuit
         node = circuit.node(net)
         if node == 0:
@@ -574,6 +582,26 @@ class Figures:
                 clip_low = rails[opamp.v_neg] + (opamp.part.output_headroom_low_v or 0.0)
                 clip_high = rails[opamp.v_pos] - (opamp.part.output_headroom_high_v or 0.0)
         return NodeRange(net, base - swing, base + swing, error, clip_low, clip_high)
+
+    def input_window(self, net: str, index: int) -> tuple[float, float] | None:
+        """The values of source ``index`` (volts or amperes) that keep ``net`` inside its
+        clip limits, the other sources over their ranges and the errors included; None
+        where the net has no clip limits or does not depend on the source."""
+        source = self.stage.sources[index]
+        node = self.node_range(net)
+        if node.clip_low is None or source.low is None:
+            return None
+        transfer = self.dc_transfer(net, ("source", index))
+        if abs(transfer) < 1e-15:
+            return None
+        mid = (source.low + source.high) / 2
+        half = (source.high - source.low) / 2
+        centre_other = (node.nominal_low + node.nominal_high) / 2 - mid * transfer
+        spread_other = (node.nominal_high - node.nominal_low) / 2 - half * abs(transfer) \
+            + node.error
+        ends = sorted(((node.clip_low + spread_other - centre_other) / transfer,
+                       (node.clip_high - spread_other - centre_other) / transfer))
+        return ends[0], ends[1]
 
     @cached_property
     def output_range(self) -> NodeRange:

@@ -33,7 +33,7 @@ def atom(value) -> str:
     if isinstance(value, (int, float)):
         return repr(value)
     text = str(value)
-    if _BARE.match(text) and not _reads_as_number(text) and text not in ("t", "nil"):
+    if _BARE.fullmatch(text) and not _reads_as_number(text) and text not in ("t", "nil"):
         return text
     return '"' + "".join(_STRING_ESCAPES.get(c, c) for c in text) + '"'
 

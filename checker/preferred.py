@@ -1,0 +1,82 @@
+"""Preferred numbers (IEC 60063): the E12, E24 and E96 series and snapping to them."""
+
+from __future__ import annotations
+
+import math
+
+# IEC 60063 lists E12 and E24 explicitly; they depart from round(10^(i/n), 1) at several
+# values (2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7, 8.2), so they are written out.
+E12 = (1.0, 1.2, 1.5, 1.8, 2.2, 2.7, 3.3, 3.9, 4.7, 5.6, 6.8, 8.2)
+E24 = (1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0,
+       3.3, 3.6, 3.9, 4.3, 4.7, 5.1, 5.6, 6.2, 6.8, 7.5, 8.2, 9.1)
+# E96 follows round(10^(i/96), 2) exactly (IEC 60063).
+E96 = tuple(round(10 ** (i / 96), 2) for i in range(96))
+
+SERIES = {"E12": E12, "E24": E24, "E96": E96}
+
+
+def series_for_tolerance(tolerance: float | None) -> str:
+    """The series a part's tolerance implies: E96 for 1 % or better, E24 for up to 5 %,
+    E12 above (common practice)."""
+    if tolerance is None:
+        return "E24"
+    if tolerance <= 0.01 + 1e-12:
+        return "E96"
+    if tolerance <= 0.05 + 1e-12:
+        return "E24"
+    return "E12"
+
+
+def _candidates(value: float, series: str) -> list[float]:
+    decade = math.floor(math.log10(value))
+    values = []
+    for exponent in (decade - 1, decade, decade + 1):
+        values.extend(m * 10.0 ** exponent for m in SERIES[series])
+    return values
+
+
+def _clean(value: float) -> float:
+    return float(f"{value:.6g}")
+
+
+def nearest(value: float, series: str = "E24") -> float:
+    """The member of ``series`` nearest to ``value`` on a log scale."""
+    return _clean(min(_candidates(value, series), key=lambda v: abs(math.log(v / value))))
+
+
+def at_least(value: float, series: str = "E12") -> float:
+    """The smallest member of ``series`` that is not below ``value``."""
+    return _clean(min(v for v in _candidates(value, series) if v >= value * (1 - 1e-9)))
+
+
+def at_most(value: float, series: str = "E24") -> float:
+    """The largest member of ``series`` that is not above ``value``."""
+    return _clean(max(v for v in _candidates(value, series) if v <= value * (1 + 1e-9)))
+
+
+def ladder(start: float, stop: float, series: str = "E12") -> list[float]:
+    """Members of ``series`` from ``start`` up to ``stop`` inclusive, ascending."""
+    values = []
+    decade = math.floor(math.log10(start))
+    while 10.0 ** decade <= stop * 10:
+        for m in SERIES[series]:
+            v = _clean(m * 10.0 ** decade)
+            if start * (1 - 1e-9) <= v <= stop * (1 + 1e-9):
+                values.append(v)
+        decade += 1
+    return values
+
+
+def smallest_passing(values: list[float], passes) -> float | None:
+    """The smallest of ascending ``values`` for which ``passes(value)`` is true, by
+    bisection (assumes once a value passes, every larger one does); None if none does."""
+    if not values or not passes(values[-1]):
+        return None
+    low, high = 0, len(values) - 1
+    while low < high:
+        middle = (low + high) // 2
+        if passes(values[middle]):
+            high = middle
+        else:
+            low = middle + 1
+    return values[low]

@@ -1,0 +1,17 @@
+"""What every reporter needs besides the results: the run's settings and totals."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from checker.findings import Finding, Severity
+
+
+@dataclass(frozen=True)
+class ReportContext:
+    tool_version: str
+    fail_on: Severity | None  # None: never fail
+    rules: dict  # id -> Rule, for documentation in machine formats
+
+    def fails(self, finding: Finding) -> bool:
+        return self.fail_on is not None and finding.severity >= self.fail_on

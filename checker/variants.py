@@ -1,0 +1,46 @@
+"""Modified copies of a stage, for verifying a suggested fix with the real solver."""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+from checker.model import Load, Passive, Stage
+
+
+def with_capacitor(stage: Stage, ref: str, net_a: str, net_b: str, farads: float) -> Stage:
+    """The stage with a capacitor of ``farads`` between two nets, replacing any existing
+    capacitor between exactly those nets."""
+    kept = [p for p in stage.passives
+            if not (p.kind == "capacitor" and set(p.nets) == {net_a, net_b})]
+    added = Passive(ref=ref, kind="capacitor", net_a=net_a, net_b=net_b, value=farads,
+                    origin=stage.origin)
+    return replace(stage, passives=tuple(kept) + (added,))
+
+
+def without_input_capacitance(stage: Stage, ref: str) -> Stage:
+    """The stage with op-amp ``ref``'s input capacitances removed."""
+    opamps = tuple(replace(o, part=replace(o.part, input_capacitance_cm_f=None,
+                                           input_capacitance_diff_f=None))
+                   if o.ref == ref else o for o in stage.opamps)
+    return replace(stage, opamps=opamps)
+
+
+def without_load_capacitance(stage: Stage) -> Stage:
+    """The stage with every load's capacitance removed."""
+    return replace(stage, loads=tuple(replace(load, capacitance_f=None) for load in stage.loads))
+
+
+def without_loads(stage: Stage) -> Stage:
+    return replace(stage, loads=tuple(Load(net=load.net, origin=load.origin)
+                                      for load in stage.loads))
+
+
+def with_isolation_resistor(stage: Stage, net: str, ohms: float, ref: str = "Riso") -> Stage:
+    """The stage with a resistor between ``net`` and a new net that now carries every load
+    on ``net``; the feedback stays on ``net`` (taken before the resistor)."""
+    isolated = f"{net}.isolated"
+    loads = tuple(replace(load, net=isolated) if load.net == net else load
+                  for load in stage.loads)
+    added = Passive(ref=ref, kind="resistor", net_a=net, net_b=isolated, value=ohms,
+                    origin=stage.origin)
+    return replace(stage, loads=loads, passives=stage.passives + (added,))

@@ -1,0 +1,149 @@
+"""The pole that the feedback network forms with the op-amp's input capacitance."""
+
+from __future__ import annotations
+
+from checker.analysis.topology import classify
+from checker.engine import rule
+from checker.findings import Severity, Suggestion
+from checker.preferred import at_least, ladder, smallest_passing
+from checker.units import format_si
+from checker.variants import with_capacitor, without_input_capacitance
+
+
+@rule("feedback-pole", "warning",
+      "The feedback resistance and the op-amp's input capacitance form a pole that eats"
+      " phase margin.",
+      error_below_deg=30.0, warn_below_deg=45.0, target_deg=60.0)
+def feedback_pole(view):
+    """
+    What it checks:
+        For every op-amp with negative feedback, the phase margin of its solved loop
+        gain (return ratio), with the part's input capacitance (common-mode plus
+        differential) and the configured stray capacitance at the inverting input. It
+        flags a margin under `warn_below_deg` (warning) or `error_below_deg` (error)
+        when the input capacitance is the cause: with that capacitance removed, the
+        margin would be at least `warn_below_deg`.
+
+    Why it matters:
+        The resistance seen at the inverting input (Rf||Rg, or the feedback resistor
+        and the sensor in a transimpedance stage) and the input capacitance make a pole
+        in the feedback factor, fp = 1/(2 pi (Rf||Rg) Cin). Near the loop's crossover
+        it adds phase lag: the stage rings, peaks, or oscillates. Large feedback
+        resistors and fast parts make it worse. Because the check reads the solved
+        loop, it applies alike to inverting, non-inverting, T-network and
+        transimpedance stages.
+
+    How the fix is computed:
+        A capacitor Cf across the feedback path puts a zero on the pole. The
+        neutralising value is Cf = Rg*Cin/Rf, rounded up to the E12 series; the rule
+        adds it to a copy of the stage, solves again and reports the margin it
+        restores. Where the neutralising value would cut the bandwidth below the
+        requirement or the source's band (a transimpedance stage with a very large
+        Rg), it instead searches the E12 values for the smallest Cf whose solved
+        margin reaches `target_deg`.
+
+    Sources:
+        R. Mancini (ed.), Op Amps for Everyone, chapter on stability (feedback pole
+        and the neutralising capacitor Cf = Rg*Cin/Rf). Phase-margin targets of 45
+        degrees minimum and 60 preferred: common practice.
+    """
+    stage, figures, settings = view.stage, view.figures, view.settings
+    for opamp in stage.opamps:
+        part = opamp.part
+        loop = figures.loops[opamp.ref]
+        if loop.feedback != "negative":
+            continue
+        if part.input_capacitance_cm_f is None and part.input_capacitance_diff_f is None:
+            yield view.cannot_check(f"the feedback pole of {opamp.ref}",
+                                    f"part {part.name} gives no input capacitance",
+                                    opamp.origin, (opamp.ref,))
+            continue
+        if part.gbw_hz is None:
+            yield view.cannot_check(f"the phase margin of {opamp.ref}",
+                                    f"part {part.name} gives no GBW", opamp.origin, (opamp.ref,))
+            continue
+        margin = loop.phase_margin_deg
+        if margin is None or margin >= settings["warn_below_deg"]:
+            continue
+        bare = view.reanalyse(without_input_capacitance(stage, opamp.ref),
+                              stray_capacitance_f=0.0)
+        bare_margin = bare.loops[opamp.ref].phase_margin_deg
+        if bare_margin is not None and bare_margin < settings["warn_below_deg"]:
+            continue  # something else costs the margin (load, compensation): other rules
+        yield _finding(view, opamp, margin, bare_margin)
+
+
+def _finding(view, opamp, margin, bare_margin):
+    stage, figures, settings = view.stage, view.figures, view.settings
+    resistance, capacitance, pole_hz = figures.inverting_input[opamp.ref]
+    topology = classify(stage, opamp)
+    feedback_resistors = [stage.element(ref) for ref in topology.feedback_elements
+                          if stage.element(ref).kind == "resistor"]
+    severity = Severity.ERROR if margin < settings["error_below_deg"] else Severity.WARNING
+    where = feedback_resistors[0] if feedback_resistors else opamp
+    elements = (opamp.ref,) + tuple(r.ref for r in feedback_resistors)
+    message = (f"{opamp.ref} ({topology.name}) has {margin:.1f}° phase margin: the"
+               f" {format_si(resistance, 'Ω')} at its inverting input and"
+               f" {format_si(capacitance, 'F')} of input capacitance put a feedback pole at"
+               f" {format_si(pole_hz, 'Hz')}, near the {format_si(figures.loops[opamp.ref].crossover_hz, 'Hz')}"
+               f" crossover (without that capacitance: {bare_margin:.0f}°)")
+    suggestion = _suggest(view, opamp, feedback_resistors, resistance, capacitance)
+    return view.finding(message, where.origin, elements=elements, severity=severity,
+                        measured=margin, limit=settings["warn_below_deg"], unit="°",
+                        suggestion=suggestion, feedback_pole_hz=pole_hz,
+                        topology=topology.name)
+
+
+def _suggest(view, opamp, feedback_resistors, resistance, capacitance):
+    stage, settings = view.stage, view.settings
+    if not feedback_resistors:
+        return Suggestion("reduce the resistance at the inverting input or choose a part"
+                          " with less input capacitance")
+    rf = feedback_resistors[0].value
+    if len(feedback_resistors) > 1:
+        rf = 1 / sum(1 / r.value for r in feedback_resistors)
+    existing = sum(p.value for p in stage.capacitors() if set(p.nets) == {opamp.out, opamp.in_neg})
+    ref = _free_designator(stage)
+
+    def solved(farads):
+        variant = with_capacitor(stage, ref, opamp.out, opamp.in_neg, farads)
+        result = view.reanalyse(variant)
+        return result.loops[opamp.ref].phase_margin_deg, result
+
+    needed_band = stage.require.bandwidth_hz or max(
+        (s.band_high_hz or 0.0 for s in stage.sources), default=0.0)
+    rg = None if resistance >= rf * (1 - 1e-9) else 1 / (1 / resistance - 1 / rf)
+    if rg is not None:
+        neutral = rg * capacitance / rf
+        chosen = at_least(max(neutral, existing * 1.0001) if existing else neutral, "E12")
+        margin, result = solved(chosen)
+        band_ok = not needed_band or not result.sources or (
+            (result.sources[0].bandwidth_high_hz or float("inf")) >= needed_band)
+        if margin is not None and margin >= settings["warn_below_deg"] and band_ok:
+            return Suggestion(
+                f"put {format_si(chosen, 'F')} ({ref}, E12) from {opamp.out} to"
+                f" {opamp.in_neg} across {feedback_resistors[0].ref}: Cf >= Rg*Cin/Rf ="
+                f" {format_si(neutral, 'F')}; solved phase margin with it {margin:.0f}°",
+                value=chosen, unit="F", element=ref)
+    start = max(existing * 1.0001, 0.1e-12)
+    values = ladder(start, 10e-6, "E12")
+    target = settings["target_deg"]
+    best = smallest_passing(values, lambda c: (solved(c)[0] or 0.0) >= target)
+    if best is None:
+        return Suggestion("no feedback capacitor up to 10 µF restores the margin: lower the"
+                          " feedback resistance or choose a slower part")
+    margin, result = solved(best)
+    bandwidth = result.sources[0].bandwidth_high_hz if result.sources else None
+    return Suggestion(
+        f"put {format_si(best, 'F')} ({ref}, E12) from {opamp.out} to {opamp.in_neg}:"
+        f" the smallest E12 value whose solved phase margin reaches {target:.0f}°"
+        f" ({margin:.0f}°; bandwidth then {format_si(bandwidth, 'Hz')})",
+        value=best, unit="F", element=ref)
+
+
+def _free_designator(stage) -> str:
+    used = {p.ref for p in stage.passives}
+    n = 1
+    while f"C{n}" in used:
+        n += 1
+    return f"C{n}"

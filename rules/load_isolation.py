@@ -1,0 +1,181 @@
+"""What the stage drives: unbuffered sources, capacitive loads, the next stage."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from checker.analysis.topology import reached_nets
+from checker.engine import rule
+from checker.findings import Severity, Suggestion
+from checker.preferred import ladder, smallest_passing
+from checker.units import format_si
+from checker.variants import with_isolation_resistor, without_load_capacitance, without_loads
+
+
+@rule("load-isolation", "warning",
+      "A load the output cannot drive without isolation: an unbuffered source, a"
+      " capacitive load, or a heavy next stage.",
+      max_loss_db=0.83, warn_below_deg=45.0, error_below_deg=30.0, target_deg=60.0,
+      max_interstage_loss_db=0.1)
+def load_isolation(view):
+    """
+    What it checks:
+        Three ways a load goes wrong. (1) A signal source reaches a load through
+        passives only, with no op-amp between: the loss from the source's EMF to the
+        load, solved with and without the load, must stay under `max_loss_db`. (2) An
+        op-amp output drives a load capacitance: with the open-loop output resistance
+        it adds a pole to the loop; the rule flags a solved phase margin under
+        `warn_below_deg` (error under `error_below_deg`) that the load capacitance
+        causes (without it the margin would pass). (3) A load that feeds the next stage
+        of the file: the divider of this stage's closed-loop output impedance and the
+        next stage's input impedance must lose less than `max_interstage_loss_db`.
+
+    Why it matters:
+        A sensor with a high source impedance loses signal into any load it drives
+        directly. A cable or a large capacitor on an op-amp output forms a pole with the
+        output resistance Ro, fp = 1/(2 pi Ro CL), that rings or oscillates the loop. A
+        stage whose input resistance is low loads the stage before it.
+
+    How the fix is computed:
+        (1) A unity-gain follower between source and load. (2) An isolation resistor
+        Riso in series with the output, outside the loop (feedback taken before it):
+        its zero at 1/(2 pi Riso CL) restores the phase; the rule searches the E24
+        values from 1 ohm for the smallest whose solved margin reaches `target_deg`,
+        and states the DC error Riso/(Riso + RL) it costs into a resistive load.
+        (3) Raise the next stage's input resistance or buffer between the stages.
+
+    Sources:
+        Capacitive-load pole 1/(2 pi Ro CL) and the isolation-resistor zero
+        1/(2 pi Riso CL): J. Karki, application report on op-amp stability (2000),
+        which also gives typical Riso of 20 to 100 ohm. Voltage-divider loss and the
+        ten-times rule (0.83 dB): common practice.
+    """
+    yield from _unbuffered_sources(view)
+    yield from _capacitive_loads(view)
+    yield from _next_stage(view)
+
+
+def _unbuffered_sources(view):
+    stage, figures, settings = view.stage, view.figures, view.settings
+    outputs = {o.out for o in stage.opamps}
+    stops = set(stage.rail_voltages) | outputs
+    loaded = [load for load in stage.loads if load.resistance_ohm or load.capacitance_f]
+    if not loaded or not figures.sources:
+        return
+    bare = None
+    for sf in figures.sources:
+        source = sf.source
+        if source.kind != "voltage" or not source.impedance_ohm:
+            continue
+        nets = reached_nets(stage, source.net, stops)
+        for load in loaded:
+            if load.net not in nets or load.net in outputs:
+                continue
+            bare = bare or view.reanalyse(without_loads(stage))
+            with_load = _response(figures, load.net, sf.index, sf.reference_hz)
+            without = _response(bare, load.net, sf.index, sf.reference_hz)
+            if not without:
+                continue
+            loss = -20 * math.log10(max(with_load / without, 1e-30))
+            if loss <= settings["max_loss_db"]:
+                continue
+            yield view.finding(
+                f"{source.name} ({format_si(source.impedance_ohm, 'Ω')}) drives the load on"
+                f" {load.net} with no buffer: it loses {loss:.2f} dB there",
+                load.origin, elements=(source.name, f"load {load.net}"), measured=loss,
+                limit=settings["max_loss_db"], unit="dB",
+                suggestion=Suggestion(f"put a unity-gain follower between {source.net} and"
+                                      f" {load.net}"))
+
+
+def _response(figures, net: str, index: int, frequency: float) -> float:
+    response = figures.node_response(net, ("source", index))
+    at = int(np.argmin(np.abs(figures.frequencies_hz - frequency)))
+    return float(abs(response[at]))
+
+
+def _capacitive_loads(view):
+    stage, figures, settings = view.stage, view.figures, view.settings
+    if not any(load.capacitance_f for load in stage.loads):
+        return
+    bare = None
+    for opamp in stage.opamps:
+        driven = [load for load in stage.loads if load.capacitance_f and load.net == opamp.out]
+        if not driven:
+            continue
+        loop = figures.loops[opamp.ref]
+        margin = loop.phase_margin_deg
+        if loop.feedback != "negative" or margin is None or margin >= settings["warn_below_deg"]:
+            continue
+        if opamp.part.output_resistance_ohm is None:
+            yield view.cannot_check(f"the capacitive load on {opamp.ref}",
+                                    f"part {opamp.part.name} gives no output resistance",
+                                    driven[0].origin, (opamp.ref,))
+            continue
+        bare = bare or view.reanalyse(without_load_capacitance(stage))
+        bare_margin = bare.loops[opamp.ref].phase_margin_deg
+        if bare_margin is not None and bare_margin < settings["warn_below_deg"]:
+            continue
+        load = driven[0]
+        pole = 1 / (2 * math.pi * opamp.part.output_resistance_ohm * load.capacitance_f) \
+            if opamp.part.output_resistance_ohm else None
+        severity = Severity.ERROR if margin < settings["error_below_deg"] else Severity.WARNING
+        yield view.finding(
+            f"{opamp.ref} drives {format_si(load.capacitance_f, 'F')} on {load.net}: with its"
+            f" {format_si(opamp.part.output_resistance_ohm, 'Ω')} output resistance that is a"
+            f" pole at {format_si(pole, 'Hz')}, and the phase margin falls to {margin:.1f}°"
+            f" (without the load capacitance {bare_margin:.0f}°)",
+            load.origin, elements=(opamp.ref, f"load {load.net}"), severity=severity,
+            measured=margin, limit=settings["warn_below_deg"], unit="°",
+            suggestion=_isolation(view, opamp, load), load_pole_hz=pole)
+
+
+def _isolation(view, opamp, load) -> Suggestion:
+    stage, settings = view.stage, view.settings
+    target = settings["target_deg"]
+
+    def margin(ohms: float) -> float:
+        variant = with_isolation_resistor(stage, opamp.out, ohms)
+        return view.reanalyse(variant).loops[opamp.ref].phase_margin_deg or 0.0
+
+    best = smallest_passing(ladder(1.0, 10e3, "E24"), lambda r: margin(r) >= target)
+    if best is None:
+        return Suggestion("no isolation resistor up to 10 kΩ restores the margin: reduce the"
+                          " load capacitance or choose a part made for capacitive loads")
+    text = (f"put {format_si(best, 'Ω')} (E24) in series between {opamp.out} and the load,"
+            f" feedback taken before it: solved phase margin {margin(best):.0f}°")
+    if load.resistance_ohm:
+        error = best / (best + load.resistance_ohm)
+        text += (f"; into the {format_si(load.resistance_ohm, 'Ω')} load it costs"
+                 f" {error * 100:.2g} % of DC accuracy")
+    return Suggestion(text, value=best, unit="Ω", element="Riso")
+
+
+def _next_stage(view):
+    stage, figures, settings = view.stage, view.figures, view.settings
+    for load in stage.loads:
+        if not load.feeds_stage or load.feeds_stage not in view.siblings:
+            continue
+        following = view.siblings[load.feeds_stage]
+        targets = [sf for sf in following.sources
+                   if load.feeds_net is None or sf.source.net == load.feeds_net][:1]
+        if not targets:
+            continue
+        target = targets[0]
+        at = int(np.argmin(np.abs(figures.frequencies_hz - target.reference_hz)))
+        z_out = complex(figures.output_impedance[at])
+        z_in = target.input_impedance_mid
+        ratio = abs(z_in / (z_in + z_out))
+        loss = -20 * math.log10(ratio)
+        if loss <= settings["max_interstage_loss_db"]:
+            continue
+        yield view.finding(
+            f"stage {following.stage.name} loads this output: its input"
+            f" {format_si(abs(z_in), 'Ω')} against this stage's"
+            f" {format_si(abs(z_out), 'Ω')} output impedance loses {loss:.2f} dB",
+            load.origin, elements=(f"load {load.net}",), measured=loss,
+            limit=settings["max_interstage_loss_db"], unit="dB",
+            suggestion=Suggestion(f"raise the input resistance of {following.stage.name} or"
+                                  " buffer between the stages"))
