@@ -48,6 +48,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     rules = commands.add_parser("rules", help="list the rules")
     rules.add_argument("--rules-dir", action="append", default=[], metavar="DIR")
+    rules.add_argument("--markdown", action="store_true",
+                       help="print the rules reference (docs/rules.md) instead")
 
     explain = commands.add_parser("explain", help="print a rule's documentation")
     explain.add_argument("rule", metavar="ID")
@@ -171,6 +173,11 @@ def cmd_rules(args) -> int:
     from checker.engine import ENGINE_RULES
     from checker.report.summary import console
 
+    if args.markdown:
+        from checker.rule_docs import rules_markdown
+
+        sys.stdout.write(rules_markdown(_rules(args.rules_dir)))
+        return EXIT_OK
     table = Table(title="Rules", title_justify="left")
     table.add_column("id", style="bold", no_wrap=True)
     table.add_column("severity")

@@ -25,6 +25,19 @@ def without_input_capacitance(stage: Stage, ref: str) -> Stage:
     return replace(stage, opamps=opamps)
 
 
+def without_inverting_input_capacitance(stage: Stage, ref: str) -> Stage:
+    """The stage with every capacitance at op-amp ``ref``'s inverting input to AC ground
+    removed: the part's input capacitances, a sensor's shunt capacitance on that net,
+    and capacitors from that net to a rail. (Stray is an analysis option: set it to 0.)"""
+    stage = without_input_capacitance(stage, ref)
+    net = next(o.in_neg for o in stage.opamps if o.ref == ref)
+    rails = set(stage.rail_voltages)
+    passives = tuple(p for p in stage.passives
+                     if not (p.kind == "capacitor" and net in p.nets and p.other(net) in rails))
+    sources = tuple(replace(s, capacitance_f=None) if s.net == net else s for s in stage.sources)
+    return replace(stage, passives=passives, sources=sources)
+
+
 def without_load_capacitance(stage: Stage) -> Stage:
     """The stage with every load's capacitance removed."""
     return replace(stage, loads=tuple(replace(load, capacitance_f=None) for load in stage.loads))

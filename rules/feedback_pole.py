@@ -7,7 +7,7 @@ from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.preferred import at_least, ladder, smallest_passing
 from checker.units import format_si
-from checker.variants import with_capacitor, without_input_capacitance
+from checker.variants import with_capacitor, without_inverting_input_capacitance
 
 
 @rule("feedback-pole", "warning",
@@ -20,9 +20,11 @@ def feedback_pole(view):
         For every op-amp with negative feedback, the phase margin of its solved loop
         gain (return ratio), with the part's input capacitance (common-mode plus
         differential) and the configured stray capacitance at the inverting input. It
-        flags a margin under `warn_below_deg` (warning) or `error_below_deg` (error)
-        when the input capacitance is the cause: with that capacitance removed, the
-        margin would be at least `warn_below_deg`.
+        flags a margin under the stage's `phase-margin` requirement, or without one
+        under `warn_below_deg` (warning), and under `error_below_deg` (error), when the
+        capacitance at the inverting input is the cause: with it removed (the part's
+        input capacitance, the stray, a sensor's capacitance and capacitors from that
+        net to a rail), the margin would pass.
 
     Why it matters:
         The resistance seen at the inverting input (Rf||Rg, or the feedback resistor
@@ -63,17 +65,25 @@ def feedback_pole(view):
                                     f"part {part.name} gives no GBW", opamp.origin, (opamp.ref,))
             continue
         margin = loop.phase_margin_deg
-        if margin is None or margin >= settings["warn_below_deg"]:
+        warn = _warn_limit(stage, settings)
+        if margin is None or margin >= warn:
             continue
-        bare = view.reanalyse(without_input_capacitance(stage, opamp.ref),
+        bare = view.reanalyse(without_inverting_input_capacitance(stage, opamp.ref),
                               stray_capacitance_f=0.0)
         bare_margin = bare.loops[opamp.ref].phase_margin_deg
-        if bare_margin is not None and bare_margin < settings["warn_below_deg"]:
+        if bare_margin is not None and bare_margin < warn:
             continue  # something else costs the margin (load, compensation): other rules
-        yield _finding(view, opamp, margin, bare_margin)
+        yield _finding(view, opamp, margin, bare_margin, warn)
 
 
-def _finding(view, opamp, margin, bare_margin):
+def _warn_limit(stage, settings) -> float:
+    """The stage's phase-margin requirement where it states one, else the setting."""
+    if stage.require.phase_margin_deg is not None:
+        return stage.require.phase_margin_deg
+    return settings["warn_below_deg"]
+
+
+def _finding(view, opamp, margin, bare_margin, warn):
     stage, figures, settings = view.stage, view.figures, view.settings
     resistance, capacitance, pole_hz = figures.inverting_input[opamp.ref]
     topology = classify(stage, opamp)
@@ -84,17 +94,17 @@ def _finding(view, opamp, margin, bare_margin):
     elements = (opamp.ref,) + tuple(r.ref for r in feedback_resistors)
     message = (f"{opamp.ref} ({topology.name}) has {margin:.1f}° phase margin: the"
                f" {format_si(resistance, 'Ω')} at its inverting input and"
-               f" {format_si(capacitance, 'F')} of input capacitance put a feedback pole at"
+               f" {format_si(capacitance, 'F')} of capacitance there put a feedback pole at"
                f" {format_si(pole_hz, 'Hz')}, near the {format_si(figures.loops[opamp.ref].crossover_hz, 'Hz')}"
                f" crossover (without that capacitance: {bare_margin:.0f}°)")
-    suggestion = _suggest(view, opamp, feedback_resistors, resistance, capacitance)
+    suggestion = _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn)
     return view.finding(message, where.origin, elements=elements, severity=severity,
-                        measured=margin, limit=settings["warn_below_deg"], unit="°",
+                        measured=margin, limit=warn, unit="°",
                         suggestion=suggestion, feedback_pole_hz=pole_hz,
                         topology=topology.name)
 
 
-def _suggest(view, opamp, feedback_resistors, resistance, capacitance):
+def _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn):
     stage, settings = view.stage, view.settings
     if not feedback_resistors:
         return Suggestion("reduce the resistance at the inverting input or choose a part"
@@ -119,7 +129,7 @@ def _suggest(view, opamp, feedback_resistors, resistance, capacitance):
         margin, result = solved(chosen)
         band_ok = not needed_band or not result.sources or (
             (result.sources[0].bandwidth_high_hz or float("inf")) >= needed_band)
-        if margin is not None and margin >= settings["warn_below_deg"] and band_ok:
+        if margin is not None and margin >= warn and band_ok:
             return Suggestion(
                 f"put {format_si(chosen, 'F')} ({ref}, E12) from {opamp.out} to"
                 f" {opamp.in_neg} across {feedback_resistors[0].ref}: Cf >= Rg*Cin/Rf ="
@@ -127,7 +137,7 @@ def _suggest(view, opamp, feedback_resistors, resistance, capacitance):
                 value=chosen, unit="F", element=ref)
     start = max(existing * 1.0001, 0.1e-12)
     values = ladder(start, 10e-6, "E12")
-    target = settings["target_deg"]
+    target = max(settings["target_deg"], warn)
     best = smallest_passing(values, lambda c: (solved(c)[0] or 0.0) >= target)
     if best is None:
         return Suggestion("no feedback capacitor up to 10 µF restores the margin: lower the"

@@ -21,7 +21,7 @@ from checker.analysis.mna import (SingularCircuit, assemble, solve, source_loops
                                   system_stack, unreferenced_nodes)
 from checker.model import Source, Stage
 
-REFINE_POINTS = 33  # points of the local grid that pins down each crossover
+REFINE_POINTS = 17  # points of the local grid that pins down each crossover
 
 
 @dataclass(frozen=True)

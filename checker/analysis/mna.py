@@ -85,8 +85,8 @@ def system_stack(matrices: Matrices, gains: np.ndarray, s: np.ndarray) -> np.nda
 
     ``gains`` is (F, K): A_k(s) of each gain block at each frequency.
     """
-    Y = matrices.G[None, :, :] + s[:, None, None] * matrices.C[None, :, :]
-    Y = Y.astype(complex, copy=False)
+    Y = s.astype(complex)[:, None, None] * matrices.C  # one pass to a fresh complex stack
+    Y += matrices.G
     for k, row in enumerate(matrices.control_rows):
         if matrices.control_pos[k] >= 0:
             Y[:, row, matrices.control_pos[k]] -= gains[:, k]

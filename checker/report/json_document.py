@@ -55,3 +55,74 @@ def document(results: list[FileResult], context: ReportContext) -> dict:
 def render(results: list[FileResult], context: ReportContext) -> str:
     return json.dumps(document(results, context), indent=2, ensure_ascii=False,
                       allow_nan=False) + "\n"
+
+
+_NUMBER = {"type": ["number", "null"]}
+_FINDING = {
+    "type": "object",
+    "required": ["rule", "severity", "message", "stage", "elements", "path", "line", "column",
+                 "measured", "limit", "unit", "suggestion"],
+    "additionalProperties": False,
+    "properties": {
+        "rule": {"type": "string"},
+        "severity": {"enum": ["error", "warning", "info"]},
+        "message": {"type": "string"},
+        "stage": {"type": ["string", "null"]},
+        "elements": {"type": "array", "items": {"type": "string"}},
+        "path": {"type": "string"},
+        "line": {"type": "integer", "minimum": 1},
+        "column": {"type": "integer", "minimum": 1},
+        "measured": _NUMBER,
+        "limit": _NUMBER,
+        "unit": {"type": ["string", "null"]},
+        "suggestion": {"oneOf": [{"type": "null"}, {
+            "type": "object", "required": ["text", "value", "unit", "element"],
+            "additionalProperties": False,
+            "properties": {"text": {"type": "string"}, "value": _NUMBER,
+                           "unit": {"type": ["string", "null"]},
+                           "element": {"type": ["string", "null"]}}}]},
+    },
+}
+STAGE_FIGURES = ("gain", "input_resistance", "output_resistance", "bandwidth", "phase_margin",
+                 "crossover", "noise_gain", "feedback_pole", "output_low", "output_high")
+REPORT_SCHEMA = {
+    "$schema": "https://json-schema.org/draft/2020-12/schema",
+    "title": "ampcheck report, version 1",
+    "type": "object",
+    "required": ["format", "version", "tool", "summary", "files"],
+    "additionalProperties": False,
+    "properties": {
+        "format": {"const": FORMAT_NAME},
+        "version": {"const": FORMAT_VERSION},
+        "tool": {"type": "object", "required": ["name", "version"],
+                 "properties": {"name": {"const": "ampcheck"}, "version": {"type": "string"}}},
+        "summary": {"type": "object",
+                    "required": ["files", "stages", "error", "warning", "info"],
+                    "additionalProperties": False,
+                    "properties": {k: {"type": "integer", "minimum": 0}
+                                   for k in ("files", "stages", "error", "warning", "info")}},
+        "files": {"type": "array", "items": {
+            "type": "object", "required": ["path", "problems", "stages"],
+            "additionalProperties": False,
+            "properties": {
+                "path": {"type": "string"},
+                "problems": {"type": "array", "items": _FINDING},
+                "stages": {"type": "array", "items": {
+                    "type": "object",
+                    "required": ["name", "line", "topology", "figures", "amplifiers", "findings"],
+                    "additionalProperties": False,
+                    "properties": {
+                        "name": {"type": "string"},
+                        "line": {"type": "integer"},
+                        "topology": {"type": ["string", "null"]},
+                        "figures": {"type": "object", "required": list(STAGE_FIGURES),
+                                    "additionalProperties": False,
+                                    "properties": {k: _NUMBER for k in STAGE_FIGURES}},
+                        "amplifiers": {"type": "object", "additionalProperties": {
+                            "type": "object",
+                            "required": ["phase_margin", "crossover", "noise_gain"]}},
+                        "findings": {"type": "array", "items": _FINDING},
+                    }}},
+            }}},
+    },
+}

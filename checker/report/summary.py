@@ -9,8 +9,12 @@ from checker.units import format_si
 
 
 def console(stderr: bool = False) -> Console:
-    """A console that honours NO_COLOR / FORCE_COLOR and goes plain off a terminal."""
-    return Console(stderr=stderr, highlight=False, soft_wrap=False)
+    """A console that honours NO_COLOR / FORCE_COLOR and goes plain off a terminal,
+    where it does not wrap lines either (one finding line stays one line for grep)."""
+    out = Console(stderr=stderr, highlight=False)
+    if not out.is_terminal:
+        out = Console(stderr=stderr, highlight=False, soft_wrap=True, width=200)
+    return out
 
 
 _PART_COLUMNS = [
