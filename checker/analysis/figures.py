@@ -486,6 +486,8 @@ class Figures:
         + stray plus capacitors and sensor capacitance from that net to a fixed net. The
         pole is 1/(2 pi R C) (R. Mancini (ed.), Op Amps for Everyone, stability chapter).
         """
+        if not self.solvable:
+            raise SingularCircuit(self.problems[0].message)
         result = {}
         stage = self.stage
         rails = set(stage.rail_voltages)
