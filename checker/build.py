@@ -43,7 +43,7 @@ class _Builder:
                                           element))
 
     def value(self, node: dict, key: str, kind: str, path: Path, where: str,
-              positive: bool = False) -> float | None:
+              positive: bool = False, signed: bool = False) -> float | None:
         if key not in node:
             return None
         try:
@@ -55,7 +55,7 @@ class _Builder:
             self.fail(path + (key,), f"{key} of {where} must be greater than zero,"
                                      f" not {node[key]!r}")
             return None
-        if kind in _NON_NEGATIVE and number < 0:
+        if kind in _NON_NEGATIVE and number < 0 and not signed:
             self.fail(path + (key,), f"{key} of {where} cannot be negative ({node[key]!r})")
             return None
         return number
@@ -161,7 +161,11 @@ class _Builder:
             low, high = min(ends), max(ends)
         if "amplitude" in node:
             amplitude = self.value(node, "amplitude", signal, path, where)
-            offset = self.value(node, "offset", signal, path, where) or 0.0
+            offset = self.value(node, "offset", signal, path, where, signed=True) or 0.0
+            if amplitude is not None and amplitude < 0:
+                self.fail(path + ("amplitude",), f"amplitude of {where} is a peak value and"
+                                                 " cannot be negative")
+                return None
             if amplitude is None:
                 return None
             low, high = offset - abs(amplitude), offset + abs(amplitude)
@@ -329,7 +333,7 @@ def build_stages(parsed: ParsedFile, library: dict[str, OpAmpPart]) -> list[Stag
                 builder.fail_at(load.origin, f"stage {target.name} has no source for load"
                                 f" at {load.net} to feed")
     if builder.problems:
-        raise InputErrors(builder.problems)
+        raise InputErrors(sorted(builder.problems, key=lambda p: (p.line, p.column)))
     return stages
 
 

@@ -100,7 +100,7 @@ def parse_value(value: object, kind: str) -> float:
     """
     quantity = QUANTITIES[kind]
     if isinstance(value, bool) or not isinstance(value, (int, float, str)):
-        raise UnitError(f"expected a {kind} value, got {value!r}")
+        raise UnitError(f"expected {_a(kind)} value, got {value!r}")
     if isinstance(value, (int, float)):
         number = float(value)
         if kind == "percentage":
@@ -119,7 +119,7 @@ def _parse_text(text: str, quantity: Quantity, kind: str) -> float:
         mantissa = float(f"{whole or '0'}.{fraction}")
         factor = _RKM_FACTORS[letter]
         if letter in "Rr" and quantity is not OHM:
-            raise UnitError(f"{text!r}: the RKM letter R marks ohms, not a {kind}")
+            raise UnitError(f"{text!r}: the RKM letter R marks ohms, not {_a(kind)}")
         if rest and rest not in quantity.spellings:
             # The RKM letter is the prefix: only a unit may follow (not 4k7k or 4n7nF).
             message = _wrong_unit(text, rest, quantity, kind)
@@ -134,7 +134,7 @@ def _parse_text(text: str, quantity: Quantity, kind: str) -> float:
         if quantity is GAIN and rest == "dB":
             return 10 ** (mantissa / 20)
         return mantissa * _suffix_factor(text, rest, quantity, kind)
-    raise UnitError(f"{text!r} is not a {kind} value (expected e.g. {_example(kind)})")
+    raise UnitError(f"{text!r} is not {_a(kind)} value (expected e.g. {_example(kind)})")
 
 
 def _suffix_factor(text: str, rest: str, quantity: Quantity, kind: str) -> float:
@@ -178,9 +178,9 @@ def _unit_factor(text: str, rest: str, quantity: Quantity, kind: str) -> float:
 def _wrong_unit(text: str, rest: str, quantity: Quantity, kind: str) -> str:
     for other_kind, other in QUANTITIES.items():
         if other is not quantity and any(rest.endswith(s) for s in other.spellings if s):
-            return (f"{text!r} is a {other_kind}, but this place takes a {kind}"
+            return (f"{text!r} is {_a(other_kind)}, but this place takes {_a(kind)}"
                     f" (e.g. {_example(kind)})")
-    return f"{text!r}: unknown unit or prefix {rest!r} for a {kind} (e.g. {_example(kind)})"
+    return f"{text!r}: unknown unit or prefix {rest!r} for {_a(kind)} (e.g. {_example(kind)})"
 
 
 _EXAMPLES = {
@@ -200,6 +200,11 @@ _EXAMPLES = {
     "gain": "-10 or 100dB",
     "temperature": "300K",
 }
+
+
+def _a(kind: str) -> str:
+    """The kind with its indefinite article: 'an angle', 'a voltage'."""
+    return f"{'an' if kind[0] in 'aeiou' else 'a'} {kind}"
 
 
 def _example(kind: str) -> str:

@@ -2,7 +2,7 @@
 
 Both syntaxes mean the same plain tree (dicts, lists, strings and numbers). This table
 says how each s-expression form maps onto that tree, so one small walker converts in both
-directions (see sexp_reader and sexp_writer). The JSON Schema in ``stage.schema.json``
+directions (see sexp_reader and sexp_writer). The JSON Schema built from this table (``schema.py``)
 then validates the tree whichever syntax it came from.
 
 A form is ``(keyword positional... (child ...)...)``:

@@ -112,6 +112,8 @@ def stage_schema() -> dict:
     defs["designator"] = {"type": "string", "pattern": r"^[A-Za-z][A-Za-z0-9_]*$",
                           "description": "A reference designator such as R1 or U2."}
     document = _form_schema("document", FORMS["document"])
+    # Editors like to point a JSON file at its schema; the key carries no meaning here.
+    document["properties"]["$schema"] = {"type": "string"}
     return {
         "$schema": "https://json-schema.org/draft/2020-12/schema",
         "$id": SCHEMA_ID,
@@ -142,7 +144,7 @@ def validate(tree: dict, positions: dict[Path, Position], path: str) -> list[Inp
             continue
         pos = locate(positions, node_path)
         problems.append(InputProblem(path, pos.line, pos.column, message))
-    return problems
+    return sorted(problems, key=lambda p: (p.line, p.column))
 
 
 def describe(tree, path: Path) -> str:
@@ -160,8 +162,10 @@ def describe(tree, path: Path) -> str:
         if isinstance(step, int) and i > 0 and isinstance(node, dict):
             kind = kinds.get(path[i - 1], path[i - 1])
             label = node.get("ref") or node.get("name")
-            if label is None and node.get("net") is not None:
-                label = f"on net {node['net']}"
+            if isinstance(label, str):
+                label = repr(label)
+            elif node.get("net") is not None:
+                label = f"on net {node['net']!r}"
             parts.append(f"{kind} {label or '#' + str(step + 1)}")
         elif step == "require":
             parts.append("require")
@@ -192,17 +196,34 @@ def _message(error, tree, node_path: Path) -> str:
     if error.validator == "not":
         return f"{where}: give either 'range' or 'amplitude', not both"
     if error.validator == "pattern":
+        if error.schema.get("pattern", "").startswith("^[A-Za-z][A-Za-z0-9_]*"):
+            return (f"{field} {error.instance!r} in {where} is not a designator: a letter,"
+                    " then letters, digits or _ (R1, U2, C_IN)")
         return f"{field} {error.instance!r} in {where} is not a valid name (letters, digits, _ . + - /)"
     if error.validator in ("minItems", "maxItems"):
         return f"{field} in {where} takes exactly 2 items"
     if error.validator in ("enum", "const"):
         allowed = error.validator_value if error.validator == "enum" else [error.validator_value]
-        return f"{field} in {where} must be one of {', '.join(map(repr, allowed))}, not {error.instance!r}"
+        return (f"{field} in {where} must be one of {', '.join(map(repr, allowed))},"
+                f" not {_show(error.instance)}")
     if error.validator == "type":
-        return f"{field} in {where} must be {_type_words(error.validator_value)}, not {error.instance!r}"
+        hint = ""
+        if isinstance(error.instance, (int, float)) and not isinstance(error.instance, bool) \
+                and "string" in str(error.validator_value):
+            hint = f' (a name that looks like a number needs quotes: "{error.instance}")'
+        return (f"{field} in {where} must be {_type_words(error.validator_value)},"
+                f" not {_show(error.instance)}{hint}")
     if error.validator == "minLength":
         return f"{field} in {where} is empty"
     return f"{where}: {error.message}"
+
+
+def _show(value) -> str:
+    """A value as the JSON reader would write it, cut short when long."""
+    import json
+
+    text = json.dumps(value, ensure_ascii=False)
+    return text if len(text) <= 60 else text[:57] + "..."
 
 
 def _type_words(types) -> str:
