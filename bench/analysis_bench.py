@@ -75,10 +75,10 @@ def breakdown(stage, points: int = 200) -> dict[str, float]:
 
     def assembly():
         matrices = assemble(circuit)
-        system_stack(matrices, figures._gains(frequencies), s)
+        system_stack(matrices, figures.open_loop_gains(frequencies), s)
 
     matrices = assemble(circuit)
-    Y = system_stack(matrices, figures._gains(frequencies), s)
+    Y = system_stack(matrices, figures.open_loop_gains(frequencies), s)
     rhs = np.broadcast_to(B, (frequencies.size,) + B.shape)
 
     def batched_solve():

@@ -123,7 +123,7 @@ class _Builder:
         if "params" in node:
             overrides = self.part_values(node["params"], path + ("params",), f"op-amp {ref}")
             if part is None:
-                part = OpAmpPart(name=f"{ref} (inline)", origin=self.origin(path + ("params",)),
+                part = OpAmpPart(name="inline", origin=self.origin(path + ("params",)),
                                  **overrides)
             else:
                 part = replace(part, name=f"{part.name} (adjusted)", **overrides)

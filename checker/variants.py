@@ -48,6 +48,12 @@ def without_loads(stage: Stage) -> Stage:
                                       for load in stage.loads))
 
 
+def with_resistance(stage: Stage, ref: str, ohms: float) -> Stage:
+    """The stage with resistor ``ref`` changed to ``ohms``."""
+    return replace(stage, passives=tuple(replace(p, value=ohms) if p.ref == ref else p
+                                         for p in stage.passives))
+
+
 def with_isolation_resistor(stage: Stage, net: str, ohms: float, ref: str = "Riso") -> Stage:
     """The stage with a resistor between ``net`` and a new net that now carries every load
     on ``net``; the feedback stays on ``net`` (taken before the resistor)."""

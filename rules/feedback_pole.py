@@ -55,10 +55,10 @@ def feedback_pole(view):
         loop = figures.loops[opamp.ref]
         if loop.feedback != "negative":
             continue
-        if part.input_capacitance_cm_f is None and part.input_capacitance_diff_f is None:
-            yield view.cannot_check(f"the feedback pole of {opamp.ref}",
-                                    f"part {part.name} gives no input capacitance",
-                                    opamp.origin, (opamp.ref,))
+        unknown_cin = (part.input_capacitance_cm_f is None
+                       and part.input_capacitance_diff_f is None)
+        if unknown_cin and part.gbw_hz is None:
+            yield _no_input_capacitance(view, opamp)
             continue
         if part.gbw_hz is None:
             yield view.cannot_check(f"the phase margin of {opamp.ref}",
@@ -67,13 +67,23 @@ def feedback_pole(view):
         margin = loop.phase_margin_deg
         warn = _warn_limit(stage, settings)
         if margin is None or margin >= warn:
+            if unknown_cin:  # the part's own capacitance could still cost the margin
+                yield _no_input_capacitance(view, opamp)
             continue
+        # An unknown part capacitance only adds to what is there: a margin that already
+        # fails with the known capacitance (a sensor's, the stray) fails for certain.
         bare = view.reanalyse(without_inverting_input_capacitance(stage, opamp.ref),
                               stray_capacitance_f=0.0)
         bare_margin = bare.loops[opamp.ref].phase_margin_deg
         if bare_margin is not None and bare_margin < warn:
             continue  # something else costs the margin (load, compensation): other rules
         yield _finding(view, opamp, margin, bare_margin, warn)
+
+
+def _no_input_capacitance(view, opamp):
+    return view.cannot_check(f"the feedback pole of {opamp.ref}",
+                             f"part {opamp.part.name} gives no input capacitance",
+                             opamp.origin, (opamp.ref,))
 
 
 def _warn_limit(stage, settings) -> float:
@@ -113,7 +123,8 @@ def _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn):
     if len(feedback_resistors) > 1:
         rf = 1 / sum(1 / r.value for r in feedback_resistors)
     existing = sum(p.value for p in stage.capacitors() if set(p.nets) == {opamp.out, opamp.in_neg})
-    ref = _free_designator(stage)
+    present = [p for p in stage.capacitors() if set(p.nets) == {opamp.out, opamp.in_neg}]
+    ref = present[0].ref if present else _free_designator(stage)
 
     def solved(farads):
         variant = with_capacitor(stage, ref, opamp.out, opamp.in_neg, farads)
@@ -131,8 +142,8 @@ def _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn):
             (result.sources[0].bandwidth_high_hz or float("inf")) >= needed_band)
         if margin is not None and margin >= warn and band_ok:
             return Suggestion(
-                f"put {format_si(chosen, 'F')} ({ref}, E12) from {opamp.out} to"
-                f" {opamp.in_neg} across {feedback_resistors[0].ref}: Cf >= Rg*Cin/Rf ="
+                f"{_placing(stage, opamp, chosen, ref)} across {feedback_resistors[0].ref}:"
+                f" Cf >= Rg*Cin/Rf ="
                 f" {format_si(neutral, 'F')}; solved phase margin with it {margin:.0f}°",
                 value=chosen, unit="F", element=ref)
     start = max(existing * 1.0001, 0.1e-12)
@@ -145,10 +156,18 @@ def _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn):
     margin, result = solved(best)
     bandwidth = result.sources[0].bandwidth_high_hz if result.sources else None
     return Suggestion(
-        f"put {format_si(best, 'F')} ({ref}, E12) from {opamp.out} to {opamp.in_neg}:"
+        f"{_placing(stage, opamp, best, ref)}:"
         f" the smallest E12 value whose solved phase margin reaches {target:.0f}°"
         f" ({margin:.0f}°; bandwidth then {format_si(bandwidth, 'Hz')})",
         value=best, unit="F", element=ref)
+
+
+def _placing(stage, opamp, farads: float, ref: str) -> str:
+    """'raise C1 to 820 fF' where a capacitor is there already, else 'put ... from ... to'."""
+    existing = [p for p in stage.capacitors() if set(p.nets) == {opamp.out, opamp.in_neg}]
+    if existing:
+        return f"raise {existing[0].ref} to {format_si(farads, 'F')} (E12)"
+    return f"put {format_si(farads, 'F')} ({ref}, E12) from {opamp.out} to {opamp.in_neg}"
 
 
 def _free_designator(stage) -> str:

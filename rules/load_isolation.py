@@ -11,7 +11,8 @@ from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.preferred import ladder, smallest_passing
 from checker.units import format_si
-from checker.variants import with_isolation_resistor, without_load_capacitance, without_loads
+from checker.variants import (with_isolation_resistor, with_resistance,
+                              without_load_capacitance, without_loads)
 
 
 @rule("load-isolation", "warning",
@@ -25,10 +26,11 @@ def load_isolation(view):
         Three ways a load goes wrong. (1) A signal source reaches a load through
         passives only, with no op-amp between: the loss from the source's EMF to the
         load, solved with and without the load, must stay under `max_loss_db`. (2) An
-        op-amp output drives a load capacitance: with the open-loop output resistance
-        it adds a pole to the loop; the rule flags a solved phase margin under
-        `warn_below_deg` (error under `error_below_deg`) that the load capacitance
-        causes (without it the margin would pass). (3) A load that feeds the next stage
+        op-amp output drives a load capacitance, directly or behind one series resistor:
+        with the open-loop output resistance it adds a pole to the loop; the rule flags
+        a solved phase margin under the stage's `phase-margin` requirement, or without
+        one under `warn_below_deg` (error under `error_below_deg`), that the load
+        capacitance causes (without it the margin would pass). (3) A load that feeds the next stage
         of the file: the divider of this stage's closed-loop output impedance and the
         next stage's input impedance must lose less than `max_interstage_loss_db`.
 
@@ -42,7 +44,8 @@ def load_isolation(view):
         (1) A unity-gain follower between source and load. (2) An isolation resistor
         Riso in series with the output, outside the loop (feedback taken before it):
         its zero at 1/(2 pi Riso CL) restores the phase; the rule searches the E24
-        values from 1 ohm for the smallest whose solved margin reaches `target_deg`,
+        values from 1 ohm (or from the series resistor already there) for the smallest
+        whose solved margin reaches `target_deg`,
         and states the DC error Riso/(Riso + RL) it costs into a resistive load.
         (3) Raise the next stage's input resistance or buffer between the stages.
 
@@ -81,13 +84,14 @@ def _unbuffered_sources(view):
             loss = -20 * math.log10(max(with_load / without, 1e-30))
             if loss <= settings["max_loss_db"]:
                 continue
+            where = (f"before the load on {load.net}" if load.net == source.net
+                     else f"between {source.net} and {load.net}")
             yield view.finding(
                 f"{source.name} ({format_si(source.impedance_ohm, 'Ω')}) drives the load on"
                 f" {load.net} with no buffer: it loses {loss:.2f} dB there",
                 load.origin, elements=(source.name, f"load {load.net}"), measured=loss,
                 limit=settings["max_loss_db"], unit="dB",
-                suggestion=Suggestion(f"put a unity-gain follower between {source.net} and"
-                                      f" {load.net}"))
+                suggestion=Suggestion(f"buffer the source with a unity-gain follower {where}"))
 
 
 def _response(figures, net: str, index: int, frequency: float) -> float:
@@ -96,18 +100,36 @@ def _response(figures, net: str, index: int, frequency: float) -> float:
     return float(abs(response[at]))
 
 
+def _driven_loads(stage, opamp) -> list[tuple]:
+    """(load, series resistor or None) for each capacitive load on this op-amp's output or
+    behind one resistor from it."""
+    found = []
+    for load in stage.loads:
+        if not load.capacitance_f:
+            continue
+        if load.net == opamp.out:
+            found.append((load, None))
+            continue
+        series = [p for p in stage.resistors() if set(p.nets) == {opamp.out, load.net}]
+        if series:
+            found.append((load, series[0]))
+    return found
+
+
 def _capacitive_loads(view):
     stage, figures, settings = view.stage, view.figures, view.settings
     if not any(load.capacitance_f for load in stage.loads):
         return
     bare = None
+    warn = stage.require.phase_margin_deg if stage.require.phase_margin_deg is not None \
+        else settings["warn_below_deg"]
     for opamp in stage.opamps:
-        driven = [load for load in stage.loads if load.capacitance_f and load.net == opamp.out]
+        driven = _driven_loads(stage, opamp)
         if not driven:
             continue
         loop = figures.loops[opamp.ref]
         margin = loop.phase_margin_deg
-        if loop.feedback != "negative" or margin is None or margin >= settings["warn_below_deg"]:
+        if loop.feedback != "negative" or margin is None or margin >= warn:
             continue
         if opamp.part.output_resistance_ohm is None:
             yield view.cannot_check(f"the capacitive load on {opamp.ref}",
@@ -116,41 +138,49 @@ def _capacitive_loads(view):
             continue
         bare = bare or view.reanalyse(without_load_capacitance(stage))
         bare_margin = bare.loops[opamp.ref].phase_margin_deg
-        if bare_margin is not None and bare_margin < settings["warn_below_deg"]:
+        if bare_margin is not None and bare_margin < warn:
             continue
-        load = driven[0]
+        load, series = driven[0]
         pole = 1 / (2 * math.pi * opamp.part.output_resistance_ohm * load.capacitance_f) \
             if opamp.part.output_resistance_ohm else None
         severity = Severity.ERROR if margin < settings["error_below_deg"] else Severity.WARNING
+        behind = f" behind {series.ref}" if series else ""
         yield view.finding(
-            f"{opamp.ref} drives {format_si(load.capacitance_f, 'F')} on {load.net}: with its"
+            f"{opamp.ref} drives {format_si(load.capacitance_f, 'F')} on {load.net}{behind}:"
+            f" with its"
             f" {format_si(opamp.part.output_resistance_ohm, 'Ω')} output resistance that is a"
             f" pole at {format_si(pole, 'Hz')}, and the phase margin falls to {margin:.1f}°"
             f" (without the load capacitance {bare_margin:.0f}°)",
             load.origin, elements=(opamp.ref, f"load {load.net}"), severity=severity,
-            measured=margin, limit=settings["warn_below_deg"], unit="°",
-            suggestion=_isolation(view, opamp, load), load_pole_hz=pole)
+            measured=margin, limit=warn, unit="°",
+            suggestion=_isolation(view, opamp, load, series, warn), load_pole_hz=pole)
 
 
-def _isolation(view, opamp, load) -> Suggestion:
+def _isolation(view, opamp, load, series, warn) -> Suggestion:
     stage, settings = view.stage, view.settings
-    target = settings["target_deg"]
+    target = max(settings["target_deg"], warn)
+
+    def variant(ohms: float):
+        if series is None:
+            return with_isolation_resistor(stage, opamp.out, ohms)
+        return with_resistance(stage, series.ref, ohms)
 
     def margin(ohms: float) -> float:
-        variant = with_isolation_resistor(stage, opamp.out, ohms)
-        return view.reanalyse(variant).loops[opamp.ref].phase_margin_deg or 0.0
+        return view.reanalyse(variant(ohms)).loops[opamp.ref].phase_margin_deg or 0.0
 
-    best = smallest_passing(ladder(1.0, 10e3, "E24"), lambda r: margin(r) >= target)
+    start = series.value * 1.0001 if series else 1.0
+    best = smallest_passing(ladder(start, 10e3, "E24"), lambda r: margin(r) >= target)
     if best is None:
         return Suggestion("no isolation resistor up to 10 kΩ restores the margin: reduce the"
                           " load capacitance or choose a part made for capacitive loads")
-    text = (f"put {format_si(best, 'Ω')} (E24) in series between {opamp.out} and the load,"
-            f" feedback taken before it: solved phase margin {margin(best):.0f}°")
+    where = (f"raise {series.ref} to {format_si(best, 'Ω')} (E24)" if series else
+             f"put {format_si(best, 'Ω')} (E24) in series between {opamp.out} and the load")
+    text = f"{where}, feedback taken before it: solved phase margin {margin(best):.0f}°"
     if load.resistance_ohm:
         error = best / (best + load.resistance_ohm)
         text += (f"; into the {format_si(load.resistance_ohm, 'Ω')} load it costs"
                  f" {error * 100:.2g} % of DC accuracy")
-    return Suggestion(text, value=best, unit="Ω", element="Riso")
+    return Suggestion(text, value=best, unit="Ω", element=series.ref if series else "Riso")
 
 
 def _next_stage(view):

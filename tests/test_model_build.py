@@ -135,7 +135,7 @@ def test_params_alone_make_an_inline_part():
     text = STAGE.replace("(part gp-bipolar)", "(params (gbw 2MHz) (open-loop-gain 100dB))")
     (stage,) = build(text)
     part = stage.element("U1").part
-    assert part.name == "U1 (inline)"
+    assert part.name == "inline"
     assert part.gbw_hz == approx(2e6)  # SI prefix definition: M = 1e6
     assert part.open_loop_gain == approx(1e5)  # decibel: 10 ** (100 / 20)
     assert part.slew_rate_v_per_s is None

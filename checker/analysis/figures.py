@@ -235,7 +235,8 @@ class Figures:
         grid = np.logspace(math.log10(low), math.log10(high), self.options.points)
         return np.unique(np.concatenate([grid, extra]))
 
-    def _gains(self, frequencies: np.ndarray) -> np.ndarray:
+    def open_loop_gains(self, frequencies: np.ndarray) -> np.ndarray:
+        """A_k(j 2 pi f) of every op-amp: (F, K) complex."""
         s = 2j * np.pi * frequencies
         blocks = self.circuit.gain_blocks
         return np.stack([block.gain(s) for block in blocks], axis=1) if blocks else \
@@ -271,19 +272,26 @@ class Figures:
 
     def _solve_ac(self, frequencies: np.ndarray, only: list[tuple] | None = None) -> np.ndarray:
         """X (F, n, m) for the given frequencies and columns (all by default)."""
-        if not self.solvable:
-            raise SingularCircuit(self.problems[0].message)
         columns, B = self._ac_columns
         if only is not None:
             B = B[:, [columns.index(name) for name in only]]
-        matrices = self._ac_matrices
-        s = 2j * np.pi * frequencies
-        Y = system_stack(matrices, self._gains(frequencies), s)
-        return solve(Y, np.broadcast_to(B, (frequencies.size,) + B.shape))
+        return self.solve_columns(frequencies, B)
 
     @cached_property
-    def _ac_matrices(self):
+    def ac_matrices(self):
+        """G, C and the gain-block pattern of the AC system (floating nets tied)."""
         return self._matrices(at_dc=False)
+
+    def solve_columns(self, frequencies: np.ndarray, B: np.ndarray) -> np.ndarray:
+        """Solve the AC system at ``frequencies`` (F,) for right-hand sides ``B``, either
+        (n, m) for every frequency or (F, n, m); returns X (F, n, m)."""
+        if not self.solvable:
+            raise SingularCircuit(self.problems[0].message)
+        s = 2j * np.pi * frequencies
+        Y = system_stack(self.ac_matrices, self.open_loop_gains(frequencies), s)
+        if B.ndim == 2:
+            B = np.broadcast_to(B, (frequencies.size,) + B.shape)
+        return solve(Y, B)
 
     @cached_property
     def _ac(self) -> np.ndarray:
@@ -333,7 +341,7 @@ class Figures:
             column(("ib-", block.ref), {block.in_neg - 1: -1.0} if block.in_neg else {})
             column(("loop", block.ref), {row: 1.0})
         matrices = self._matrices(at_dc=True)
-        gains = self._gains(np.zeros(1)).real
+        gains = self.open_loop_gains(np.zeros(1)).real
         Y = system_stack(matrices, gains, np.zeros(1)).real
         X = solve(Y, np.stack(B, axis=1)[None])[0]
         return columns, X
@@ -350,7 +358,7 @@ class Figures:
         """Loop gain, noise gain and margins of every op-amp, by designator."""
         result = {}
         frequencies = self.frequencies_hz
-        gains = self._gains(frequencies)
+        gains = self.open_loop_gains(frequencies)
         dc_columns, X_dc = self._dc
         for k, block in enumerate(self.circuit.gain_blocks):
             z = self._loop_z(self._ac, block, ("loop", block.ref))
@@ -395,7 +403,7 @@ class Figures:
         """Crossover frequency and unwrapped phase there, from a fine local solve."""
         local = np.geomspace(frequencies[i], frequencies[i + 1], REFINE_POINTS)
         X = self._solve_ac(local, only=[("loop", block.ref)])
-        gain = self._gains(local)[:, k]
+        gain = self.open_loop_gains(local)[:, k]
         z = -(_pick(X, block.in_pos, 0) - _pick(X, block.in_neg, 0))
         T_local, _ = return_ratio(gain, z)
         local_phase = unwrapped_phase_deg(T_local)

@@ -18,7 +18,7 @@ def console(stderr: bool = False) -> Console:
 
 
 _PART_COLUMNS = [
-    ("GBW", "gbw_hz", "Hz"), ("A0", "open_loop_gain", ""), ("SR", "slew_rate_v_per_s", "V/s"),
+    ("GBW", "gbw_hz", "Hz"), ("A0", "open_loop_gain", ""), ("SR V/µs", None, None),
     ("Vos", "offset_voltage_v", "V"), ("Ib", "bias_current_a", "A"),
     ("Cin cm/diff", None, None), ("Ro", "output_resistance_ohm", "Ω"),
     ("headroom", "output_headroom_high_v", "V"), ("Iout", "output_current_a", "A"),
@@ -29,8 +29,7 @@ _PART_COLUMNS = [
 
 def print_parts(library: dict) -> None:
     table = Table(title="Op-amp parts", title_justify="left")
-    table.add_column("name", style="bold")
-    table.add_column("class")
+    table.add_column("name (class)")
     for heading, _attr, _unit in _PART_COLUMNS:
         table.add_column(heading, justify="right")
     for name in sorted(library):
@@ -40,12 +39,16 @@ def print_parts(library: dict) -> None:
             if _heading == "Cin cm/diff":
                 cells.append(f"{_short(part.input_capacitance_cm_f, 'F')}/"
                              f"{_short(part.input_capacitance_diff_f, 'F')}")
+            elif _heading == "SR V/µs":
+                rate = part.slew_rate_v_per_s
+                cells.append("—" if rate is None else f"{rate / 1e6:.3g}")
             elif _heading == "supply":
                 cells.append(f"{_short(part.supply_min_v, 'V')}–{_short(part.supply_max_v, 'V')}")
             else:
                 cells.append(_short(getattr(part, attr), unit))
         origin = "" if part.builtin else " *"
-        table.add_row(name + origin, part.family or "", *cells)
+        label = f"[bold]{name}{origin}[/]" + (f"\n[dim]{part.family}[/]" if part.family else "")
+        table.add_row(label, *cells)
     out = console()
     out.print(table)
     out.print("Built-in parts are generic classes with typical values, not real parts."

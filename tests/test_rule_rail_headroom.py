@@ -1,0 +1,189 @@
+"""The rail-headroom rule: the output against the rails, the inputs against the
+common-mode range.
+
+The worst-case output is worked by hand for an inverting stage about a reference rail
+Vref, Rg = R1, Rf = R2, input Vin:
+
+* nominal output, with the finite open-loop gain A0 of the op-amp:
+  Vout = ((1 + Rf/Rg) Vref - (Rf/Rg) Vin) * A0/(A0 + 1 + Rf/Rg)
+  (superposition; finite-gain closed form from Sedra and Smith, Microelectronic
+  Circuits, op-amp chapter);
+* DC error at the output, worst case: the offset voltage times the noise gain plus the
+  larger bias current times the feedback resistor,
+  Vos (1 + Rf/Rg) + (Ib + Ios/2) Rf
+  (Eggleston, Basic Electronics for Scientists and Engineers, section 6.4, DC error
+  terms of the op-amp);
+* the usable swing is each rail less the part's output headroom.
+"""
+
+from __future__ import annotations
+
+import pytest
+from rule_helpers import findings, line_of, only, params
+
+from checker.findings import Severity
+
+RULE = "rail-headroom"
+VOLT_TOLERANCE = 1e-4  # 0.1 mV
+
+# A general-purpose bipolar class op-amp, given inline so every number is in view.
+A0 = 1e6
+VOS, IB, IOS = 2e-3, 80e-9, 20e-9
+HEADROOM = 1.5
+OPAMP = params(open_loop_gain=A0, gbw=1e6, offset_voltage=VOS, bias_current=IB,
+               offset_current=IOS, output_headroom_high=HEADROOM,
+               output_headroom_low=HEADROOM, input_range_low="2V", input_range_high="-2V")
+VCC, VREF, RG, RF = 12.0, 6.0, 10e3, 150e3
+
+
+def level_gain(low: float, high: float, require: str = "") -> str:
+    """Gain -15 about a 6 V reference on a 12 V single supply; U1 is on line 4."""
+    return f"""
+        (version 1)
+        (stage level-gain
+          (ground gnd) (supply vcc 12V) (supply ref 6V)
+          (opamp U1 {OPAMP} (in+ ref) (in- fb) (out out) (v+ vcc) (v- gnd))
+          (resistor R1 in fb 10k)
+          (resistor R2 fb out 150k)
+          (source in (range {low!r} {high!r}) (band 0Hz 5Hz))
+          (load out (resistance 10k))
+          {require})
+        """
+
+
+def nominal_out(vin: float) -> float:
+    """((1 + Rf/Rg) Vref - (Rf/Rg) Vin) * A0/(A0 + 1 + Rf/Rg)."""
+    noise_gain = 1 + RF / RG
+    return (noise_gain * VREF - RF / RG * vin) * A0 / (A0 + noise_gain)
+
+
+def dc_error() -> float:
+    """Vos (1 + Rf/Rg) + (Ib + Ios/2) Rf (Eggleston, section 6.4): 45.5 mV here."""
+    noise_gain = (1 + RF / RG) * A0 / (A0 + 1 + RF / RG)
+    return VOS * noise_gain + (IB + IOS / 2) * RF
+
+
+def test_output_well_inside_the_swing_passes():
+    # 5.8 V to 6.2 V gives 9 V to 3 V, 1.5 V from each limit.
+    assert findings(level_gain(5.8, 6.2), RULE) == []
+
+
+def test_output_beyond_the_swing_clips_as_an_error():
+    text = level_gain(5.65, 6.4)
+    finding = only(text, RULE)
+    # 6.4 V in asks for 0 V out, 45.5 mV lower with the errors; the usable swing ends
+    # at 0 V + 1.5 V.
+    expected = nominal_out(6.4) - dc_error()
+    assert finding.rule == RULE
+    assert finding.severity is Severity.ERROR
+    assert finding.elements == ("U1",)
+    assert finding.line == 4 == line_of(text, "(opamp U1")
+    assert finding.column == 3
+    assert finding.unit == "V"
+    assert finding.measured == pytest.approx(expected, abs=VOLT_TOLERANCE)
+    assert finding.limit == pytest.approx(0 + HEADROOM)
+    assert finding.details["usable_high"] == pytest.approx(VCC - HEADROOM)
+
+
+def test_worst_case_error_is_offset_times_noise_gain_plus_bias_times_rf():
+    finding = only(level_gain(5.65, 6.4), RULE)
+    assert dc_error() == pytest.approx(0.0455, abs=1e-4)
+    assert "±45.5 mV" in finding.message
+
+
+def test_output_within_the_margin_of_the_swing_is_a_warning():
+    # 6.295 V in gives 1.575 V out, 1.5295 V with the errors: 29.5 mV above the 1.5 V
+    # limit, inside the default 0.1 V margin.
+    text = level_gain(5.75, 6.295)
+    finding = only(text, RULE)
+    expected = nominal_out(6.295) - dc_error()
+    assert 0 < expected - 1.5 < 0.1
+    assert finding.severity is Severity.WARNING
+    assert finding.elements == ("U1",)
+    assert finding.line == line_of(text, "(opamp U1")
+    assert finding.measured == pytest.approx(expected, abs=VOLT_TOLERANCE)
+    assert finding.limit == pytest.approx(1.5)
+
+
+def test_headroom_requirement_widens_the_margin():
+    # 5.72 V to 6.28 V: 1.7545 V to 10.2455 V, 0.2545 V inside each limit: clear of the
+    # default 0.1 V margin, inside a stated 0.5 V.
+    assert findings(level_gain(5.72, 6.28), RULE) == []
+    finding = only(level_gain(5.72, 6.28, require="(require (headroom 0.5V))"), RULE)
+    assert finding.severity is Severity.WARNING
+
+
+def test_suggested_input_window_is_the_range_that_fits():
+    finding = only(level_gain(5.65, 6.4), RULE)
+    # Solve Vout(Vin) -/+ error = limit for Vin: 6 -/+ (4.5 V - 45.5 mV)/15.
+    low = VREF - (VCC - HEADROOM - dc_error() - VREF) / (RF / RG)
+    high = VREF + (VREF - HEADROOM - dc_error()) / (RF / RG)
+    assert low == pytest.approx(5.703, abs=1e-3) and high == pytest.approx(6.297, abs=1e-3)
+    assert "from 5.7 V to 6.3 V" in finding.suggestion.text
+
+
+def test_inputs_inside_the_suggested_window_no_longer_clip():
+    # The window of the previous test (5.703 V to 6.297 V), 1 mV inside each end: the
+    # output then sits just inside its limits, so a near-rail warning may remain, but
+    # nothing clips.
+    remaining = findings(level_gain(5.704, 6.296), RULE)
+    assert [f.severity for f in remaining if f.severity is Severity.ERROR] == []
+
+
+def test_single_supply_follower_input_above_the_common_mode_range():
+    # Input range up to 1.5 V below v+: on 5 V the input may reach 3.5 V; it reaches 4.5 V.
+    opamp = params(open_loop_gain=1e5, gbw=1e6, output_headroom_high="50mV",
+                   output_headroom_low="50mV", input_range_low="-0.1V",
+                   input_range_high="-1.5V")
+    text = f"""
+        (version 1)
+        (stage sensor-buffer
+          (ground gnd) (supply vcc 5V)
+          (opamp U1 {opamp} (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 0.5V 4.5V) (band 0Hz 10Hz))
+          (load out (resistance 10k)))
+        """
+    found = findings(text, RULE)
+    plus = [f for f in found if "in+" in f.message]
+    assert len(plus) == 1
+    finding = plus[0]
+    assert finding.severity is Severity.ERROR
+    assert finding.elements == ("U1",)
+    assert finding.line == 4 == line_of(text, "(opamp U1")
+    assert finding.measured == pytest.approx(4.5, abs=VOLT_TOLERANCE)
+    assert finding.limit == pytest.approx(5.0 - 1.5)
+    assert all(f.severity is Severity.ERROR for f in found)  # in- follows in+: same fault
+
+
+def test_follower_inside_the_common_mode_range_passes():
+    opamp = params(open_loop_gain=1e5, gbw=1e6, output_headroom_high="50mV",
+                   output_headroom_low="50mV", input_range_low="-0.1V",
+                   input_range_high="-1.5V")
+    text = f"""
+        (version 1)
+        (stage sensor-buffer
+          (ground gnd) (supply vcc 5V)
+          (opamp U1 {opamp} (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 0.5V 3.4V) (band 0Hz 10Hz))
+          (load out (resistance 10k)))
+        """
+    assert findings(text, RULE) == []
+
+
+def test_part_without_output_headroom_cannot_be_checked():
+    opamp = params(open_loop_gain=1e5, gbw=1e6, input_range_low="2V", input_range_high="-2V")
+    text = f"""
+        (version 1)
+        (stage no-headroom
+          (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 {opamp} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k)
+          (resistor R2 fb out 20k)
+          (source in (range -1V 1V) (band 0Hz 10Hz))
+          (load out (resistance 10k)))
+        """
+    finding = only(text, RULE)
+    assert finding.severity is Severity.INFO
+    assert finding.message.startswith("could not check the output headroom of U1")
+    assert finding.elements == ("U1",)
+    assert finding.line == 4 == line_of(text, "(opamp U1")

@@ -1,0 +1,105 @@
+"""The samples through the command line: each rule fires where samples/README.md says it
+should, the good stages stay clean, and the exit codes follow --fail-on and --select."""
+
+from __future__ import annotations
+
+import json
+import pathlib
+
+import pytest
+
+from checker.cli import main
+
+ROOT = pathlib.Path(__file__).resolve().parents[1]
+
+# rule id -> the sample stage written to show it (samples/README.md)
+SHOWN_BY = {
+    "feedback-pole": "conductivity-gain",
+    "input-resistance": "soil-moisture-gain",
+    "rail-headroom": "level-gain",
+    "open-loop": "flood-alarm",
+    "load-isolation": "logger-line-driver",
+    "high-voltage": "piezo-driver",
+}
+GOOD_STAGES = ("water-temp-gain", "leaf-wetness-buffer", "leaf-wetness-scale")
+
+_cache: dict[str, tuple[int, dict]] = {}
+
+
+@pytest.fixture
+def report(capsys, monkeypatch) -> tuple[int, dict]:
+    """(exit code, JSON document) of ``ampcheck check samples/ --format json``, run once."""
+    if "json" not in _cache:
+        monkeypatch.chdir(ROOT)
+        code = main(["check", "samples/", "--format", "json"])
+        _cache["json"] = (code, json.loads(capsys.readouterr().out))
+    return _cache["json"]
+
+
+def stages(document: dict) -> dict[str, dict]:
+    return {stage["name"]: stage for f in document["files"] for stage in f["stages"]}
+
+
+@pytest.mark.parametrize("rule,stage", sorted(SHOWN_BY.items()))
+def test_rule_fires_on_the_sample_written_to_show_it(report, rule, stage):
+    _code, document = report
+    fired = [f["rule"] for f in stages(document)[stage]["findings"]]
+    assert rule in fired
+
+
+def test_turbidity_transimpedance_sample_has_a_feedback_pole_error(report):
+    _code, document = report
+    found = [(f["rule"], f["severity"]) for f in stages(document)["turbidity-tia"]["findings"]]
+    assert ("feedback-pole", "error") in found
+
+
+@pytest.mark.parametrize("stage", GOOD_STAGES)
+def test_good_sample_stage_has_no_findings(report, stage):
+    _code, document = report
+    assert stages(document)[stage]["findings"] == []
+
+
+def test_every_sample_file_reads_without_problems(report):
+    _code, document = report
+    assert [f["path"] for f in document["files"] if f["problems"]] == []
+    assert len(stages(document)) == 11
+
+
+def test_no_rule_fails_on_any_sample(report):
+    _code, document = report
+    crashed = [(name, f["message"]) for name, stage in stages(document).items()
+               for f in stage["findings"] if f["rule"] in ("rule-failed", "stage-unsolvable")]
+    assert crashed == []
+
+
+def test_exit_code_is_1_with_errors_and_fail_on_error(report):
+    code, document = report  # --fail-on error is the default
+    assert document["summary"]["error"] > 0
+    assert code == 1
+
+
+def test_exit_code_is_1_with_explicit_fail_on_error(capsys, monkeypatch):
+    monkeypatch.chdir(ROOT)
+    assert main(["check", "samples/", "--format", "json", "--fail-on", "error"]) == 1
+    capsys.readouterr()
+
+
+def test_exit_code_is_0_with_fail_on_never(capsys, monkeypatch):
+    monkeypatch.chdir(ROOT)
+    assert main(["check", "samples/", "--format", "json", "--fail-on", "never"]) == 0
+    capsys.readouterr()
+
+
+def test_unknown_rule_in_select_is_a_usage_error(capsys, monkeypatch):
+    monkeypatch.chdir(ROOT)
+    assert main(["check", "samples/", "--select", "no-such-rule"]) == 2
+    assert "no-such-rule" in capsys.readouterr().err
+
+
+def test_text_report_has_no_traceback(capsys, monkeypatch):
+    monkeypatch.chdir(ROOT)
+    main(["check", "samples/", "--format", "text"])
+    captured = capsys.readouterr()
+    assert "conductivity-gain" in captured.out
+    assert "Traceback" not in captured.out + captured.err
+    assert "internal error" not in captured.out + captured.err
