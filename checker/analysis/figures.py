@@ -340,11 +340,14 @@ class Figures:
             column(("ib+", block.ref), {block.in_pos - 1: -1.0} if block.in_pos else {})
             column(("ib-", block.ref), {block.in_neg - 1: -1.0} if block.in_neg else {})
             column(("loop", block.ref), {row: 1.0})
+        X = solve(self._dc_system()[None], np.stack(B, axis=1)[None])[0]
+        return columns, X
+
+    def _dc_system(self) -> np.ndarray:
+        """The DC system matrix Y(0), real (n, n)."""
         matrices = self._matrices(at_dc=True)
         gains = self.open_loop_gains(np.zeros(1)).real
-        Y = system_stack(matrices, gains, np.zeros(1)).real
-        X = solve(Y, np.stack(B, axis=1)[None])[0]
-        return columns, X
+        return system_stack(matrices, gains, np.zeros(1)).real[0]
 
     def dc_transfer(self, net: str, column: tuple) -> float:
         """DC voltage at ``net`` per unit of the excitation named by ``column``."""
@@ -568,30 +571,55 @@ class Figures:
     def node_range(self, net: str) -> NodeRange:
         """DC extremes of ``net`` over the sources' ranges, with offset and bias errors
         (worst case: each error term adds with the sign that hurts most)."""
+        low, high, error = self._linear_range(lambda column: self.dc_transfer(net, column),
+                                              lambda i, source: self._swing_transfer(
+                                                  net, i, source))
         rails = self.stage.rail_voltages
-        base = sum(rails[n] * self.dc_transfer(net, ("supply", n))
-                   for n in self.circuit.supply_branch)
-        swing = 0.0
-        for column, mid, half, source in self._source_terms():
-            base += mid * self.dc_transfer(net, column)
-            swing += half * self._swing_transfer(net, column[1], source)
-        error = 0.0
-        for opamp in self.stage.opamps:
-            part = opamp.part
-            if part.offset_voltage_v:
-                error += abs(part.offset_voltage_v * self.dc_transfer(net, ("vos", opamp.ref)))
-            plus = self.dc_transfer(net, ("ib+", opamp.ref))
-            minus = self.dc_transfer(net, ("ib-", opamp.ref))
-            if part.bias_current_a:
-                error += abs(part.bias_current_a * (plus + minus))
-            if part.offset_current_a:
-                error += abs(part.offset_current_a / 2 * (plus - minus))
         clip_low = clip_high = None
         for opamp in self.stage.opamps:
             if opamp.out == net:
                 clip_low = rails[opamp.v_neg] + (opamp.part.output_headroom_low_v or 0.0)
                 clip_high = rails[opamp.v_pos] - (opamp.part.output_headroom_high_v or 0.0)
-        return NodeRange(net, base - swing, base + swing, error, clip_low, clip_high)
+        return NodeRange(net, low, high, error, clip_low, clip_high)
+
+    def difference_range(self, net_a: str, net_b: str) -> NodeRange:
+        """DC extremes of V(net_a) - V(net_b) (across a resistor, say), like node_range."""
+
+        def transfer(column: tuple) -> float:
+            return self.dc_transfer(net_a, column) - self.dc_transfer(net_b, column)
+
+        def swing(i: int, source: Source) -> float:
+            if source.amplitude is not None and source.band_high_hz:
+                band = _band_mask(self.frequencies_hz, source)
+                response = self.node_response(net_a, ("source", i)) - \
+                    self.node_response(net_b, ("source", i))
+                return float(np.max(np.abs(response[band])))
+            return abs(transfer(("source", i)))
+
+        low, high, error = self._linear_range(transfer, swing)
+        return NodeRange(f"{net_a}-{net_b}", low, high, error)
+
+    def _linear_range(self, transfer, swing_transfer) -> tuple[float, float, float]:
+        """(nominal low, nominal high, worst-case error) of a DC quantity linear in the
+        excitations; ``transfer(column)`` is its DC transfer from one excitation."""
+        rails = self.stage.rail_voltages
+        base = sum(rails[n] * transfer(("supply", n)) for n in self.circuit.supply_branch)
+        swing = 0.0
+        for column, mid, half, source in self._source_terms():
+            base += mid * transfer(column)
+            swing += half * swing_transfer(column[1], source)
+        error = 0.0
+        for opamp in self.stage.opamps:
+            part = opamp.part
+            if part.offset_voltage_v:
+                error += abs(part.offset_voltage_v * transfer(("vos", opamp.ref)))
+            plus = transfer(("ib+", opamp.ref))
+            minus = transfer(("ib-", opamp.ref))
+            if part.bias_current_a:
+                error += abs(part.bias_current_a * (plus + minus))
+            if part.offset_current_a:
+                error += abs(part.offset_current_a / 2 * (plus - minus))
+        return base - swing, base + swing, error
 
     def input_window(self, net: str, index: int) -> tuple[float, float] | None:
         """The values of source ``index`` (volts or amperes) that keep ``net`` inside its

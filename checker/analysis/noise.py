@@ -1,0 +1,108 @@
+"""Output noise: every noise source's transfer computed by the solver, then integrated.
+
+Noise sources (uncorrelated, white): each resistor's thermal noise as a current
+4kT/R (A^2/Hz) across it (Johnson-Nyquist; k the Boltzmann constant, exact in the SI
+since 2019), each op-amp's input voltage noise en in series with its non-inverting
+input, and its input current noise in into each input. Output power density is the sum
+of |transfer|^2 times each density; the rms over a band is the square root of its
+integral (trapezoid rule on a log grid, the white density extended to 0 Hz below it).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+_trapezoid = getattr(np, "trapezoid", None) or np.trapz  # numpy < 2 names it trapz
+BOLTZMANN = 1.380649e-23  # J/K, exact in the SI (2019 redefinition; CODATA)
+INTERNAL = (".Rin", ".Ro")  # parts of the op-amp model, not resistors on the board
+
+
+@dataclass(frozen=True)
+class NoiseContribution:
+    name: str  # "R2 thermal", "U1 voltage noise", "U1 current noise (in-)"
+    element: str
+    vrms: float
+
+
+@dataclass(frozen=True)
+class NoiseResult:
+    band_low_hz: float
+    band_high_hz: float
+    total_vrms: float
+    contributions: tuple[NoiseContribution, ...]  # largest first
+    missing: tuple[str, ...]  # op-amps whose part gives no en or in
+
+    @property
+    def largest(self) -> NoiseContribution | None:
+        return self.contributions[0] if self.contributions else None
+
+
+def thermal_density(resistance_ohm: float, temperature_k: float) -> float:
+    """Thermal noise voltage density sqrt(4kTR) in V/sqrt(Hz) (Johnson-Nyquist)."""
+    return math.sqrt(4 * BOLTZMANN * temperature_k * resistance_ohm)
+
+
+def output_noise(figures, band_low_hz: float, band_high_hz: float,
+                 temperature_k: float = 300.0, net: str | None = None,
+                 points: int = 200) -> NoiseResult:
+    """Integrated noise at ``net`` (default the stage output) over the band."""
+    circuit = figures.circuit
+    stage = figures.stage
+    node = circuit.node(net or stage.output_net)
+    start = max(band_low_hz, band_high_hz * 1e-4)
+    frequencies = np.geomspace(start, band_high_hz, points)
+    n = circuit.size
+    names: list[tuple[str, str]] = []
+    densities: list[float] = []
+    columns: list[np.ndarray] = []
+
+    def add(name: str, element: str, density_sq: float, column: np.ndarray) -> None:
+        names.append((name, element))
+        densities.append(density_sq)
+        columns.append(column)
+
+    for item in circuit.conductances:
+        if item.element.endswith(INTERNAL):
+            continue
+        column = np.zeros((frequencies.size, n), dtype=complex)
+        if item.a:
+            column[:, item.a - 1] += 1.0
+        if item.b:
+            column[:, item.b - 1] -= 1.0
+        add(f"{item.element} thermal", item.element,
+            4 * BOLTZMANN * temperature_k * item.siemens, column)
+    missing = []
+    gains = figures.open_loop_gains(frequencies)
+    for k, block in enumerate(circuit.gain_blocks):
+        part = stage.element(block.ref).part
+        if part.voltage_noise_v_per_rthz is None or part.current_noise_a_per_rthz is None:
+            missing.append(block.ref)
+        if part.voltage_noise_v_per_rthz:
+            column = np.zeros((frequencies.size, n), dtype=complex)
+            column[:, circuit.row_of_branch(circuit.gain_branch[block.ref])] = gains[:, k]
+            add(f"{block.ref} voltage noise", block.ref, part.voltage_noise_v_per_rthz ** 2,
+                column)
+        if part.current_noise_a_per_rthz:
+            for pin, pin_node in (("in+", block.in_pos), ("in-", block.in_neg)):
+                if not pin_node:
+                    continue
+                column = np.zeros((frequencies.size, n), dtype=complex)
+                column[:, pin_node - 1] = -1.0
+                add(f"{block.ref} current noise ({pin})", block.ref,
+                    part.current_noise_a_per_rthz ** 2, column)
+    if not columns or node == 0:
+        return NoiseResult(band_low_hz, band_high_hz, 0.0, (), tuple(missing))
+    B = np.stack(columns, axis=2)  # (F, n, m)
+    X = figures.solve_columns(frequencies, B)
+    transfer_sq = np.abs(X[:, node - 1, :]) ** 2  # (F, m)
+    power = transfer_sq * np.asarray(densities)[None, :]  # V^2/Hz per source
+    integrated = _trapezoid(power, frequencies, axis=0) + power[0] * (start - band_low_hz)
+    contributions = sorted(
+        (NoiseContribution(name, element, float(math.sqrt(max(value, 0.0))))
+         for (name, element), value in zip(names, integrated)),
+        key=lambda c: -c.vrms)
+    total = float(math.sqrt(max(float(np.sum(integrated)), 0.0)))
+    return NoiseResult(band_low_hz, band_high_hz, total, tuple(contributions), tuple(missing))
