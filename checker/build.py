@@ -15,7 +15,7 @@ from checker.io.grammar import PART_PARAMETERS, REQUIREMENTS
 from checker.io.load import ParsedFile
 from checker.io.positions import InputErrors, InputProblem, Path, locate
 from checker.model import (PART_ATTRIBUTES, REQUIREMENT_ATTRIBUTES, Load, OpAmp, OpAmpPart,
-                           Origin, Passive, Requirements, Source, Stage, Supply)
+                           Origin, Passive, Requirements, Source, Stage, Supply, Waiver)
 from checker.units import UnitError, parse_value
 
 # Passive values must be positive; these kinds of parameter must not be negative.
@@ -104,9 +104,29 @@ class _Builder:
         stage = Stage(name=name, origin=self.origin(path), ground=ground,
                       supplies=tuple(supplies), opamps=tuple(opamps),
                       passives=tuple(passives), sources=tuple(sources), loads=tuple(loads),
-                      require=require, note=node.get("note"))
+                      require=require, note=node.get("note"),
+                      waivers=tuple(self.waivers(node, path, opamps, passives, sources, loads)))
         self.check_references(stage, node, path)
         return stage
+
+    def waivers(self, node: dict, path: Path, opamps, passives, sources, loads) -> list[Waiver]:
+        """Waivers on the stage and on each element, naming the element as findings do."""
+        found = [(None, node.get("waive", []), path)]
+        for key, items in (("opamps", opamps), ("sources", sources), ("loads", loads)):
+            for i, item in enumerate(items):
+                element = item.ref if key == "opamps" else (
+                    item.name if key == "sources" else f"load {item.net}")
+                found.append((element, node[key][i].get("waive", []), path + (key, i)))
+        for key in ("resistors", "capacitors", "inductors"):
+            for i, item in enumerate(node.get(key, [])):
+                found.append((item["ref"], item.get("waive", []), path + (key, i)))
+        waivers = []
+        for element, entries, owner in found:
+            for j, entry in enumerate(entries):
+                reason = (entry.get("reason") or "").strip() or None
+                waivers.append(Waiver(entry["rule"], reason,
+                                      self.origin(owner + ("waive", j)), element))
+        return waivers
 
     def opamp(self, node: dict, path: Path, parts: dict[str, OpAmpPart]) -> OpAmp | None:
         ref = node["ref"]

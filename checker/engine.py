@@ -31,6 +31,9 @@ ENGINE_RULES = {
     "input-invalid": "A file could not be read, parsed, validated or built.",
     "stage-unsolvable": "The stage's equations have no unique solution as drawn.",
     "rule-failed": "A rule stopped with an internal error; the other rules still ran.",
+    "waiver-invalid": "A waiver in a stage file gives no reason or names no known rule.",
+    "waiver-stale": "A waiver in a stage file matched no finding; remove it.",
+    "baseline-stale": "A baseline entry matched no finding; prune the baseline.",
 }
 
 
@@ -169,6 +172,8 @@ class RunOptions:
     select: frozenset[str] | None = None  # None: every rule
     ignore: frozenset[str] = frozenset()
     settings: dict[str, dict[str, float]] = field(default_factory=dict)
+    severities: dict[str, Severity] = field(default_factory=dict)  # per-rule overrides
+    known_rules: frozenset[str] = frozenset()  # every loaded rule id, for waiver checks
 
 
 def selected(rules: dict[str, Rule], options: RunOptions) -> list[Rule]:
@@ -190,6 +195,7 @@ def check_stage(stage: Stage, figures: Figures, rules: list[Rule], options: RunO
                 siblings: dict[str, Figures] | None = None) -> list[Finding]:
     """Run each rule over one stage; a failing rule becomes a finding, never a crash."""
     results: list[Finding] = []
+    ran = {item.id for item in rules}
     for problem in figures.problems:
         if problem.fatal:
             origin = stage.origin
@@ -206,8 +212,12 @@ def check_stage(stage: Stage, figures: Figures, rules: list[Rule], options: RunO
         settings = dict(item.settings)
         settings.update(options.settings.get(item.id, {}))
         view = StageView(stage, figures, item, settings, siblings or {})
+        severity = options.severities.get(item.id)
         try:
-            results.extend(item.check(view) or ())
+            for finding in item.check(view) or ():
+                if severity is not None and not finding.details.get("unchecked"):
+                    finding = replace(finding, severity=severity)
+                results.append(finding)
         except SingularCircuit:
             continue  # already reported once as stage-unsolvable
         except Exception as error:  # a rule's bug must not stop the run
@@ -216,4 +226,46 @@ def check_stage(stage: Stage, figures: Figures, rules: list[Rule], options: RunO
                                            f" {error}", path=stage.path,
                                    line=stage.origin.line, column=stage.origin.column,
                                    stage=stage.name))
+    results = apply_waivers(stage, results, ran, options.known_rules | ran)
     return sorted(results, key=Finding.sort_key)
+
+
+def apply_waivers(stage: Stage, findings: list[Finding], ran: set[str],
+                  known: set[str]) -> list[Finding]:
+    """Mark findings covered by the stage's waivers; report waivers that are invalid
+    (no reason, unknown rule) or stale (matched nothing of a rule that ran)."""
+    result = list(findings)
+    extra = []
+    for waiver in stage.waivers:
+        origin = waiver.origin
+        target = f"on {waiver.element}" if waiver.element else f"on stage {stage.name}"
+
+        def report(rule_id: str, severity: Severity, message: str) -> None:
+            extra.append(Finding(rule=rule_id, severity=severity, message=message,
+                                 path=origin.path, line=origin.line, column=origin.column,
+                                 stage=stage.name,
+                                 elements=(waiver.element,) if waiver.element else ()))
+
+        if waiver.rule not in known and waiver.rule not in ENGINE_RULES:
+            import difflib
+
+            close = difflib.get_close_matches(waiver.rule, sorted(known), n=1)
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            report("waiver-invalid", Severity.ERROR,
+                   f"waiver {target} names no known rule {waiver.rule!r}{hint}")
+            continue
+        if waiver.reason is None:
+            report("waiver-invalid", Severity.ERROR,
+                   f"waiver of {waiver.rule} {target} gives no reason: write"
+                   f' (waive {waiver.rule} "why this is acceptable")')
+            continue
+        matched = False
+        for i, finding in enumerate(result):
+            if finding.rule == waiver.rule and finding.waiver is None and (
+                    waiver.element is None or waiver.element in finding.elements):
+                result[i] = replace(finding, waiver=waiver.reason)
+                matched = True
+        if not matched and waiver.rule in ran:
+            report("waiver-stale", Severity.INFO,
+                   f"waiver of {waiver.rule} {target} matched no finding; remove it")
+    return result + extra

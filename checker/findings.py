@@ -50,6 +50,13 @@ class Finding:
     unit: str | None = None
     suggestion: Suggestion | None = None
     details: dict = field(default_factory=dict, compare=False)
+    waiver: str | None = None  # the reason, when a waiver in the stage file covers it
+    baselined: bool = False  # recorded in the baseline the run was given
+
+    @property
+    def suppressed(self) -> bool:
+        """Waived or baselined: shown, but never a reason to fail."""
+        return self.waiver is not None or self.baselined
 
     def sort_key(self) -> tuple:
         return (self.path, self.line, self.column, -self.severity, self.rule, self.elements,

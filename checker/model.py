@@ -210,6 +210,16 @@ REQUIREMENT_ATTRIBUTES: dict[str, str] = {
 
 
 @dataclass(frozen=True)
+class Waiver:
+    """A rule's finding accepted in the stage file, on the stage or on one element."""
+
+    rule: str
+    reason: str | None
+    origin: Origin
+    element: str | None = None  # designator, source name or "load NET"; None: whole stage
+
+
+@dataclass(frozen=True)
 class Stage:
     name: str
     origin: Origin
@@ -221,6 +231,7 @@ class Stage:
     loads: tuple[Load, ...] = ()
     require: Requirements = field(default_factory=Requirements)
     note: str | None = None
+    waivers: tuple[Waiver, ...] = ()
 
     @property
     def path(self) -> str:

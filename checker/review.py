@@ -19,8 +19,11 @@ from checker.model import OpAmpPart, Stage
 
 @dataclass
 class StageResult:
-    stage: Stage
-    figures: Figures
+    """What a report needs of one stage: small and picklable (no model, no arrays), so a
+    worker process can send it back and a long audit keeps little in memory."""
+
+    name: str
+    line: int
     findings: list[Finding]
     summary: dict = field(default_factory=dict)  # key figures, SI floats or None
     amplifiers: dict = field(default_factory=dict)  # per op-amp figures
@@ -50,7 +53,7 @@ def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
     for stage in loaded.stages:
         stage_figures = figures[stage.name]
         summary, amplifiers = summarise(stage, stage_figures)
-        result.stages.append(StageResult(stage, stage_figures, findings[stage.name],
+        result.stages.append(StageResult(stage.name, stage.origin.line, findings[stage.name],
                                          summary, amplifiers))
     return result
 

@@ -449,7 +449,9 @@ class Figures:
                 gain_from_source = v_out
             reference = self._reference_hz(source, gain)
             at = int(np.argmin(np.abs(frequencies - reference)))
-            band = _band_mask(frequencies, source)
+            # Without a declared band the source is taken as slow: up to its reference.
+            band = _band_mask(frequencies, source) if source.band_high_hz else \
+                frequencies <= frequencies[at]
             low, high = _bandwidth(frequencies, gain, at)
             result.append(SourceFigures(
                 index=i, source=source, gain=gain, gain_from_source=gain_from_source,

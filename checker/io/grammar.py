@@ -74,7 +74,8 @@ REQUIREMENTS: dict[str, str] = {
 }
 
 _PARAMS = {name: Child(name, "scalar") for name in PART_PARAMETERS}
-_TOLERANCE = {"tolerance": Child("tolerance", "scalar")}
+_WAIVE = {"waive": Child("waive", "waive", repeated=True)}
+_TOLERANCE = {"tolerance": Child("tolerance", "scalar"), **_WAIVE}
 
 FORMS: dict[str, Form] = {
     "document": Form(children={
@@ -99,6 +100,7 @@ FORMS: dict[str, Form] = {
         "source": Child("sources", "source", repeated=True),
         "load": Child("loads", "load", repeated=True),
         "require": Child("require", "require"),
+        **_WAIVE,
     }),
     "supply": Form(("net", "voltage")),
     "opamp": Form(("ref",), {
@@ -109,6 +111,7 @@ FORMS: dict[str, Form] = {
         "out": Child("out", "scalar"),
         "v+": Child("v+", "scalar"),
         "v-": Child("v-", "scalar"),
+        **_WAIVE,
     }),
     "resistor": Form(("ref", "nets*2", "value"), {
         **_TOLERANCE,
@@ -125,13 +128,17 @@ FORMS: dict[str, Form] = {
         "band": Child("band", "pair"),
         "impedance": Child("impedance", "scalar"),
         "capacitance": Child("capacitance", "scalar"),
+        **_WAIVE,
     }),
     "load": Form(("net",), {
         "resistance": Child("resistance", "scalar"),
         "capacitance": Child("capacitance", "scalar"),
         "feeds": Child("feeds", "feeds"),
+        **_WAIVE,
     }),
     "feeds": Form(("stage", "net?")),
+    # (waive RULE-ID "reason"): accept a rule's finding on this stage or element.
+    "waive": Form(("rule", "reason?")),
     "require": Form((), {name: Child(name, "scalar") for name in REQUIREMENTS}),
 }
 

@@ -34,6 +34,8 @@ _FIELDS: dict[str, dict] = {
     "class": {"type": "string"},
     "kind": {"enum": ["voltage", "current"]},
     "version": {"const": 1},
+    "rule": {"type": "string", "pattern": r"^[a-z][a-z0-9]*(-[a-z0-9]+)*$"},
+    "reason": {"type": "string"},
 }
 
 _DESCRIPTIONS = {
@@ -50,6 +52,7 @@ _DESCRIPTIONS = {
     "load": "What the stage drives: a resistance, a capacitance, or the next stage.",
     "feeds": "The stage (and its source net) that this load is the input of.",
     "require": "What the stage must achieve.",
+    "waive": "Accept a rule's finding on this stage or element, with the reason why.",
 }
 
 _REQUIRED = {
@@ -63,6 +66,7 @@ _REQUIRED = {
     "source": ["net"],
     "load": ["net"],
     "feeds": ["stage"],
+    "waive": ["rule"],
 }
 
 

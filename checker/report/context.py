@@ -14,4 +14,5 @@ class ReportContext:
     rules: dict  # id -> Rule, for documentation in machine formats
 
     def fails(self, finding: Finding) -> bool:
-        return self.fail_on is not None and finding.severity >= self.fail_on
+        return (self.fail_on is not None and not finding.suppressed
+                and finding.severity >= self.fail_on)

@@ -25,7 +25,8 @@ def finding_dict(finding: Finding) -> dict:
             "message": finding.message, "stage": finding.stage,
             "elements": list(finding.elements), "path": finding.path, "line": finding.line,
             "column": finding.column, "measured": finding.measured, "limit": finding.limit,
-            "unit": finding.unit, "suggestion": suggestion}
+            "unit": finding.unit, "suggestion": suggestion, "waived": finding.waiver,
+            "baselined": finding.baselined}
 
 
 def document(results: list[FileResult], context: ReportContext) -> dict:
@@ -39,7 +40,7 @@ def document(results: list[FileResult], context: ReportContext) -> dict:
             stage_count += 1
             summary = dict(item.summary)
             topology = summary.pop("topology", None)
-            stages.append({"name": item.stage.name, "line": item.stage.origin.line,
+            stages.append({"name": item.name, "line": item.line,
                            "topology": topology, "figures": summary,
                            "amplifiers": item.amplifiers,
                            "findings": [finding_dict(f) for f in item.findings]})
@@ -61,7 +62,7 @@ _NUMBER = {"type": ["number", "null"]}
 _FINDING = {
     "type": "object",
     "required": ["rule", "severity", "message", "stage", "elements", "path", "line", "column",
-                 "measured", "limit", "unit", "suggestion"],
+                 "measured", "limit", "unit", "suggestion", "waived", "baselined"],
     "additionalProperties": False,
     "properties": {
         "rule": {"type": "string"},
@@ -75,6 +76,8 @@ _FINDING = {
         "measured": _NUMBER,
         "limit": _NUMBER,
         "unit": {"type": ["string", "null"]},
+        "waived": {"type": ["string", "null"]},
+        "baselined": {"type": "boolean"},
         "suggestion": {"oneOf": [{"type": "null"}, {
             "type": "object", "required": ["text", "value", "unit", "element"],
             "additionalProperties": False,

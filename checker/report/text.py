@@ -33,11 +33,15 @@ def _finding(console: Console, finding: Finding) -> None:
     head = Text("  ")
     head.append(f"{finding.path}:{finding.line}:{finding.column}", style="bold")
     head.append("  ")
-    head.append(finding.rule, style=STYLE[finding.severity])
+    head.append(finding.rule, style="dim" if finding.suppressed else STYLE[finding.severity])
     if finding.stage:
         head.append(f"  stage {finding.stage}")
     if finding.elements:
         head.append(f"  [{', '.join(finding.elements)}]", style="dim")
+    if finding.waiver is not None:
+        head.append(f"  waived: {finding.waiver}", style="dim")
+    elif finding.baselined:
+        head.append("  in baseline", style="dim")
     console.print(head)
     console.print(Text("      " + finding.message))
     if finding.measured is not None or finding.limit is not None:
@@ -57,8 +61,8 @@ def _stage_line(console: Console, result: FileResult) -> None:
                       if counts[sev.label]), None)
         line = Text("  ")
         line.append(MARK[worst] if worst else "✓", style=STYLE[worst] if worst else "green")
-        line.append(f" {item.stage.name}", style="bold")
-        line.append(f"  {result.path}:{item.stage.origin.line}", style="dim")
+        line.append(f" {item.name}", style="bold")
+        line.append(f"  {result.path}:{item.line}", style="dim")
         parts = [s.get("topology") or "?"]
         if s.get("gain") is not None:
             parts.append(f"gain {s['gain']:.4g}")
@@ -89,7 +93,8 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
         for result in results:
             _stage_line(console, result)
         console.print()
-    counts = count_by_severity(every)
+    counts = count_by_severity([f for f in every if not f.suppressed])
+    suppressed = sum(1 for f in every if f.suppressed)
     stages = sum(len(r.stages) for r in results)
     unreadable = sum(1 for r in results if r.problems)
     closing = Text(f"{len(results)} files, {stages} stages: ")
@@ -98,6 +103,8 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
     closing.append(f"{counts['warning']} warnings",
                    style=STYLE[Severity.WARNING] if counts["warning"] else "")
     closing.append(f", {counts['info']} notes")
+    if suppressed:
+        closing.append(f" ({suppressed} more waived or in the baseline)")
     if unreadable:
         closing.append(f"; {unreadable} files could not be read")
     if context.fail_on is not None:
