@@ -14,6 +14,7 @@ import sys
 from checker import __version__
 
 EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
+FORMAT_NAMES = ["text", "json", "sarif", "compact", "csv"]
 
 
 class UsageError(Exception):
@@ -31,20 +32,39 @@ def build_parser() -> argparse.ArgumentParser:
     check = commands.add_parser("check", help="read, analyse and review stage files")
     check.add_argument("paths", nargs="+", metavar="PATH",
                        help="stage files or directories (searched for *.stage, *.stage.json)")
-    check.add_argument("--parts", action="append", default=[], metavar="FILE",
-                       help="a part library file (repeatable); its parts override built-ins")
-    check.add_argument("--format", choices=["text", "json"], default="text",
-                       help="report format (default text)")
+    check.add_argument("--format", choices=FORMAT_NAMES, default="text",
+                       help="report format on standard output (default text)")
+    check.add_argument("--output", action="append", default=[], metavar="FORMAT:PATH",
+                       help="also write a report to a new file (repeatable), e.g. sarif:out.sarif")
     check.add_argument("--fail-on", choices=["error", "warning", "info", "never"],
-                       default="error",
                        help="exit 1 when a finding reaches this severity (default error)")
     check.add_argument("--select", metavar="IDS",
                        help="run only these rules (comma-separated ids)")
     check.add_argument("--ignore", metavar="IDS", help="skip these rules (comma-separated ids)")
     check.add_argument("--rules-dir", action="append", default=[], metavar="DIR",
                        help="also load rules from this folder (repeatable)")
-    check.add_argument("--stray-capacitance", default="1p", metavar="VALUE",
+    check.add_argument("--parts", action="append", default=[], metavar="FILE",
+                       help="a part library file (repeatable); its parts override built-ins")
+    check.add_argument("--stray-capacitance", metavar="VALUE",
                        help="stray capacitance added at every inverting input (default 1p)")
+    check.add_argument("--config", metavar="FILE",
+                       help="use this configuration file for every path")
+    check.add_argument("--no-config", action="store_true",
+                       help="ignore configuration files")
+    check.add_argument("--jobs", type=int, metavar="N",
+                       help="worker processes (default: one per CPU)")
+    check.add_argument("--no-progress", action="store_true",
+                       help="no progress bar (it is off anyway when stderr is not a terminal)")
+    check.add_argument("--baseline", metavar="FILE",
+                       help="findings recorded in this baseline do not fail the run")
+    check.add_argument("--write-baseline", metavar="FILE",
+                       help="record this run's findings as a new baseline file")
+    check.add_argument("--prune-baseline", action="store_true",
+                       help="with --baseline: remove entries that no longer match (only shrinks)")
+
+    config = commands.add_parser("config", help="print the resolved configuration for a path")
+    config.add_argument("path", nargs="?", default=".", metavar="PATH")
+    config.add_argument("--config", metavar="FILE")
 
     rules = commands.add_parser("rules", help="list the rules")
     rules.add_argument("--rules-dir", action="append", default=[], metavar="DIR")
@@ -115,56 +135,171 @@ def _rules(folders: list[str]):
         raise UsageError(str(error)) from None
 
 
-def _ids(text: str | None, known: dict) -> frozenset[str] | None:
-    if text is None:
-        return None
-    from checker.engine import ENGINE_RULES
+def _request(args):
+    from checker.audit import Request
+    from checker.units import UnitError, parse_value
 
-    ids = frozenset(part.strip() for part in text.split(",") if part.strip())
-    unknown = sorted(ids - set(known) - set(ENGINE_RULES))
-    if unknown:
-        raise UsageError(f"unknown rule id {', '.join(unknown)}; `ampcheck rules` lists them")
-    return ids
+    def ids(text):
+        if text is None:
+            return None
+        return frozenset(part.strip() for part in text.split(",") if part.strip())
+
+    stray = None
+    if args.stray_capacitance is not None:
+        try:
+            stray = parse_value(args.stray_capacitance, "capacitance")
+        except UnitError as error:
+            raise UsageError(f"--stray-capacitance: {error}") from None
+    config_file = getattr(args, "config", None)
+    if config_file and not os.path.isfile(config_file):
+        raise UsageError(f"--config: no such file {config_file}")
+    return Request(config_file=config_file, select=ids(args.select), ignore=ids(args.ignore),
+                   stray_capacitance_f=stray, parts=tuple(args.parts),
+                   rules_dirs=tuple(args.rules_dir), use_config=not args.no_config)
+
+
+def _outputs(args) -> list[tuple[str, str]]:
+    outputs = []
+    for item in args.output:
+        name, _, path = item.partition(":")
+        if name not in FORMAT_NAMES or not path:
+            raise UsageError(f"--output {item!r}: write FORMAT:PATH with FORMAT one of"
+                             f" {', '.join(FORMAT_NAMES)}")
+        outputs.append((name, path))
+    return outputs
+
+
+def _progress_wanted(args) -> bool:
+    return (not args.no_progress and sys.stderr.isatty() and not os.environ.get("PRE_COMMIT")
+            and not os.environ.get("CI"))
 
 
 def cmd_check(args) -> int:
-    from checker.analysis import AnalysisOptions
-    from checker.engine import RunOptions, selected
-    from checker.files import discover
-    from checker.findings import Severity
-    from checker.report.context import ReportContext
-    from checker.review import FileResult, review_file
-    from checker.units import UnitError, parse_value
+    from collections import Counter
 
-    library = _library(args.parts)
-    rules = _rules(args.rules_dir)
-    try:
-        stray = parse_value(args.stray_capacitance, "capacitance")
-    except UnitError as error:
-        raise UsageError(f"--stray-capacitance: {error}") from None
-    options = RunOptions(analysis=AnalysisOptions(stray_capacitance_f=stray),
-                         select=_ids(args.select, rules),
-                         ignore=_ids(args.ignore, rules) or frozenset())
+    from checker import audit, baseline as baselines
+    from checker.config import ConfigError
+    from checker.engine import RuleError
+    from checker.files import discover
+    from checker.io.positions import InputErrors
+    from checker.report import renderer
+    from checker.report.context import ReportContext
+    from checker.review import FileResult
+
+    audit.forget()
+    request = _request(args)
+    outputs = _outputs(args)
+    if args.prune_baseline and not args.baseline:
+        raise UsageError("--prune-baseline goes with --baseline FILE")
     paths, missing = discover(args.paths)
     if not paths and not missing:
         raise UsageError("no stage files (*.stage, *.stage.json) found in "
                          + ", ".join(args.paths))
-    active = selected(rules, options)
-    results = [FileResult(f.path, problems=[f]) for f in missing]
-    results += [review_file(path, library, active, options) for path in paths]
-    fail_on = None if args.fail_on == "never" else Severity.parse(args.fail_on)
-    context = ReportContext(__version__, fail_on, rules)
-    if args.format == "json":
-        from checker.report.json_document import render
+    try:
+        audit.preflight(paths or ["."], request)
+        fail_on = audit.fail_on_for(request, args.fail_on)
+        jobs = audit.jobs_for(request, args.jobs)
+        rules = audit.setup_for(paths[0] if paths else "x", request).all_rules
+        baseline = baselines.load_baseline(args.baseline) if args.baseline else None
+    except (ConfigError, RuleError, baselines.BaselineError) as error:
+        raise UsageError(str(error)) from None
+    except InputErrors as errors:
+        raise UsageError("cannot load part library:\n  " +
+                         "\n  ".join(str(p) for p in errors.problems)) from None
+    if jobs < 1:
+        raise UsageError("--jobs takes a whole number of at least 1")
 
-        sys.stdout.write(render(results, context))
-    else:
+    results = [FileResult(f.path, problems=[f]) for f in missing]
+    matched: Counter = Counter()
+    stream = audit.check_files(paths, request, jobs)
+    progress = None
+    if _progress_wanted(args):
+        from rich.progress import Progress
+
+        from checker.report.summary import console
+
+        progress = Progress(console=console(stderr=True), transient=True)
+        task = progress.add_task("checking", total=len(paths))
+        progress.start()
+    try:
+        for result in stream:
+            if baseline is not None:
+                for stage in result.stages:
+                    stage.findings = baselines.apply_baseline(stage.findings, baseline, matched)
+            results.append(result)
+            if progress is not None:
+                progress.advance(task)
+    finally:
+        if progress is not None:
+            progress.stop()
+    if baseline is not None:
+        checked = {baselines._relative(p, baseline.folder) for p in paths}
+        stale = baselines.stale_entries(baseline, matched, checked)
+        if stale:
+            results.append(FileResult(os.path.relpath(baseline.path), problems=stale))
+        if args.prune_baseline:
+            removed = baselines.prune_baseline(baseline, matched, checked)
+            print(f"pruned {removed} stale entries from {args.baseline}", file=sys.stderr)
+    context = ReportContext(__version__, fail_on, rules)
+    protect = paths
+    try:
+        for name, path in outputs:
+            from checker.io.write import write_new_file
+
+            write_new_file(path, renderer(name)(results, context), protect)
+        if args.write_baseline:
+            every = [f for r in results for f in r.findings()]
+            count = baselines.write_baseline(args.write_baseline, every, protect)
+            print(f"wrote {count} entries to {args.write_baseline}", file=sys.stderr)
+    except (OSError, ValueError) as error:
+        raise UsageError(str(error)) from None
+    if args.format == "text":
         from checker.report.summary import console
         from checker.report.text import write
 
         write(console(), results, context)
+    else:
+        sys.stdout.write(renderer(args.format)(results, context))
     failing = any(context.fails(f) for r in results for f in r.findings())
     return EXIT_FINDINGS if failing else EXIT_OK
+
+
+def cmd_config(args) -> int:
+    from checker.audit import Request, config_for, rules_for
+    from checker.config import ConfigError, find_config_file
+
+    from checker.audit import forget
+
+    forget()
+    request = Request(config_file=args.config)
+    try:
+        config = config_for(os.path.join(args.path, "x") if os.path.isdir(args.path)
+                            else args.path, request)
+        rules = rules_for(tuple(config.get("rules-dirs", [])))
+    except ConfigError as error:
+        raise UsageError(str(error)) from None
+    source = args.config or find_config_file(
+        args.path if os.path.isdir(args.path) else os.path.dirname(os.path.abspath(args.path)))
+    print(f"configuration for {args.path}: {source or 'none found (defaults)'}")
+    defaults = {"fail-on": "error", "select": "all rules", "ignore": "none",
+                "rules-dirs": "none", "parts": "none", "stray-capacitance": "1p", "jobs": "CPU count"}
+    for key, default in defaults.items():
+        item = config.values.get(key)
+        value = default if item is None else item.value
+        if isinstance(value, frozenset):
+            value = ", ".join(sorted(value))
+        origin = "default" if item is None else item.origin
+        print(f"  {key} = {value}    ({origin})")
+    for rule_id, rule in rules.items():
+        for name, default in rule.settings.items():
+            item = config.rules.get(rule_id, {}).get(name)
+            value = default if item is None else item.value
+            print(f"  rules.{rule_id}.{name} = {value:g}    "
+                  f"({'default' if item is None else item.origin})")
+        item = config.rules.get(rule_id, {}).get("severity")
+        if item is not None:
+            print(f"  rules.{rule_id}.severity = {item.value.label}    ({item.origin})")
+    return EXIT_OK
 
 
 def cmd_rules(args) -> int:
@@ -252,4 +387,5 @@ def cmd_parts(args) -> int:
 
 
 COMMANDS = {"check": cmd_check, "schema": cmd_schema, "convert": cmd_convert,
-            "parts": cmd_parts, "rules": cmd_rules, "explain": cmd_explain}
+            "parts": cmd_parts, "rules": cmd_rules, "explain": cmd_explain,
+            "config": cmd_config}

@@ -17,6 +17,48 @@ from checker.units import format_si
 STYLE = {Severity.ERROR: "bold red", Severity.WARNING: "yellow", Severity.INFO: "cyan"}
 HEADING = {Severity.ERROR: "Errors", Severity.WARNING: "Warnings", Severity.INFO: "Notes"}
 MARK = {Severity.ERROR: "✗", Severity.WARNING: "!", Severity.INFO: "·"}
+STAGE_LINES_LIMIT = 60  # above this, the per-stage lines give way to the audit summary
+WORST = 5
+
+
+def _audit_summary(console: Console, results: list[FileResult], every: list[Finding]) -> None:
+    """Counts by rule, the worst files and stages, and the files that could not be read."""
+    active = [f for f in every if not f.suppressed]
+    if active:
+        by_rule: dict[str, list[int]] = {}
+        for f in active:
+            counts = by_rule.setdefault(f.rule, [0, 0, 0])
+            counts[3 - int(f.severity)] += 1
+        line = Text("By rule: ", style="bold")
+        line.append(", ".join(f"{rule} {sum(c)}" for rule, c in
+                              sorted(by_rule.items(), key=lambda item: (-sum(item[1]), item[0]))))
+        console.print(line)
+
+        def weight(findings) -> tuple:
+            return (sum(f.severity == Severity.ERROR for f in findings),
+                    sum(f.severity == Severity.WARNING for f in findings))
+
+        files = sorted(((weight([f for f in r.findings() if not f.suppressed]), r.path)
+                        for r in results), key=lambda item: (-item[0][0], -item[0][1], item[1]))
+        worst = [f"{path} ({e} errors, {w} warnings)" for (e, w), path in files[:WORST]
+                 if e or w]
+        if worst:
+            console.print(Text("Worst files: ", style="bold").append("; ".join(worst)))
+        stages = sorted(((weight([f for f in s.findings if not f.suppressed]), r.path, s.name)
+                         for r in results for s in r.stages),
+                        key=lambda item: (-item[0][0], -item[0][1], item[1], item[2]))
+        worst = [f"{name} in {path} ({e}/{w})" for (e, w), path, name in stages[:WORST]
+                 if e or w]
+        if worst:
+            console.print(Text("Worst stages (errors/warnings): ", style="bold")
+                          .append("; ".join(worst)))
+    unreadable = [r.path for r in results if r.problems]
+    if unreadable:
+        shown = ", ".join(unreadable[:20]) + (f" and {len(unreadable) - 20} more"
+                                               if len(unreadable) > 20 else "")
+        console.print(Text(f"Could not read {len(unreadable)} files: ", style="bold")
+                      .append(shown))
+    console.print()
 
 
 def _value(value: float | None, unit: str | None) -> str:
@@ -88,11 +130,17 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
         for finding in sorted(group, key=Finding.sort_key):
             _finding(console, finding)
         console.print()
-    if any(result.stages for result in results):
+    stage_total = sum(len(result.stages) for result in results)
+    if 0 < stage_total <= STAGE_LINES_LIMIT:
         console.print(Text("Stages", style="bold"))
         for result in results:
             _stage_line(console, result)
         console.print()
+    elif stage_total:
+        console.print(Text(f"{stage_total} stages: their figures are in --format json",
+                           style="dim"))
+    if len(results) > 1:
+        _audit_summary(console, results, every)
     counts = count_by_severity([f for f in every if not f.suppressed])
     suppressed = sum(1 for f in every if f.suppressed)
     stages = sum(len(r.stages) for r in results)
@@ -112,3 +160,11 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
         closing.append(f" — {failing} at or above {context.fail_on.label}" if failing
                        else f" — nothing at or above {context.fail_on.label}")
     console.print(closing)
+
+
+def render(results: list[FileResult], context: ReportContext) -> str:
+    """The text report as plain text (for --output text:FILE)."""
+    console = Console(record=True, file=__import__("io").StringIO(), width=200,
+                      soft_wrap=True, color_system=None)
+    write(console, results, context)
+    return console.export_text()

@@ -1,0 +1,125 @@
+"""Baselines for legacy audits: record today's findings, then fail only on new ones.
+
+An entry is keyed on file, stage, elements and rule, never on line numbers, so edits that
+move lines keep it matched; repeated keys carry a count. Paths are stored relative to the
+baseline file's folder, with forward slashes, so the file works from any working folder
+and on any system. The file is sorted and stable, and written atomically.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+from collections import Counter
+from dataclasses import dataclass, replace
+
+from checker.findings import Finding, Severity
+from checker.io.write import write_new_file
+
+FORMAT_NAME = "ampcheck-baseline"
+FORMAT_VERSION = 1
+Key = tuple[str, str, tuple[str, ...], str]  # (path, stage, elements, rule)
+UNBASELINED = {"input-invalid", "waiver-invalid", "waiver-stale", "baseline-stale",
+               "rule-failed"}
+
+
+class BaselineError(Exception):
+    """A baseline file that cannot be read (a usage error)."""
+
+
+def _relative(path: str, folder: str) -> str:
+    return os.path.relpath(os.path.abspath(path), folder).replace(os.sep, "/")
+
+
+def key_of(finding: Finding, folder: str) -> Key:
+    return (_relative(finding.path, folder), finding.stage or "", tuple(finding.elements),
+            finding.rule)
+
+
+@dataclass
+class Baseline:
+    path: str
+    counts: Counter  # Key -> how many findings it accepts
+
+    @property
+    def folder(self) -> str:
+        return os.path.dirname(os.path.abspath(self.path))
+
+
+def load_baseline(path: str) -> Baseline:
+    try:
+        with open(path, encoding="utf-8") as handle:
+            data = json.load(handle)
+    except (OSError, ValueError) as error:
+        raise BaselineError(f"cannot read baseline {path}: {error}") from None
+    if not isinstance(data, dict) or data.get("format") != FORMAT_NAME or \
+            data.get("version") != FORMAT_VERSION:
+        raise BaselineError(f"{path} is not an {FORMAT_NAME} version {FORMAT_VERSION} file")
+    counts: Counter = Counter()
+    for entry in data.get("entries", []):
+        try:
+            key = (entry["path"], entry["stage"], tuple(entry["elements"]), entry["rule"])
+            counts[key] += int(entry.get("count", 1))
+        except (KeyError, TypeError, ValueError):
+            raise BaselineError(f"{path}: malformed entry {entry!r}") from None
+    return Baseline(path, counts)
+
+
+def apply_baseline(findings: list[Finding], baseline: Baseline, matched: Counter
+                   ) -> list[Finding]:
+    """Mark the findings the baseline accepts (up to each entry's count), counting what
+    matched into ``matched`` across calls."""
+    result = []
+    for finding in findings:
+        if finding.rule not in UNBASELINED and finding.waiver is None:
+            key = key_of(finding, baseline.folder)
+            if matched[key] < baseline.counts.get(key, 0):
+                matched[key] += 1
+                finding = replace(finding, baselined=True)
+        result.append(finding)
+    return result
+
+
+def stale_entries(baseline: Baseline, matched: Counter, checked: set[str]) -> list[Finding]:
+    """Info findings for entries of checked files that matched fewer findings than they
+    accept (entries of files not checked in this run are left alone)."""
+    stale = []
+    for key, count in sorted(baseline.counts.items()):
+        path, stage, elements, rule = key
+        if path not in checked or matched[key] >= count:
+            continue
+        where = os.path.join(baseline.folder, path)
+        stale.append(Finding(
+            rule="baseline-stale", severity=Severity.INFO,
+            message=f"baseline entry for {rule} on {', '.join(elements) or 'the stage'} in stage"
+                    f" {stage} no longer matches ({count - matched[key]} of {count} unused);"
+                    " prune the baseline", path=os.path.relpath(where), line=1, column=1,
+            stage=stage or None, elements=elements))
+    return stale
+
+
+def baseline_text(counts: Counter) -> str:
+    entries = [{"path": p, "stage": s, "elements": list(e), "rule": r, "count": c}
+               for (p, s, e, r), c in sorted(counts.items()) if c > 0]
+    return json.dumps({"format": FORMAT_NAME, "version": FORMAT_VERSION, "entries": entries},
+                      indent=2, ensure_ascii=False) + "\n"
+
+
+def write_baseline(path: str, findings: list[Finding], protect: list[str] = ()) -> int:
+    """Record every unwaived finding (input problems excepted); returns the entry count."""
+    folder = os.path.dirname(os.path.abspath(path))
+    counts: Counter = Counter(key_of(f, folder) for f in findings
+                              if f.rule not in UNBASELINED and f.waiver is None)
+    write_new_file(path, baseline_text(counts), protect)
+    return len(counts)
+
+
+def prune_baseline(baseline: Baseline, matched: Counter, checked: set[str]) -> int:
+    """Shrink the file to what matched in the checked files; never adds. Returns how
+    many findings' worth of entries were removed."""
+    kept: Counter = Counter()
+    for key, count in baseline.counts.items():
+        kept[key] = min(count, matched[key]) if key[0] in checked else count
+    removed = sum(baseline.counts.values()) - sum(kept.values())
+    write_new_file(baseline.path, baseline_text(kept))
+    return removed

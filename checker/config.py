@@ -1,0 +1,273 @@
+"""Project configuration: ``ampcheck.toml`` or ``[tool.ampcheck]`` in pyproject.toml.
+
+For each checked file the closest configuration up the folder tree wins (no merging
+across levels); command-line options override it. Every value remembers where it came
+from, so ``ampcheck config`` can show it, and every error names the file and line.
+
+Keys (top level):
+    fail-on            "error" | "warning" | "info" | "never"
+    select, ignore     lists of rule ids
+    rules-dirs         folders of user rules (relative to the configuration file)
+    parts              part-library files (relative to the configuration file)
+    stray-capacitance  a capacitance ("1p") added at every inverting input
+    jobs               worker processes for `check` (0: one per CPU)
+    [rules.RULE-ID]    severity = "error" | "warning" | "info", and the rule's settings
+    [[overrides]]      paths = [globs, relative to the file]; select, ignore,
+                       stray-capacitance and [overrides.rules.RULE-ID] for those files
+"""
+
+from __future__ import annotations
+
+import fnmatch
+import os
+import re
+import sys
+from dataclasses import dataclass, field
+from functools import lru_cache
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover - Python 3.10
+    import tomli as tomllib
+
+from checker.findings import Severity
+from checker.units import UnitError, parse_value
+
+CONFIG_FILE = "ampcheck.toml"
+TOP_KEYS = {"fail-on", "select", "ignore", "rules-dirs", "parts", "stray-capacitance", "jobs",
+            "rules", "overrides"}
+OVERRIDE_KEYS = {"paths", "select", "ignore", "stray-capacitance", "rules"}
+FAIL_ON = ("error", "warning", "info", "never")
+
+
+class ConfigError(Exception):
+    """A configuration mistake, with the file and line of the key."""
+
+
+@dataclass(frozen=True)
+class Valued:
+    value: object
+    origin: str  # "default", "command line", or "FILE:LINE"
+
+
+@dataclass
+class Config:
+    """A resolved configuration: each value with its origin."""
+
+    path: str | None = None  # the file it came from, None for defaults only
+    values: dict[str, Valued] = field(default_factory=dict)
+    rules: dict[str, dict[str, Valued]] = field(default_factory=dict)  # id -> key -> value
+    overrides: list[dict] = field(default_factory=list)  # {"paths", "values", "rules"}
+
+    def get(self, key: str, default=None):
+        item = self.values.get(key)
+        return default if item is None else item.value
+
+    def for_file(self, path: str) -> "Config":
+        """This configuration with the overrides whose globs match ``path`` applied."""
+        if not self.overrides or self.path is None:
+            return self
+        base = os.path.dirname(os.path.abspath(self.path))
+        relative = os.path.relpath(os.path.abspath(path), base).replace(os.sep, "/")
+        result = Config(self.path, dict(self.values),
+                        {k: dict(v) for k, v in self.rules.items()}, [])
+        for override in self.overrides:
+            if any(fnmatch.fnmatch(relative, pattern) for pattern in override["paths"]):
+                result.values.update(override["values"])
+                for rule_id, settings in override["rules"].items():
+                    result.rules.setdefault(rule_id, {}).update(settings)
+        return result
+
+
+def _key_lines(text: str) -> dict[tuple, int]:
+    """Line of each key, by (table path..., key): a light scan, as tomllib keeps none."""
+    lines: dict[tuple, int] = {}
+    table: tuple = ()
+    override_count = 0
+    for number, line in enumerate(text.splitlines(), start=1):
+        stripped = line.strip()
+        header = re.match(r"^\[\[\s*([^\]]+?)\s*\]\]", stripped)
+        if header:
+            name = tuple(p.strip().strip('"') for p in header.group(1).split("."))
+            if name[-1] == "overrides":
+                override_count += 1
+                table = name[:-1] + ("overrides", override_count - 1)
+            else:
+                table = name
+            lines[table] = number
+            continue
+        header = re.match(r"^\[\s*([^\]]+?)\s*\]", stripped)
+        if header:
+            parts = tuple(p.strip().strip('"') for p in header.group(1).split("."))
+            if "overrides" in parts and override_count:
+                i = parts.index("overrides")
+                parts = parts[:i + 1] + (override_count - 1,) + parts[i + 1:]
+            table = parts
+            lines[table] = number
+            continue
+        key = re.match(r'^("?[A-Za-z0-9_.\-+]+"?)\s*=', stripped)
+        if key:
+            lines[table + (key.group(1).strip('"'),)] = number
+    return lines
+
+
+def _read(path: str) -> tuple[dict, dict[tuple, int], tuple] | None:
+    """(table, key lines, prefix) of a config file; None when it has no ampcheck part."""
+    try:
+        with open(path, "rb") as handle:
+            data = handle.read()
+        table = tomllib.loads(data.decode("utf-8"))
+    except tomllib.TOMLDecodeError as error:
+        raise ConfigError(f"{path}: invalid TOML: {error}") from None
+    except (OSError, UnicodeDecodeError) as error:
+        raise ConfigError(f"{path}: cannot read: {error}") from None
+    lines = _key_lines(data.decode("utf-8"))
+    if os.path.basename(path) == "pyproject.toml":
+        section = table.get("tool", {}).get("ampcheck")
+        if section is None:
+            return None
+        return section, lines, ("tool", "ampcheck")
+    return table, lines, ()
+
+
+def parse_config(path: str, rules_for) -> Config:
+    """Read and check one configuration file. ``rules_for(folders)`` returns the rules
+    known with those user rule folders (the file's own ``rules-dirs``)."""
+    found = _read(path)
+    if found is None:
+        return Config()
+    table, lines, prefix = found
+    base = os.path.dirname(os.path.abspath(path))
+    folders = table.get("rules-dirs", [])
+    if isinstance(folders, list) and all(isinstance(f, str) for f in folders):
+        known_rules = rules_for(tuple(os.path.normpath(os.path.join(base, f))
+                                      for f in folders))
+    else:
+        known_rules = rules_for(())
+
+    def where(*keys) -> str:
+        line = lines.get(prefix + keys) or lines.get(prefix + keys[:-1]) or 1
+        return f"{path}:{line}"
+
+    def fail(keys: tuple, message: str):
+        raise ConfigError(f"{where(*keys)}: {message}")
+
+    config = Config(path)
+    for key in table:
+        if key not in TOP_KEYS:
+            fail((key,), _unknown(key, TOP_KEYS))
+    config.values = _values(table, (), where, fail, base, known_rules, top=True)
+    config.rules = _rule_tables(table.get("rules", {}), ("rules",), where, fail, known_rules)
+    overrides = table.get("overrides", [])
+    if not isinstance(overrides, list):
+        fail(("overrides",), "overrides is a list of tables: write [[overrides]]")
+    for i, override in enumerate(overrides):
+        keys = ("overrides", i)
+        for key in override:
+            if key not in OVERRIDE_KEYS:
+                fail(keys + (key,), _unknown(key, OVERRIDE_KEYS))
+        paths = override.get("paths")
+        if not isinstance(paths, list) or not paths or not all(isinstance(p, str) for p in paths):
+            fail(keys + ("paths",), "each [[overrides]] needs paths = [\"glob\", ...]")
+        config.overrides.append({
+            "paths": paths,
+            "values": _values(override, keys, where, fail, base, known_rules, top=False),
+            "rules": _rule_tables(override.get("rules", {}), keys + ("rules",), where, fail,
+                                  known_rules),
+        })
+    return config
+
+
+def _unknown(key: str, allowed) -> str:
+    import difflib
+
+    close = difflib.get_close_matches(key, sorted(allowed), n=1)
+    hint = f"; did you mean {close[0]!r}?" if close else f"; known keys: {', '.join(sorted(allowed))}"
+    return f"unknown key {key!r}{hint}"
+
+
+def _values(table: dict, keys: tuple, where, fail, base: str, known_rules, top: bool) -> dict:
+    values: dict[str, Valued] = {}
+    for key, value in table.items():
+        if key in ("rules", "overrides", "paths"):
+            continue
+        origin = where(*keys, key)
+        if key == "fail-on":
+            if value not in FAIL_ON:
+                fail(keys + (key,), f"fail-on must be one of {', '.join(FAIL_ON)}, not {value!r}")
+        elif key in ("select", "ignore"):
+            if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
+                fail(keys + (key,), f"{key} is a list of rule ids")
+            unknown = [v for v in value if v not in known_rules]
+            if unknown:
+                fail(keys + (key,), f"unknown rule id {', '.join(unknown)} in {key}")
+            value = frozenset(value)
+        elif key in ("rules-dirs", "parts"):
+            if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
+                fail(keys + (key,), f"{key} is a list of paths")
+            value = [os.path.normpath(os.path.join(base, v)) for v in value]
+        elif key == "stray-capacitance":
+            try:
+                value = parse_value(value, "capacitance")
+            except UnitError as error:
+                fail(keys + (key,), f"stray-capacitance: {error}")
+            if value < 0:
+                fail(keys + (key,), "stray-capacitance cannot be negative")
+        elif key == "jobs":
+            if not isinstance(value, int) or isinstance(value, bool) or value < 0:
+                fail(keys + (key,), "jobs is a whole number, 0 for one per CPU")
+        values[key] = Valued(value, origin)
+    return values
+
+
+def _rule_tables(table: dict, keys: tuple, where, fail, known_rules) -> dict:
+    if not isinstance(table, dict):
+        fail(keys, "rules is a table of [rules.RULE-ID] tables")
+    result: dict[str, dict[str, Valued]] = {}
+    for rule_id, settings in table.items():
+        if rule_id not in known_rules:
+            fail(keys + (rule_id,), _unknown(rule_id, known_rules).replace("key", "rule id"))
+        if not isinstance(settings, dict):
+            fail(keys + (rule_id,), f"[rules.{rule_id}] must be a table")
+        rule = known_rules[rule_id]
+        allowed = set(getattr(rule, "settings", {})) | {"severity"}
+        checked: dict[str, Valued] = {}
+        for name, value in settings.items():
+            path = keys + (rule_id, name)
+            if name not in allowed:
+                fail(path, _unknown(name, allowed).replace("key", f"setting of {rule_id}"))
+            if name == "severity":
+                try:
+                    value = Severity.parse(str(value))
+                except ValueError as error:
+                    fail(path, str(error))
+            elif isinstance(value, bool) or not isinstance(value, (int, float)):
+                fail(path, f"{rule_id}.{name} must be a number, not {value!r}")
+            else:
+                value = float(value)
+            checked[name] = Valued(value, where(*path))
+        result[rule_id] = checked
+    return result
+
+
+@lru_cache(maxsize=256)
+def find_config_file(folder: str) -> str | None:
+    """The closest ampcheck.toml, or pyproject.toml with [tool.ampcheck], from ``folder``
+    upwards; None when there is none."""
+    folder = os.path.abspath(folder)
+    while True:
+        candidate = os.path.join(folder, CONFIG_FILE)
+        if os.path.isfile(candidate):
+            return candidate
+        pyproject = os.path.join(folder, "pyproject.toml")
+        if os.path.isfile(pyproject):
+            try:
+                with open(pyproject, "rb") as handle:
+                    if b"[tool.ampcheck" in handle.read():
+                        return pyproject
+            except OSError:
+                pass
+        parent = os.path.dirname(folder)
+        if parent == folder:
+            return None
+        folder = parent

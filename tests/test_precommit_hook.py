@@ -1,0 +1,58 @@
+"""The pre-commit hook, run for real with `pre-commit try-repo` against this repository."""
+
+import os
+import pathlib
+import shutil
+import subprocess
+import sys
+import textwrap
+
+import pytest
+
+ROOT = pathlib.Path(__file__).resolve().parents[1]
+PRE_COMMIT = [sys.executable, "-m", "pre_commit"]
+
+pytest.importorskip("pre_commit", reason="pre-commit is a test extra: pip install '.[test]'")
+
+GOOD = textwrap.dedent("""\
+    (stage good (supply vcc 15V) (supply vee -15V) (ground gnd)
+      (opamp U1 (part precision-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+      (resistor R1 in fb 10k) (resistor R2 fb out 20k)
+      (source in (range -1V 1V) (band 1Hz 1kHz))
+      (load out (resistance 10k)))
+    """)
+# Gain -20 over a +-1 V input needs +-20 V from +-15 V rails: rail-headroom error.
+BAD = GOOD.replace("stage good", "stage bad").replace("fb out 20k", "fb out 200k")
+
+
+def git(folder, *args):
+    subprocess.run(["git", *args], cwd=folder, check=True, capture_output=True)
+
+
+def test_manifest_is_valid():
+    result = subprocess.run(PRE_COMMIT + ["validate-manifest", str(ROOT / ".pre-commit-hooks.yaml")],
+                            capture_output=True, text=True)
+    assert result.returncode == 0, result.stdout + result.stderr
+
+
+@pytest.mark.skipif(shutil.which("git") is None, reason="needs git")
+def test_hook_fails_on_a_bad_stage_and_passes_once_fixed(tmp_path):
+    project = tmp_path / "board"
+    project.mkdir()
+    git(project, "init", "-q")
+    git(project, "config", "user.email", "reviewer@example.invalid")
+    git(project, "config", "user.name", "Reviewer")
+    (project / "good.stage").write_text(GOOD)
+    (project / "bad.stage").write_text(BAD)
+    git(project, "add", ".")
+    environment = dict(os.environ, PRE_COMMIT_HOME=str(tmp_path / "cache"))
+    command = PRE_COMMIT + ["try-repo", str(ROOT), "ampcheck", "--all-files"]
+    failing = subprocess.run(command, cwd=project, capture_output=True, text=True,
+                             env=environment)
+    assert failing.returncode == 1, failing.stdout + failing.stderr
+    assert "rail-headroom" in failing.stdout and "bad.stage" in failing.stdout
+    (project / "bad.stage").write_text(GOOD.replace("stage good", "stage bad"))
+    git(project, "add", ".")
+    passing = subprocess.run(command, cwd=project, capture_output=True, text=True,
+                             env=environment)
+    assert passing.returncode == 0, passing.stdout + passing.stderr
