@@ -1,4 +1,4 @@
-"""Output swing against the rails, and input voltages against the common-mode range."""
+"""Output swing against the rails (the inputs' common-mode range is rules/common_mode_range.py)."""
 
 from __future__ import annotations
 
@@ -8,8 +8,7 @@ from checker.units import format_si
 
 
 @rule("rail-headroom", "error",
-      "Over the source's range the output clips at a rail, or the inputs leave the"
-      " common-mode range.",
+      "Over the source's range an op-amp output clips at a rail or comes close to it.",
       margin_v=0.1)
 def rail_headroom(view):
     """
@@ -19,14 +18,14 @@ def rail_headroom(view):
         band), widened by the worst case of input offset voltage and bias currents.
         The output may swing to each rail less the part's output headroom: beyond that
         it clips (error); within `margin_v` (or the stage's `headroom` requirement) of
-        it, it is warned. For every op-amp, each input's voltage range is checked
-        against the part's input common-mode range (error).
+        it, it is warned. The inputs' common-mode range is the `common-mode-range`
+        rule's concern, and an op-amp with an input on a net with no DC path (no
+        operating point to check) the `floating-input` rule's.
 
     Why it matters:
         A clipped output is a wrong reading with no sign that it is wrong, and an op-amp
-        driven into its rail recovers slowly. An input outside the common-mode range
-        can flip the output phase or saturate the input stage, which single-supply
-        followers and non-inverting stages meet most often.
+        driven into its rail recovers slowly. A swing that only just fits leaves no
+        room for part-to-part spread, temperature or a supply at its low limit.
 
     How the fix is computed:
         The rule reports the worst-case output, the usable swing between the clip
@@ -43,8 +42,12 @@ def rail_headroom(view):
     stage, figures, settings = view.stage, view.figures, view.settings
     margin = stage.require.headroom_v if stage.require.headroom_v is not None \
         else settings["margin_v"]
+    floating = {n for p in figures.problems if not p.fatal and p.nets and not p.elements
+                for n in p.nets}
     for opamp in stage.opamps:
         part = opamp.part
+        if {opamp.in_pos, opamp.in_neg} & floating:
+            continue  # no DC operating point: the floating-input rule reports it
         if figures.loops[opamp.ref].feedback == "negative":
             if part.output_headroom_high_v is None or part.output_headroom_low_v is None:
                 yield view.cannot_check(f"the output headroom of {opamp.ref}",
@@ -52,7 +55,6 @@ def rail_headroom(view):
                                         " rails were used as the limits",
                                         opamp.origin, (opamp.ref,))
             yield from _output(view, opamp, margin)
-        yield from _common_mode(view, opamp)
 
 
 def _output(view, opamp, margin):
@@ -96,34 +98,3 @@ def _fitting_input(view, net) -> str | None:
                      f" {format_si(window[1], unit)} (declared {format_si(source.low, unit)}"
                      f" to {format_si(source.high, unit)})")
     return "; ".join(parts) or None
-
-
-def _common_mode(view, opamp):
-    part, figures = opamp.part, view.figures
-    if part.input_range_low_v is None or part.input_range_high_v is None:
-        yield view.cannot_check(f"the input common-mode range of {opamp.ref}",
-                                f"part {part.name} gives no input range", opamp.origin,
-                                (opamp.ref,))
-        return
-    rails = view.stage.rail_voltages
-    allowed_low = rails[opamp.v_neg] + part.input_range_low_v
-    allowed_high = rails[opamp.v_pos] + part.input_range_high_v
-    pins = [("in+", opamp.in_pos)]
-    if opamp.in_neg != opamp.in_pos:
-        pins.append(("in-", opamp.in_neg))
-    for pin, net in pins:
-        node = figures.node_range(net)
-        if node.high <= allowed_high and node.low >= allowed_low:
-            continue
-        high_side = node.high - allowed_high >= allowed_low - node.low
-        measured = node.high if high_side else node.low
-        limit = allowed_high if high_side else allowed_low
-        yield view.finding(
-            f"{opamp.ref} {pin} (net {net}) reaches {format_si(measured, 'V')}, outside the"
-            f" part's input common-mode range {format_si(allowed_low, 'V')} to"
-            f" {format_si(allowed_high, 'V')}",
-            opamp.origin, elements=(opamp.ref,), severity=Severity.ERROR, measured=measured,
-            limit=limit, unit="V",
-            suggestion=Suggestion("bias the input inside the range (shift the reference or"
-                                  " the supplies), or choose a part whose input range"
-                                  " includes the rail"))

@@ -1,0 +1,102 @@
+"""Generate N synthetic but varied stage files for audit benchmarks.
+
+Every topology the analysis recognises, both syntaxes, random (seeded) part classes and
+values, and about 2 % broken files (syntax errors, unknown parts, bad units).
+
+Run: .venv/bin/python bench/generate_stages.py FOLDER N [--seed S]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import random
+
+from checker.io.sexp_reader import read_sexp
+
+PARTS = ["gp-bipolar", "precision-bipolar", "jfet-input", "cmos-rrio", "high-speed",
+         "decomp-bipolar-g5"]
+E24 = [1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7,
+       5.1, 5.6, 6.2, 6.8, 7.5, 8.2, 9.1]
+
+
+def value(rng: random.Random, low_exp: int, high_exp: int, unit: str = "") -> str:
+    mantissa = rng.choice(E24)
+    exponent = rng.randint(low_exp, high_exp)
+    number = mantissa * 10 ** exponent
+    for factor, prefix in ((1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "u"),
+                           (1e-9, "n"), (1e-12, "p")):
+        if number >= factor:
+            return f"{number / factor:.3g}{prefix}{unit}"
+    return f"{number:.3g}{unit}"
+
+
+def stage_text(rng: random.Random, index: int) -> str:
+    part = rng.choice(PARTS)
+    rails = "(supply vcc 15V) (supply vee -15V) (ground gnd)"
+    opamp = f"(opamp U1 (part {part}) (in+ {{p}}) (in- {{m}}) (out out) (v+ vcc) (v- vee))"
+    r1, r2 = value(rng, 3, 4), value(rng, 3, 5)
+    source = (f"(source in (range -0.1V 0.1V) (band {rng.choice(['1Hz', '10Hz'])}"
+              f" {rng.choice(['1kHz', '20kHz', '100kHz'])}) (impedance {value(rng, 1, 4)}))")
+    load = f"(load out (resistance {value(rng, 3, 4)}) (capacitance {value(rng, -11, -9)}))"
+    kind = index % 8
+    body = {
+        0: (opamp.format(p="gnd", m="fb"), f"(resistor R1 in fb {r1}) (resistor R2 fb out {r2})"),
+        1: (opamp.format(p="in", m="fb"), f"(resistor R1 fb gnd {r1}) (resistor R2 fb out {r2})"),
+        2: (opamp.format(p="in", m="out"), ""),
+        3: (opamp.format(p="gnd", m="fb"), f"(resistor R1 in fb {r1}) (resistor R2 fb tee {r2})"
+            f" (resistor R3 tee out {r2}) (resistor R4 tee gnd {value(rng, 2, 3)})"),
+        4: (opamp.format(p="pos", m="fb"), f"(resistor R1 in fb {r1}) (resistor R2 fb out {r1})"
+            f" (resistor R3 in2 pos {r1}) (resistor R4 pos gnd {r1})"),
+        5: (opamp.format(p="gnd", m="fb"), f"(resistor R1 in fb {r1}) (resistor R2 fb out {r2})"
+            f" (capacitor C1 fb out {value(rng, -12, -10)})"),
+        6: (opamp.format(p="in", m="ref"), "(resistor R1 vcc ref 10k) (resistor R2 ref gnd 10k)"),
+        7: (opamp.format(p="gnd", m="fb"), f"(resistor R1 in fb {r1}) (capacitor C1 fb out"
+            f" {value(rng, -9, -7)}) (resistor R2 fb out {value(rng, 5, 6)})"),
+    }[kind]
+    extra = " (source in2 (range -0.1V 0.1V) (impedance 100))" if kind == 4 else ""
+    return (f"(stage bench-{index} {rails}\n  {body[0]}\n  {body[1]}\n  {source}{extra}\n"
+            f"  {load})\n")
+
+
+BROKEN = [
+    "(stage broken (ground gnd)\n  (opamp U1 (part gp-bipolar) (in+ a) (in- b)",
+    "(stage broken (ground gnd) (supply vcc 5V)\n  (opamp U1 (part no-such-part) (in+ a)"
+    " (in- a) (out o) (v+ vcc) (v- gnd)) (resistor R1 a o 10k))",
+    "(stage broken (ground gnd) (supply vcc 5V)\n  (opamp U1 (part gp-bipolar) (in+ a)"
+    " (in- a) (out o) (v+ vcc) (v- gnd)) (resistor R1 a o 10F))",
+]
+
+
+def generate(folder: str, count: int, seed: int = 7) -> list[str]:
+    rng = random.Random(seed)
+    os.makedirs(folder, exist_ok=True)
+    paths = []
+    for i in range(count):
+        sub = os.path.join(folder, f"board{i // 500:03d}")
+        os.makedirs(sub, exist_ok=True)
+        if rng.random() < 0.02:
+            path = os.path.join(sub, f"s{i:05d}.stage")
+            text = rng.choice(BROKEN)
+        else:
+            text = stage_text(rng, i)
+            if i % 3 == 0:
+                tree, _ = read_sexp(text, "generated")
+                path = os.path.join(sub, f"s{i:05d}.stage.json")
+                text = json.dumps(tree, indent=1)
+            else:
+                path = os.path.join(sub, f"s{i:05d}.stage")
+        with open(path, "w", encoding="utf-8") as handle:
+            handle.write(text)
+        paths.append(path)
+    return paths
+
+
+if __name__ == "__main__":
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("folder")
+    parser.add_argument("count", type=int)
+    parser.add_argument("--seed", type=int, default=7)
+    args = parser.parse_args()
+    print(f"wrote {len(generate(args.folder, args.count, args.seed))} files to {args.folder}")

@@ -1,0 +1,276 @@
+"""Closed-loop bandwidth against the band, and the gain lost at the band's top."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import replace
+
+import numpy as np
+
+from checker.engine import rule
+from checker.findings import Severity, Suggestion
+from checker.preferred import at_least, ladder, smallest_passing
+from checker.units import format_si
+
+# An op-amp with this much flat open-loop gain stands in for an ideal one: the error it
+# leaves in a closed-loop gain is about 1e-9 of it, far below any tolerance.
+IDEAL_GAIN = 1e9
+
+
+@rule("bandwidth", "warning",
+      "The closed-loop bandwidth falls short of the band, or finite loop gain costs gain"
+      " at the top of the band.",
+      max_gain_error=0.01)
+def bandwidth(view):
+    """
+    What it checks:
+        For every signal source, the solved -3 dB upper edge of its closed-loop gain to
+        the stage output. It must reach the stage's `bandwidth` requirement (error when
+        it does not) or, without one, the top of the source's band (warning). Where the
+        bandwidth passes and the source gives a band, the gain at the band's top is
+        compared with the gain of the same stage built with ideal op-amps (flat
+        open-loop gain of 1e9, no poles; the network, its capacitors and the op-amps'
+        input capacitances kept): the difference is the error that finite loop gain
+        adds there. It must stay within the stage's `gain-tolerance` or, without one,
+        `max_gain_error` (warning). A stage with an op-amp that has no negative
+        feedback is left to the `open-loop` rule.
+
+    Why it matters:
+        A single-pole op-amp trades gain for bandwidth: the loop gain falls with
+        frequency, and the closed-loop gain falls with it once the loop gain nears the
+        noise gain. A stage whose -3 dB edge sits inside the band reads the top of the
+        band low by 30 % or more; well before that edge, the gain at the top of the
+        band is already short of the mid-band gain the design was computed for.
+
+    How the fix is computed:
+        Where the ideal-op-amp stage would reach the bandwidth, the op-amp limits it.
+        For a single-pole op-amp the closed-loop bandwidth is about GBW / noise gain,
+        so the GBW needed is about the required bandwidth times the noise gain (read
+        from the solved loop at mid-band). The rule then scales the limiting op-amp's
+        GBW (its open-loop gain and second pole kept) over the E12 values from half
+        that estimate, solves each, and reports the smallest whose solved bandwidth
+        reaches the limit; the alternative is a noise gain no higher than GBW / the
+        required bandwidth. Where even ideal op-amps fall short, the network itself
+        (a feedback capacitor, a source's RC) sets the bandwidth: against a stated
+        `bandwidth` requirement the rule says so; against the band's top alone it
+        stays quiet, since a filter or an integrator shapes the band on purpose.
+        For the gain error it reports the loop gain at the band's top and the GBW that
+        brings the error within the limit, found the same way (starting from the edge a
+        single pole needs for that error, f / sqrt(1/(1 - e)^2 - 1)); a bandwidth
+        finding on a source with a band names that GBW too, since a -3 dB edge at the
+        band's top still leaves the top 30 % low.
+
+    Sources:
+        Closed-loop bandwidth about GBW / noise gain for a single-pole op-amp, and the
+        closed-loop gain G_ideal * T/(1 + T) with T the loop gain: common practice
+        (e.g. Sedra and Smith, Microelectronic Circuits, op-amp chapter).
+    """
+    stage, figures = view.stage, view.figures
+    if not figures.sources:
+        return
+    wanted = [sf for sf in figures.sources
+              if stage.require.bandwidth_hz or sf.source.band_high_hz]
+    if not wanted:
+        return
+    if any(not _closes(figures.loops[o.ref]) for o in stage.opamps):
+        return  # an op-amp without negative feedback: the open-loop rule reports it
+    without_gbw = [o for o in stage.opamps if o.part.gbw_hz is None]
+    for opamp in without_gbw:
+        yield view.cannot_check(f"the bandwidth of {opamp.ref}",
+                                f"part {opamp.part.name} gives no GBW", opamp.origin,
+                                (opamp.ref,))
+    if without_gbw:
+        return
+    ideal = view.reanalyse(_ideal_opamps(stage))
+    for sf in wanted:
+        yield from _check_source(view, sf, ideal)
+
+
+def _closes(loop) -> bool:
+    return loop.feedback == "negative" or (loop.feedback == "none" and loop.closes_anywhere)
+
+
+def _ideal_opamps(stage):
+    """The stage with every op-amp's gain flat and (nearly) infinite."""
+    opamps = tuple(replace(o, part=replace(o.part, open_loop_gain=IDEAL_GAIN, gbw_hz=None,
+                                           second_pole_hz=None))
+                   for o in stage.opamps)
+    return replace(stage, opamps=opamps)
+
+
+def _limiting_opamp(view):
+    """The op-amp whose loop crosses over lowest (the one that runs out of loop gain
+    first), among those with negative feedback somewhere."""
+    figures = view.figures
+    closed = [(figures.loops[o.ref].crossover_hz, i, o) for i, o in enumerate(view.stage.opamps)
+              if figures.loops[o.ref].closes_anywhere
+              and figures.loops[o.ref].crossover_hz is not None]
+    if closed:
+        return min(closed)[2]
+    return view.stage.opamps[-1]
+
+
+def _at(frequencies, values, frequency: float):
+    """values at the grid point nearest to ``frequency`` (band edges are on the grid)."""
+    return values[int(np.argmin(np.abs(np.log(frequencies / frequency))))]
+
+
+def _noise_gain(view, opamp, frequency: float) -> float:
+    loop = view.figures.loops[opamp.ref]
+    return float(abs(_at(view.figures.frequencies_hz, loop.noise_gain, frequency)))
+
+
+def _with_gbw(stage, ref: str, gbw: float):
+    opamps = tuple(replace(o, part=replace(o.part, gbw_hz=gbw)) if o.ref == ref else o
+                   for o in stage.opamps)
+    return replace(stage, opamps=opamps)
+
+
+def _smallest_gbw(view, opamp, estimate: float, passes) -> tuple[float, object] | None:
+    """The smallest E12 GBW from estimate/2 up to 1000 x the estimate whose solved
+    figures pass; (gbw, figures) or None."""
+    solved = {}
+
+    def figures_with(gbw):
+        if gbw not in solved:
+            solved[gbw] = view.reanalyse(_with_gbw(view.stage, opamp.ref, gbw))
+        return solved[gbw]
+
+    values = ladder(at_least(estimate / 2, "E12"), estimate * 1000, "E12")
+    best = smallest_passing(values, lambda gbw: passes(figures_with(gbw)))
+    return None if best is None else (best, figures_with(best))
+
+
+def _check_source(view, sf, ideal):
+    stage = view.stage
+    source = sf.source
+    required = stage.require.bandwidth_hz
+    if required:
+        severity, reason = Severity.ERROR, "the required bandwidth"
+    else:
+        required = source.band_high_hz
+        severity, reason = Severity.WARNING, f"the top of {source.name}'s band"
+    measured = sf.bandwidth_high_hz if sf.bandwidth_high_hz is not None else math.inf
+    opamp = _limiting_opamp(view)
+    if measured < required:
+        finding = _short_bandwidth(view, sf, ideal, opamp, measured, required, severity,
+                                   reason)
+        if finding is not None:
+            yield finding
+        return
+    if source.band_high_hz:
+        yield from _gain_error(view, sf, ideal, opamp)
+
+
+def _short_bandwidth(view, sf, ideal, opamp, measured, required, severity, reason):
+    source = sf.source
+    ideal_sf = ideal.sources[sf.index]
+    ideal_bw = ideal_sf.bandwidth_high_hz if ideal_sf.bandwidth_high_hz is not None \
+        else math.inf
+    message = (f"{source.name} reaches the output with a -3 dB bandwidth of"
+               f" {format_si(measured, 'Hz')}, below {reason} ({format_si(required, 'Hz')})")
+    if ideal_bw < required and not view.stage.require.bandwidth_hz:
+        return None  # the network shapes the band on purpose (a filter, an integrator)
+    if ideal_bw < required:
+        message += (f"; with ideal op-amps it would still be {format_si(ideal_bw, 'Hz')},"
+                    " so the network sets it")
+        suggestion = Suggestion("the feedback network or the source's RC limits the band:"
+                                " lower the feedback capacitance or the resistance it"
+                                f" works against until the edge passes {format_si(required, 'Hz')}")
+        return view.finding(message, opamp.origin, elements=(opamp.ref, source.name),
+                            severity=severity, measured=measured, limit=required, unit="Hz",
+                            suggestion=suggestion, ideal_bandwidth_hz=ideal_bw)
+    gbw = opamp.part.gbw_hz
+    noise_gain = _noise_gain(view, opamp, sf.reference_hz)
+    estimate = required * noise_gain  # closed-loop bandwidth ~ GBW / noise gain
+    message += (f"; {opamp.ref}'s {format_si(gbw, 'Hz')} GBW over a noise gain of"
+                f" {noise_gain:.3g} leaves about {format_si(gbw / noise_gain, 'Hz')}")
+
+    def passes(result):
+        edge = result.sources[sf.index].bandwidth_high_hz
+        return edge is None or edge >= required
+
+    found = _smallest_gbw(view, opamp, estimate, passes)
+    most_noise_gain = gbw / required
+    details = {"noise_gain": noise_gain, "ideal_bandwidth_hz": ideal_bw,
+               "gbw_estimate_hz": estimate}
+    if found is None:
+        suggestion = Suggestion(
+            f"no GBW up to {format_si(estimate * 1000, 'Hz')} reaches"
+            f" {format_si(required, 'Hz')} with {opamp.ref}'s other poles: lower the noise"
+            f" gain (at most about {most_noise_gain:.3g} on this part)")
+    else:
+        chosen, result = found
+        edge = result.sources[sf.index].bandwidth_high_hz
+        text = (f"choose a part for {opamp.ref} with a GBW of at least"
+                f" {format_si(chosen, 'Hz')} (required bandwidth x noise gain ~"
+                f" {format_si(estimate, 'Hz')}; solved -3 dB edge with it"
+                f" {format_si(edge, 'Hz') if edge else 'beyond the grid'}), or lower the noise"
+                f" gain to about {most_noise_gain:.3g} or less")
+        if source.band_high_hz:
+            flat = _gbw_for_gain_error(view, sf, ideal, opamp, noise_gain)
+            if flat is not None:
+                details["gbw_for_gain_error_hz"] = flat
+                text += (f"; for the gain at {format_si(source.band_high_hz, 'Hz')} within"
+                         f" {format_si(_gain_error_limit(view)[0], '%')} of the ideal, at"
+                         f" least {format_si(flat, 'Hz')}")
+        suggestion = Suggestion(text, value=chosen, unit="Hz", element=opamp.ref)
+    return view.finding(message, opamp.origin, elements=(opamp.ref, source.name),
+                        severity=severity, measured=measured, limit=required, unit="Hz",
+                        suggestion=suggestion, **details)
+
+
+def _gain_error_limit(view) -> tuple[float, str]:
+    if view.stage.require.gain_tolerance is not None:
+        return view.stage.require.gain_tolerance, "the stage's gain tolerance"
+    return view.settings["max_gain_error"], "the default limit"
+
+
+def _error_at_top(result, ideal, index: int, top: float) -> float:
+    """| |G(top)| / |G_ideal(top)| - 1 |, both read from solved gains."""
+    real = abs(_at(result.frequencies_hz, result.sources[index].gain, top))
+    perfect = abs(_at(ideal.frequencies_hz, ideal.sources[index].gain, top))
+    if perfect == 0:
+        return 0.0
+    return float(abs(real / perfect - 1))
+
+
+def _gbw_for_gain_error(view, sf, ideal, opamp, noise_gain: float) -> float | None:
+    """The smallest E12 GBW whose solved gain error at the band's top is within the
+    limit. Start: for a single pole, |T/(1+T)| = 1 - e at f needs a closed-loop edge
+    near f / sqrt(1/(1-e)^2 - 1), and GBW ~ that edge times the noise gain (common
+    practice)."""
+    limit = _gain_error_limit(view)[0]
+    top = sf.source.band_high_hz
+    edge_needed = top / math.sqrt(1 / (1 - min(limit, 0.5)) ** 2 - 1)
+    found = _smallest_gbw(view, opamp, edge_needed * noise_gain,
+                          lambda result: _error_at_top(result, ideal, sf.index, top) <= limit)
+    return None if found is None else found[0]
+
+
+def _gain_error(view, sf, ideal, opamp):
+    figures = view.figures
+    source = sf.source
+    top = source.band_high_hz
+    error = _error_at_top(figures, ideal, sf.index, top)
+    limit, reason = _gain_error_limit(view)
+    if error <= limit:
+        return
+    loop = figures.loops[opamp.ref]
+    loop_gain = float(abs(_at(figures.frequencies_hz, loop.loop_gain, top)))
+    noise_gain = _noise_gain(view, opamp, top)
+    message = (f"at the top of {source.name}'s band ({format_si(top, 'Hz')}) the gain is"
+               f" {format_si(error, '%')} off the ideal-op-amp gain, beyond {reason}"
+               f" ({format_si(limit, '%')}): {opamp.ref}'s loop gain there is only"
+               f" {loop_gain:.3g} against a noise gain of {noise_gain:.3g}")
+    chosen = _gbw_for_gain_error(view, sf, ideal, opamp, noise_gain)
+    if chosen is None:
+        suggestion = Suggestion("lower the noise gain or split the gain over two stages")
+    else:
+        suggestion = Suggestion(
+            f"choose a part for {opamp.ref} with a GBW of at least {format_si(chosen, 'Hz')}"
+            f" (solved error with it within {format_si(limit, '%')}), or lower the noise"
+            " gain", value=chosen, unit="Hz", element=opamp.ref)
+    yield view.finding(message, opamp.origin, elements=(opamp.ref, source.name),
+                       measured=error, limit=limit, unit="%", suggestion=suggestion,
+                       loop_gain_at_top=loop_gain, frequency_hz=top)

@@ -1,0 +1,87 @@
+"""Each op-amp input's voltage against the part's input common-mode range."""
+
+from __future__ import annotations
+
+from checker.engine import rule
+from checker.findings import Suggestion
+from checker.units import format_si
+
+
+@rule("common-mode-range", "error",
+      "Over the source's range an op-amp input leaves the part's common-mode range.")
+def common_mode_range(view):
+    """
+    What it checks:
+        For every op-amp, the DC extremes of each input net over the sources' declared
+        ranges (an AC amplitude counts at its peak over the band), widened by the worst
+        case of input offset voltage and bias currents, against the part's input
+        common-mode range: from V- plus `input-range-low` to V+ plus
+        `input-range-high`. An input outside it is an error; the inverting input is
+        checked only when it is a different net from the non-inverting one, and, with
+        negative feedback holding it at the non-inverting input's level, reported only
+        when the non-inverting input is not already. An op-amp
+        with an input on a net with no DC path has no DC level to check; the
+        `floating-input` rule reports it.
+
+    Why it matters:
+        Outside its common-mode range an input stage saturates: the gain collapses,
+        some parts flip the output phase and latch at a rail, and the reading is wrong
+        with no sign that it is. Single-supply followers and non-inverting stages whose
+        input runs near a rail meet this most often, and a bipolar or JFET input that
+        does not reach its negative rail is the usual cause.
+
+    How the fix is computed:
+        The finding reports the input's extreme and the allowed window worked from the
+        rails; the fix is to bias the input inside that window (shift the reference or
+        the supplies) or to choose a part whose input range includes the rail.
+
+    Sources:
+        Superposition of the DC solution over the sources' ranges with offset and bias
+        currents as sources (linear circuit theory). Common-mode input range as a
+        limit on the inputs: any op-amp data sheet convention, e.g. R. Mancini (ed.),
+        Op Amps for Everyone, chapter on op-amp parameters.
+    """
+    stage, figures = view.stage, view.figures
+    rails = stage.rail_voltages
+    floating = {n for p in figures.problems if not p.fatal and p.nets and not p.elements
+                for n in p.nets}
+    for opamp in stage.opamps:
+        part = opamp.part
+        if {opamp.in_pos, opamp.in_neg} & floating:
+            continue  # no DC level to check: the floating-input rule reports it
+        if part.input_range_low_v is None or part.input_range_high_v is None:
+            yield view.cannot_check(f"the input common-mode range of {opamp.ref}",
+                                    f"part {part.name} gives no input range", opamp.origin,
+                                    (opamp.ref,))
+            continue
+        allowed_low = rails[opamp.v_neg] + part.input_range_low_v
+        allowed_high = rails[opamp.v_pos] + part.input_range_high_v
+        reported = []
+        pins = [("in+", opamp.in_pos)]
+        if opamp.in_neg != opamp.in_pos:
+            pins.append(("in-", opamp.in_neg))
+        closed = figures.loops[opamp.ref].feedback == "negative"
+        for pin, net in pins:
+            node = figures.node_range(net)
+            if node.high <= allowed_high and node.low >= allowed_low:
+                continue
+            if pin == "in-" and closed and reported:
+                continue  # feedback holds in- at in+: the same fault, reported once
+            high_side = node.high - allowed_high >= allowed_low - node.low
+            measured = node.high if high_side else node.low
+            limit = allowed_high if high_side else allowed_low
+            side = "above the top" if high_side else "below the bottom"
+            reported.append(view.finding(
+                f"{opamp.ref} {pin} (net {net}) reaches {format_si(measured, 'V')},"
+                f" {format_si(abs(measured - limit), 'V')} {side} of the part's input"
+                f" common-mode range {format_si(allowed_low, 'V')} to"
+                f" {format_si(allowed_high, 'V')}",
+                opamp.origin, elements=(opamp.ref,), measured=measured, limit=limit,
+                unit="V", pin=pin, net=net, allowed_low=allowed_low,
+                allowed_high=allowed_high,
+                suggestion=Suggestion(
+                    f"keep {net} between {format_si(allowed_low, 'V')} and"
+                    f" {format_si(allowed_high, 'V')}: bias the input inside the range"
+                    " (shift the reference or the supplies), or choose a part whose input"
+                    " range includes the rail")))
+        yield from reported

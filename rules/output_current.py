@@ -1,0 +1,206 @@
+"""The current an op-amp's output must deliver against the part's output-current limit."""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import numpy as np
+
+from checker.analysis.topology import classify
+from checker.engine import rule
+from checker.findings import Suggestion
+from checker.preferred import at_least, ladder, smallest_passing
+from checker.units import format_si
+
+
+@rule("output-current", "error",
+      "The load, the feedback network and any capacitance on the output ask for more"
+      " current than the op-amp can deliver.")
+def output_current(view):
+    """
+    What it checks:
+        For every op-amp with negative feedback, the largest current its output pin
+        sources or sinks: the solved DC current into the load and the feedback network
+        at the extremes of the sources' ranges, plus the current that capacitance on
+        the output takes from a signal at the top of its band, C x 2 pi f x Vpeak, with
+        Vpeak the solved swing of the capacitor's net (the source's half-span times
+        |transfer| there). Capacitance counts where it hangs on the output net or behind
+        one series resistor from it: a load's capacitance, or a capacitor to ground or a
+        rail. An op-amp whose loop closes only above DC (an integrator with nothing
+        across its capacitor) has no defined DC output, and the rule says it could not
+        check it. The two parts are added, a worst case (they peak a quarter cycle apart for
+        a pure sine, but not for every waveform). The total must not exceed the part's
+        output current.
+
+    Why it matters:
+        At its output-current limit an op-amp stops following its input: the output
+        clips short of the rails, a capacitive load turns a sine into a ramp, and a
+        part driven into its limit for long runs hot. Low-value feedback resistors draw
+        current too, which a glance at the load alone misses.
+
+    How the fix is computed:
+        Each candidate is solved again. First the load: the smallest E24 load
+        resistance, up from the one drawn, whose solved total fits (the least the output
+        can drive). Where no load value fits, the feedback network: the smallest E24
+        value of the feedback resistor, up from the one drawn, with every resistor at
+        the inverting input (and a T-network's) scaled by the same factor so the gain
+        stays, whose solved total fits. Otherwise, or where the capacitive current
+        alone is too much, a buffer (or a part) rated for the total, rounded up to an
+        E12 figure.
+
+    Sources:
+        Ohm's law and Kirchhoff's current law on the solved operating point; the
+        capacitor current C dV/dt, 2 pi f C Vpeak for a sine (any circuits text). Adding
+        the resistive and capacitive peaks: common practice for a worst case.
+    """
+    stage, figures = view.stage, view.figures
+    for opamp in stage.opamps:
+        loop = figures.loops[opamp.ref]
+        if loop.feedback == "none" and loop.closes_anywhere:
+            yield view.cannot_check(f"the output current of {opamp.ref}",
+                                    "its loop has no feedback at DC (an integrator), so the"
+                                    " circuit does not set its output's DC level",
+                                    opamp.origin, (opamp.ref,))
+            continue
+        if loop.feedback != "negative":
+            continue  # without negative feedback: the open-loop rule
+        part = opamp.part
+        if part.output_current_a is None:
+            yield view.cannot_check(f"the output current of {opamp.ref}",
+                                    f"part {part.name} gives no output-current limit",
+                                    opamp.origin, (opamp.ref,))
+            continue
+        resistive, capacitive = _drawn(figures, opamp)
+        total = resistive + capacitive
+        limit = part.output_current_a
+        if total <= limit:
+            continue
+        message = (f"{opamp.ref} must deliver {format_si(total, 'A')} but its part is"
+                   f" limited to {format_si(limit, 'A')}: {format_si(resistive, 'A')} into"
+                   f" the load and feedback network at the output's extremes")
+        if capacitive:
+            message += (f", plus {format_si(capacitive, 'A')} into the capacitance on the"
+                        f" output at the top of the band")
+        yield view.finding(message, opamp.origin, elements=(opamp.ref,), measured=total,
+                           limit=limit, unit="A",
+                           suggestion=_suggest(view, opamp, total, capacitive, limit),
+                           resistive_a=resistive, capacitive_a=capacitive)
+
+
+def _capacitances(stage, opamp) -> list[tuple[str, float]]:
+    """(net, farads) of capacitance to a fixed net on the output or behind one series
+    resistor from it."""
+    rails = set(stage.rail_voltages)
+    nets = {opamp.out}
+    nets.update(p.other(opamp.out) for p in stage.resistors()
+                if opamp.out in p.nets and p.other(opamp.out) not in rails
+                and p.other(opamp.out) != opamp.in_neg)
+    found = [(load.net, load.capacitance_f) for load in stage.loads
+             if load.net in nets and load.capacitance_f]
+    found += [(net, p.value) for p in stage.capacitors() for net in nets
+              if net in p.nets and p.other(net) in rails]
+    return found
+
+
+def _slope(figures, net: str) -> float:
+    """Largest dV/dt of ``net`` a sine at each source's band asks for, 2 pi f Vpeak with
+    Vpeak the half-span times the solved |transfer| (the band's top unless the response
+    peaks inside it), summed over the sources."""
+    frequencies = figures.frequencies_hz
+    total = 0.0
+    for index, source in enumerate(figures.stage.sources):
+        if not source.band_high_hz or source.low is None:
+            continue
+        half = (source.high - source.low) / 2
+        low = source.band_low_hz or 0.0
+        band = (frequencies >= low * (1 - 1e-12)) & \
+            (frequencies <= source.band_high_hz * (1 + 1e-12))
+        if half <= 0 or not band.any():
+            continue
+        response = np.abs(figures.node_response(net, ("source", index)))[band]
+        total += float(np.max(2 * np.pi * frequencies[band] * half * response))
+    return total
+
+
+def _drawn(figures, opamp) -> tuple[float, float]:
+    """(resistive peak from the DC solution, capacitive peak C 2 pi f Vpeak) in A."""
+    resistive = figures.output_currents[opamp.ref].peak_a
+    capacitive = sum((farads * _slope(figures, net)
+                      for net, farads in _capacitances(figures.stage, opamp)), 0.0)
+    return resistive, capacitive
+
+
+def _fits(view, opamp, stage) -> bool:
+    result = view.reanalyse(stage)
+    return sum(_drawn(result, opamp)) <= opamp.part.output_current_a
+
+
+def _suggest(view, opamp, total, capacitive, limit) -> Suggestion:
+    stage = view.stage
+    rated = at_least(total, "E12")
+    buffer = Suggestion(f"buffer the output of {opamp.ref} with a stage rated for at least"
+                        f" {format_si(rated, 'A')}, or choose a part for {opamp.ref} with that"
+                        " output current", value=rated, unit="A", element=opamp.ref)
+    if capacitive >= limit:
+        return buffer
+    loads = [load for load in stage.loads if load.resistance_ohm
+             and load.net in {opamp.out} | {n for n, _c in _capacitances(stage, opamp)}
+             | _series_nets(stage, opamp)]
+    if loads:
+        load = loads[0]
+
+        def with_load(ohms):
+            changed = tuple(replace(item, resistance_ohm=ohms) if item is load else item
+                            for item in stage.loads)
+            return replace(stage, loads=changed)
+
+        values = ladder(load.resistance_ohm * 1.0001, 1e9, "E24")
+        best = smallest_passing(values, lambda ohms: _fits(view, opamp, with_load(ohms)))
+        if best is not None:
+            return Suggestion(
+                f"{opamp.ref} can drive no less than {format_si(best, 'Ω')} (E24) on"
+                f" {load.net}: raise the load to that, or buffer it with a stage rated for"
+                f" {format_si(total, 'A')}", value=best, unit="Ω", element=f"load {load.net}")
+    network = _network(stage, opamp)
+    if network:
+        feedback, scaled = network
+
+        def with_feedback(ohms):
+            factor = ohms / feedback.value
+            changed = tuple(replace(p, value=p.value * factor) if p.ref in scaled else p
+                            for p in stage.passives)
+            return replace(stage, passives=changed)
+
+        values = ladder(feedback.value * 1.0001, feedback.value * 1000, "E24")
+        best = smallest_passing(values,
+                                lambda ohms: _fits(view, opamp, with_feedback(ohms)))
+        if best is not None:
+            others = sorted(scaled - {feedback.ref})
+            also = (f" and scale {', '.join(others)} by the same factor"
+                    f" ({best / feedback.value:.3g}) so the gain stays" if others else "")
+            return Suggestion(
+                f"the feedback network draws the current: raise {feedback.ref} to"
+                f" {format_si(best, 'Ω')} (E24){also}", value=best, unit="Ω",
+                element=feedback.ref)
+    return buffer
+
+
+def _series_nets(stage, opamp) -> set[str]:
+    rails = set(stage.rail_voltages)
+    return {p.other(opamp.out) for p in stage.resistors()
+            if opamp.out in p.nets and p.other(opamp.out) not in rails | {opamp.in_neg}}
+
+
+def _network(stage, opamp):
+    """(the feedback resistor, the refs of every resistor to scale with it) or None."""
+    topology = classify(stage, opamp)
+    resistors = {p.ref: p for p in stage.resistors()}
+    feedback = [resistors[r] for r in topology.feedback_elements if r in resistors]
+    if not feedback and topology.tee_elements:
+        feedback = [resistors[topology.tee_elements[1]]]
+    if not feedback:
+        return None
+    scaled = {p.ref for p in stage.resistors() if opamp.in_neg in p.nets}
+    scaled.update(topology.tee_elements)
+    scaled.add(feedback[0].ref)
+    return feedback[0], scaled
