@@ -22,7 +22,7 @@ E24 = [1.0, 1.1, 1.2, 1.3, 1.5, 1.6, 1.8, 2.0, 2.2, 2.4, 2.7, 3.0, 3.3, 3.6, 3.9
 
 
 def value(rng: random.Random, low_exp: int, high_exp: int, unit: str = "") -> str:
-    mantissa = rng.choice(E24)
+    mantissa = rng.choice(E24 if low_exp >= 0 else E24[::2])  # capacitors from E12
     exponent = rng.randint(low_exp, high_exp)
     number = mantissa * 10 ** exponent
     for factor, prefix in ((1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"), (1e-6, "u"),
@@ -33,29 +33,41 @@ def value(rng: random.Random, low_exp: int, high_exp: int, unit: str = "") -> st
 
 
 def stage_text(rng: random.Random, index: int) -> str:
-    part = rng.choice(PARTS)
-    rails = "(supply vcc 15V) (supply vee -15V) (ground gnd)"
+    """One plausible stage of eight kinds; about one in five carries a deliberate defect
+    (as in a legacy audit, where most stages pass)."""
+    part = rng.choice(PARTS[:4])
+    rails = ("(supply vcc 2.5V) (supply vee -2.5V) (ground gnd)" if part.startswith("cmos")
+             else "(supply vcc 15V) (supply vee -15V) (ground gnd)")
     opamp = f"(opamp U1 (part {part}) (in+ {{p}}) (in- {{m}}) (out out) (v+ vcc) (v- vee))"
-    r1, r2 = value(rng, 3, 4), value(rng, 3, 5)
-    source = (f"(source in (range -0.1V 0.1V) (band {rng.choice(['1Hz', '10Hz'])}"
-              f" {rng.choice(['1kHz', '20kHz', '100kHz'])}) (impedance {value(rng, 1, 4)}))")
-    load = f"(load out (resistance {value(rng, 3, 4)}) (capacitance {value(rng, -11, -9)}))"
+    defect = rng.random() < 0.2
+    r1 = value(rng, 3, 4)
+    r2 = value(rng, 3, 4)
+    impedance = value(rng, 1, 2) if not defect else value(rng, 3, 4)
+    band = rng.choice(["1kHz", "5kHz", "10kHz"])
+    source = (f"(source in (range -0.2V 0.2V) (band {rng.choice(['1Hz', '10Hz'])} {band})"
+              f" (impedance {impedance}))")
+    load_cap = value(rng, -12, -11) if not defect else value(rng, -9, -8)
+    load = f"(load out (resistance {value(rng, 4, 4)}) (capacitance {load_cap}))"
     kind = index % 8
+    fb_cap = f"(capacitor C1 fb out {value(rng, -12, -11)})"
     body = {
-        0: (opamp.format(p="gnd", m="fb"), f"(resistor R1 in fb {r1}) (resistor R2 fb out {r2})"),
-        1: (opamp.format(p="in", m="fb"), f"(resistor R1 fb gnd {r1}) (resistor R2 fb out {r2})"),
+        0: (opamp.format(p="gnd", m="fb"), f"(resistor R1 in fb {r1}) (resistor R2 fb out {r2})"
+            f" {fb_cap}"),
+        1: (opamp.format(p="in", m="fb"), f"(resistor R1 fb gnd {r1}) (resistor R2 fb out {r2})"
+            f" {fb_cap}"),
         2: (opamp.format(p="in", m="out"), ""),
-        3: (opamp.format(p="gnd", m="fb"), f"(resistor R1 in fb {r1}) (resistor R2 fb tee {r2})"
-            f" (resistor R3 tee out {r2}) (resistor R4 tee gnd {value(rng, 2, 3)})"),
-        4: (opamp.format(p="pos", m="fb"), f"(resistor R1 in fb {r1}) (resistor R2 fb out {r1})"
-            f" (resistor R3 in2 pos {r1}) (resistor R4 pos gnd {r1})"),
+        3: (opamp.format(p="gnd", m="fb"), f"(resistor R1 in fb {r1}) (resistor R2 fb tee {r1})"
+            f" (resistor R3 tee out {r1}) (resistor R4 tee gnd {value(rng, 2, 3)}) {fb_cap}"),
+        4: (opamp.format(p="pos", m="fb"), f"(resistor R1 in fb {r1} (tolerance 0.1%))"
+            f" (resistor R2 fb out {r1} (tolerance 0.1%)) (resistor R3 in2 pos {r1}"
+            f" (tolerance 0.1%)) (resistor R4 pos gnd {r1} (tolerance 0.1%))"),
         5: (opamp.format(p="gnd", m="fb"), f"(resistor R1 in fb {r1}) (resistor R2 fb out {r2})"
-            f" (capacitor C1 fb out {value(rng, -12, -10)})"),
+            f" {fb_cap}"),
         6: (opamp.format(p="in", m="ref"), "(resistor R1 vcc ref 10k) (resistor R2 ref gnd 10k)"),
         7: (opamp.format(p="gnd", m="fb"), f"(resistor R1 in fb {r1}) (capacitor C1 fb out"
-            f" {value(rng, -9, -7)}) (resistor R2 fb out {value(rng, 5, 6)})"),
+            f" {value(rng, -9, -8)}) (resistor R2 fb out {value(rng, 5, 5)})"),
     }[kind]
-    extra = " (source in2 (range -0.1V 0.1V) (impedance 100))" if kind == 4 else ""
+    extra = f" (source in2 (range -0.2V 0.2V) (impedance {impedance}))" if kind == 4 else ""
     return (f"(stage bench-{index} {rails}\n  {body[0]}\n  {body[1]}\n  {source}{extra}\n"
             f"  {load})\n")
 

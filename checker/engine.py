@@ -25,6 +25,7 @@ from checker.analysis.mna import SingularCircuit
 from checker.findings import Finding, Severity, Suggestion
 from checker.model import Origin, Stage
 
+REANALYSIS_POINTS = 100
 RULE_ID = re.compile(r"^[a-z][a-z0-9]*(-[a-z0-9]+)*$")
 DOC_SECTIONS = ("What it checks", "Why it matters", "How the fix is computed", "Sources")
 ENGINE_RULES = {
@@ -145,7 +146,10 @@ class StageView:
     siblings: dict[str, Figures] = field(default_factory=dict)  # other stages of the file
 
     def reanalyse(self, stage: Stage, **options) -> Figures:
-        """Figures of a modified copy of the stage (to verify a suggested fix)."""
+        """Figures of a modified copy of the stage (to verify a suggested fix), on a
+        coarser grid: crossovers are refined locally and band edges interpolated, so
+        half the points keep the margins and edges a fix is judged by."""
+        options.setdefault("points", min(self.figures.options.points, REANALYSIS_POINTS))
         return analyse(stage, replace(self.figures.options, **options))
 
     def finding(self, message: str, at: Origin | None = None, *, elements=(),

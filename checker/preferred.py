@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import bisect
 import math
 
 # IEC 60063 lists E12 and E24 explicitly; they depart from round(10^(i/n), 1) at several
@@ -28,10 +29,17 @@ def series_for_tolerance(tolerance: float | None) -> str:
 
 
 def _candidates(value: float, series: str) -> list[float]:
+    """The members of ``series`` around ``value``: the two neighbours in its decade and
+    the nearest ones across the decade boundaries (a handful, found by bisection)."""
     decade = math.floor(math.log10(value))
-    values = []
-    for exponent in (decade - 1, decade, decade + 1):
-        values.extend(m * 10.0 ** exponent for m in SERIES[series])
+    mantissas = SERIES[series]
+    scale = 10.0 ** decade
+    i = bisect.bisect_left(mantissas, value / scale)
+    values = [m * scale for m in mantissas[max(i - 1, 0):i + 1]]
+    values.append(mantissas[-1] * scale / 10)  # the last member of the decade below
+    values.append(mantissas[0] * scale * 10)  # the first member of the decade above
+    values.append(mantissas[0] * scale)
+    values.append(mantissas[-1] * scale)
     return values
 
 
