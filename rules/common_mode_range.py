@@ -43,8 +43,7 @@ def common_mode_range(view):
     """
     stage, figures = view.stage, view.figures
     rails = stage.rail_voltages
-    floating = {n for p in figures.problems if not p.fatal and p.nets and not p.elements
-                for n in p.nets}
+    floating = figures.floating_nets
     for opamp in stage.opamps:
         part = opamp.part
         if {opamp.in_pos, opamp.in_neg} & floating:

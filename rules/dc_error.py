@@ -63,7 +63,7 @@ def dc_error(view):
     stage, figures, settings = view.stage, view.figures, view.settings
     if any(figures.loops[o.ref].feedback != "negative" for o in stage.opamps):
         return
-    floating = {net for problem in figures.problems for net in problem.nets}
+    floating = figures.floating_nets
     if any({o.in_pos, o.in_neg} & floating for o in stage.opamps):
         return  # an input with no DC path: its error is unbounded (other rules say so)
     net = stage.output_net

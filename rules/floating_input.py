@@ -53,10 +53,7 @@ def floating_input(view):
         1 MOhm as a default bias resistor: common practice.
     """
     stage, figures = view.stage, view.figures
-    floating: set[str] = set()
-    for problem in figures.problems:
-        if not problem.fatal and problem.nets and not problem.elements:
-            floating.update(problem.nets)
+    floating = figures.floating_nets
     if not floating:
         return
     for opamp in stage.opamps:
@@ -152,8 +149,7 @@ def _suggest(view, opamp, net: str) -> tuple[Suggestion, dict]:
             level = middle
     variant = replace(stage, passives=stage.passives + tuple(added))
     solved = view.reanalyse(variant)
-    still = {n for p in solved.problems if not p.fatal and p.nets and not p.elements
-             for n in p.nets}
+    still = solved.floating_nets
     check = ("the solver then finds a DC path" if net not in still else
              "the solver still finds no DC path: look for another break")
     text = (f"add a bias resistor: {where}, biasing the input at {format_si(level, 'V')};"

@@ -55,8 +55,7 @@ def integrator_drift(view):
         band: common practice.
     """
     stage, figures = view.stage, view.figures
-    floating = {n for p in figures.problems if not p.fatal and p.nets and not p.elements
-                for n in p.nets}
+    floating = figures.floating_nets
     for opamp in stage.opamps:
         loop = figures.loops[opamp.ref]
         if loop.feedback != "none" or not loop.closes_anywhere:

@@ -42,8 +42,7 @@ def rail_headroom(view):
     stage, figures, settings = view.stage, view.figures, view.settings
     margin = stage.require.headroom_v if stage.require.headroom_v is not None \
         else settings["margin_v"]
-    floating = {n for p in figures.problems if not p.fatal and p.nets and not p.elements
-                for n in p.nets}
+    floating = figures.floating_nets
     for opamp in stage.opamps:
         part = opamp.part
         if {opamp.in_pos, opamp.in_neg} & floating:

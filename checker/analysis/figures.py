@@ -205,6 +205,13 @@ class Figures:
                 fatal=False))
         return problems
 
+    @cached_property
+    def floating_nets(self) -> frozenset[str]:
+        """Nets with no DC path to ground (only capacitors or op-amp inputs touch them):
+        DC figures of anything that depends on them are not meaningful."""
+        circuit = self.circuit
+        return frozenset(circuit.node_names[n] for n in unreferenced_nodes(circuit, at_dc=True))
+
     @property
     def solvable(self) -> bool:
         return not any(p.fatal for p in self.problems)
