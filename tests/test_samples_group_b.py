@@ -4,26 +4,16 @@ and stay quiet on the good stages."""
 
 from __future__ import annotations
 
-import json
-import pathlib
 
 import pytest
 
-from checker.cli import main
+from sample_helpers import GOOD_FILES, findings_by_stage
 
-ROOT = pathlib.Path(__file__).resolve().parents[1]
 RULES = ("dc-error", "gain-tolerance", "difference-balance", "preferred-values")
-GOOD = {"water-temperature.stage.json": ("water-temp-gain",),
-        "leaf-wetness.stage": ("leaf-wetness-buffer", "leaf-wetness-scale")}
+GOOD = GOOD_FILES
 
 
-def check(capsys, monkeypatch, name: str, *extra: str) -> dict[str, list[dict]]:
-    """Findings by stage of ``ampcheck check samples/NAME --format json``."""
-    monkeypatch.chdir(ROOT)
-    main(["check", f"samples/{name}", "--format", "json", "--fail-on", "never", *extra])
-    document = json.loads(capsys.readouterr().out)
-    return {stage["name"]: stage["findings"]
-            for f in document["files"] for stage in f["stages"]}
+check = findings_by_stage
 
 
 def fired(findings: list[dict]) -> set[tuple[str, str]]:
