@@ -26,6 +26,9 @@ from checker.findings import Finding, Severity, Suggestion
 from checker.model import Origin, Stage
 
 REANALYSIS_POINTS = 100
+# Enough points to bracket each loop crossover, which is then refined on a local grid:
+# for a copy of a stage that a rule reads only phase margins from.
+MARGIN_POINTS = 50
 RULE_ID = re.compile(r"^[a-z][a-z0-9]*(-[a-z0-9]+)*$")
 DOC_SECTIONS = ("What it checks", "Why it matters", "How the fix is computed", "Sources")
 ENGINE_RULES = {
@@ -151,6 +154,10 @@ class StageView:
         half the points keep the margins and edges a fix is judged by."""
         options.setdefault("points", min(self.figures.options.points, REANALYSIS_POINTS))
         return analyse(stage, replace(self.figures.options, **options))
+
+    def margins_of(self, stage: Stage) -> Figures:
+        """Figures of a modified copy read only for its loops' margins (cheaper grid)."""
+        return self.reanalyse(stage, points=MARGIN_POINTS)
 
     def finding(self, message: str, at: Origin | None = None, *, elements=(),
                 severity: Severity | None = None, measured: float | None = None,

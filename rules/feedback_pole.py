@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from checker.analysis.topology import classify
-from checker.engine import rule
+from checker.engine import MARGIN_POINTS, rule
 from checker.findings import Severity, Suggestion
 from checker.preferred import at_least, ladder, smallest_passing
 from checker.units import format_si
@@ -73,7 +73,7 @@ def feedback_pole(view):
         # An unknown part capacitance only adds to what is there: a margin that already
         # fails with the known capacitance (a sensor's, the stray) fails for certain.
         bare = view.reanalyse(without_inverting_input_capacitance(stage, opamp.ref),
-                              stray_capacitance_f=0.0)
+                              stray_capacitance_f=0.0, points=MARGIN_POINTS)
         bare_margin = bare.loops[opamp.ref].phase_margin_deg
         if bare_margin is not None and bare_margin < warn:
             continue  # something else costs the margin (load, compensation): other rules

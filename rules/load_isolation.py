@@ -136,7 +136,7 @@ def _capacitive_loads(view):
                                     f"part {opamp.part.name} gives no output resistance",
                                     driven[0].origin, (opamp.ref,))
             continue
-        bare = bare or view.reanalyse(without_load_capacitance(stage))
+        bare = bare or view.margins_of(without_load_capacitance(stage))
         bare_margin = bare.loops[opamp.ref].phase_margin_deg
         if bare_margin is not None and bare_margin < warn:
             continue
@@ -166,7 +166,7 @@ def _isolation(view, opamp, load, series, warn) -> Suggestion:
         return with_resistance(stage, series.ref, ohms)
 
     def margin(ohms: float) -> float:
-        return view.reanalyse(variant(ohms)).loops[opamp.ref].phase_margin_deg or 0.0
+        return view.margins_of(variant(ohms)).loops[opamp.ref].phase_margin_deg or 0.0
 
     start = series.value * 1.0001 if series else 1.0
     best = smallest_passing(ladder(start, 10e3, "E24"), lambda r: margin(r) >= target)
