@@ -116,7 +116,11 @@ def _crossover(figures, ref: str) -> float | None:
 
 
 def _noise_gain_at(figures, ref: str, frequency: float) -> float:
-    """|1/beta| at ``frequency``, interpolated log-log on the grid."""
+    """|1/beta| at ``frequency``: the solved value at the loop's own crossover (refined
+    there by the analysis core), else interpolated log-log on the grid."""
+    margins = figures.loops[ref].margins
+    if margins.crossover_hz == frequency and margins.noise_gain_at_crossover is not None:
+        return margins.noise_gain_at_crossover
     magnitude = np.abs(figures.loops[ref].noise_gain)
     return float(np.exp(np.interp(math.log(frequency), np.log(figures.frequencies_hz),
                                   np.log(magnitude))))

@@ -29,7 +29,7 @@ class AnalysisOptions:
     """Knobs of the analysis; the engine fills them from configuration."""
 
     stray_capacitance_f: float = 0.0  # added at every inverting input
-    points: int = 200  # log-spaced frequency points (band edges are added)
+    points: int = 120  # log-spaced frequency points (band edges are added)
 
 
 @dataclass(frozen=True)
@@ -395,9 +395,9 @@ class Figures:
         magnitude = np.abs(T)
         phase = unwrapped_phase_deg(T)
         i = crossing_index(magnitude, 1.0)
-        crossover = phase_margin = None
+        crossover = phase_margin = noise_gain = None
         if i is not None and magnitude[0] >= 1.0:
-            crossover, phase_at = self._refine(frequencies, T, phase, i, k, block)
+            crossover, phase_at, noise_gain = self._refine(frequencies, T, phase, i, k, block)
             phase_margin = 180.0 + phase_at
         gain_margin = phase_crossover = None
         j = crossing_index(phase, -180.0)
@@ -407,24 +407,30 @@ class Figures:
             fraction = (np.log(phase_crossover) - np.log(frequencies[j])) / (
                 np.log(frequencies[j + 1]) - np.log(frequencies[j]))
             gain_margin = float(-20 * (log_mag[j] + fraction * (log_mag[j + 1] - log_mag[j])))
-        return Margins(crossover, phase_margin, gain_margin, phase_crossover)
+        return Margins(crossover, phase_margin, gain_margin, phase_crossover, noise_gain)
 
-    def _refine(self, frequencies, T, phase, i, k, block) -> tuple[float, float]:
-        """Crossover frequency and unwrapped phase there, from a fine local solve."""
+    def _refine(self, frequencies, T, phase, i, k, block) -> tuple[float, float, float]:
+        """Crossover frequency, unwrapped phase and noise gain |1/beta| there, from a fine
+        local solve."""
         local = np.geomspace(frequencies[i], frequencies[i + 1], REFINE_POINTS)
         X = self._solve_ac(local, only=[("loop", block.ref)])
         gain = self.open_loop_gains(local)[:, k]
         z = -(_pick(X, block.in_pos, 0) - _pick(X, block.in_neg, 0))
-        T_local, _ = return_ratio(gain, z)
+        T_local, beta_local = return_ratio(gain, z)
+        log_noise = -np.log10(np.abs(beta_local))
         local_phase = unwrapped_phase_deg(T_local)
         local_phase += 360.0 * np.round((phase[i] - local_phase[0]) / 360.0)
         log_mag = np.log10(np.abs(T_local))
         j = crossing_index(log_mag, 0.0)
         if j is None:  # numerically flat at the crossing: take the grid point
-            return float(frequencies[i]), float(phase[i])
+            return float(frequencies[i]), float(phase[i]), float(10 ** log_noise[0])
         crossover = interpolate_log(local, log_mag, j, 0.0, log_mag)
         fraction = (np.log(crossover) - np.log(local[j])) / (np.log(local[j + 1]) - np.log(local[j]))
-        return crossover, float(local_phase[j] + fraction * (local_phase[j + 1] - local_phase[j]))
+
+        def at_crossover(values: np.ndarray) -> float:
+            return float(values[j] + fraction * (values[j + 1] - values[j]))
+
+        return crossover, at_crossover(local_phase), float(10 ** at_crossover(log_noise))
 
     # -- sources: gain, input impedance, bandwidth -------------------------------------
     @cached_property
@@ -459,7 +465,7 @@ class Figures:
             # Without a declared band the source is taken as slow: up to its reference.
             band = _band_mask(frequencies, source) if source.band_high_hz else \
                 frequencies <= frequencies[at]
-            low, high = _bandwidth(frequencies, gain, at)
+            low, high = _bandwidth(frequencies, gain, at, self._gain_function(i))
             result.append(SourceFigures(
                 index=i, source=source, gain=gain, gain_from_source=gain_from_source,
                 input_impedance=z_in, reference_hz=float(frequencies[at]),
@@ -468,6 +474,21 @@ class Figures:
                 input_resistance_min=float(np.min(np.abs(z_in[band]))),
                 bandwidth_low_hz=low, bandwidth_high_hz=high))
         return result
+
+    def _gain_function(self, i: int):
+        """Source i's gain (as in SourceFigures.gain) at any frequencies, for refining a
+        band edge between two grid points with a small local solve."""
+        circuit = self.circuit
+        out = circuit.node(self.stage.output_net)
+        net = circuit.node(self.stage.sources[i].net)
+        voltage = self.stage.sources[i].kind == "voltage"
+
+        def gain(frequencies: np.ndarray) -> np.ndarray:
+            X = self._solve_ac(frequencies, only=[("source", i)])
+            v_out = _pick(X, out, 0)
+            return _safe_divide(v_out, _pick(X, net, 0)) if voltage else v_out
+
+        return gain
 
     def _reference_hz(self, source: Source, gain: np.ndarray) -> float:
         centre = _band_centre(source)
@@ -716,23 +737,32 @@ def _band_mask(frequencies: np.ndarray, source: Source) -> np.ndarray:
     return np.ones(frequencies.shape, dtype=bool)
 
 
-def _bandwidth(frequencies: np.ndarray, gain: np.ndarray, at: int) -> tuple[float | None, float | None]:
-    """-3 dB edges of |gain| around index ``at`` (None where the response stays up)."""
+def _bandwidth(frequencies: np.ndarray, gain: np.ndarray, at: int,
+               gain_at=None) -> tuple[float | None, float | None]:
+    """-3 dB edges of |gain| around index ``at`` (None where the response stays up).
+
+    Each edge is bracketed on the grid, then pinned down on a local grid of
+    REFINE_POINTS solved by ``gain_at(frequencies)`` (when given), so its accuracy does
+    not depend on the grid's density."""
     magnitude = np.abs(gain)
     reference = magnitude[at]
     if reference == 0:
         return None, None
     level = reference / math.sqrt(2)
-    high = low = None
-    above = magnitude[at:]
-    i = crossing_index(above, level)
-    if i is not None:
-        log_mag = np.log10(above)
-        high = interpolate_log(frequencies[at:], above, i, math.log10(level), log_mag)
-    below = magnitude[: at + 1][::-1]
-    j = crossing_index(below, level)
-    if j is not None:
-        freqs = frequencies[: at + 1][::-1]
-        log_mag = np.log10(below)
-        low = interpolate_log(freqs, below, j, math.log10(level), log_mag)
+
+    def edge(freqs: np.ndarray, values: np.ndarray) -> float | None:
+        i = crossing_index(values, level)
+        if i is None:
+            return None
+        if gain_at is not None:
+            local = np.geomspace(freqs[i], freqs[i + 1], REFINE_POINTS)
+            local_values = np.abs(gain_at(local))
+            j = crossing_index(local_values, level)
+            if j is not None:
+                return interpolate_log(local, local_values, j, math.log10(level),
+                                       np.log10(local_values))
+        return interpolate_log(freqs, values, i, math.log10(level), np.log10(values))
+
+    high = edge(frequencies[at:], magnitude[at:])
+    low = edge(frequencies[: at + 1][::-1], magnitude[: at + 1][::-1])
     return low, high

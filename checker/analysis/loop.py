@@ -32,6 +32,7 @@ class Margins:
     phase_margin_deg: float | None
     gain_margin_db: float | None  # None: the phase never reaches -180 deg
     phase_crossover_hz: float | None
+    noise_gain_at_crossover: float | None = None  # |1/beta| at the crossover
 
 
 def crossing_index(values: np.ndarray, level: float) -> int | None:
