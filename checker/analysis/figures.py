@@ -197,7 +197,7 @@ class Figures:
                 problems.append(AnalysisProblem(
                     f"{opamp.ref}'s output is tied to the rail {opamp.out}", nets=(opamp.out,),
                     elements=(opamp.ref,), fatal=False))
-        floating = [circuit.node_names[n] for n in unreferenced_nodes(circuit, at_dc=True)]
+        floating = [circuit.node_names[n] for n in self._unreferenced(True)]
         if floating:
             problems.append(AnalysisProblem(
                 "no DC path to ground from net " + ", ".join(floating) +
@@ -210,14 +210,21 @@ class Figures:
         """Nets with no DC path to ground (only capacitors or op-amp inputs touch them):
         DC figures of anything that depends on them are not meaningful."""
         circuit = self.circuit
-        return frozenset(circuit.node_names[n] for n in unreferenced_nodes(circuit, at_dc=True))
+        return frozenset(circuit.node_names[n] for n in self._unreferenced(True))
+
+    def _unreferenced(self, at_dc: bool) -> tuple[int, ...]:
+        """Nodes with no path to ground (at DC, or with capacitors too), computed once."""
+        cache = self.__dict__.setdefault("_unreferenced_cache", {})
+        if at_dc not in cache:
+            cache[at_dc] = tuple(unreferenced_nodes(self.circuit, at_dc=at_dc))
+        return cache[at_dc]
 
     @property
     def solvable(self) -> bool:
         return not any(p.fatal for p in self.problems)
 
     def _matrices(self, at_dc: bool):
-        tie = tuple(unreferenced_nodes(self.circuit, at_dc=at_dc))
+        tie = self._unreferenced(at_dc)
         return assemble(self.circuit, tie)
 
     # -- frequency grid ------------------------------------------------------------
