@@ -27,12 +27,12 @@ class BaselineError(Exception):
     """A baseline file that cannot be read (a usage error)."""
 
 
-def _relative(path: str, folder: str) -> str:
+def relative(path: str, folder: str) -> str:
     return os.path.relpath(os.path.abspath(path), folder).replace(os.sep, "/")
 
 
 def key_of(finding: Finding, folder: str) -> Key:
-    return (_relative(finding.path, folder), finding.stage or "", tuple(finding.elements),
+    return (relative(finding.path, folder), finding.stage or "", tuple(finding.elements),
             finding.rule)
 
 
@@ -105,13 +105,9 @@ def baseline_text(counts: Counter) -> str:
                       indent=2, ensure_ascii=False) + "\n"
 
 
-def write_baseline(path: str, findings: list[Finding], protect: list[str] = ()) -> int:
-    """Record every unwaived finding (input problems excepted); returns the entry count."""
-    folder = os.path.dirname(os.path.abspath(path))
-    counts: Counter = Counter(key_of(f, folder) for f in findings
-                              if f.rule not in UNBASELINED and f.waiver is None)
+def write_counts(path: str, counts: Counter, protect: list[str] = ()) -> None:
+    """Write a baseline holding ``counts`` (keys relative to the file's folder)."""
     write_new_file(path, baseline_text(counts), protect)
-    return len(counts)
 
 
 def prune_baseline(baseline: Baseline, matched: Counter, checked: set[str]) -> int:

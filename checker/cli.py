@@ -175,16 +175,13 @@ def _progress_wanted(args) -> bool:
 
 
 def cmd_check(args) -> int:
-    from collections import Counter
-
     from checker import audit, baseline as baselines
+    from checker.check_run import CheckRun, RunError, Sink
     from checker.config import ConfigError
     from checker.engine import RuleError
     from checker.files import discover
     from checker.io.positions import InputErrors
-    from checker.report import renderer
     from checker.report.context import ReportContext
-    from checker.review import FileResult
 
     audit.forget()
     request = _request(args)
@@ -209,59 +206,28 @@ def cmd_check(args) -> int:
     if jobs < 1:
         raise UsageError("--jobs takes a whole number of at least 1")
 
-    results = [FileResult(f.path, problems=[f]) for f in missing]
-    matched: Counter = Counter()
-    stream = audit.check_files(paths, request, jobs)
-    progress = None
-    if _progress_wanted(args):
-        from rich.progress import Progress
-
-        from checker.report.summary import console
-
-        progress = Progress(console=console(stderr=True), transient=True)
-        task = progress.add_task("checking", total=len(paths))
-        progress.start()
-    try:
-        for result in stream:
-            if baseline is not None:
-                for stage in result.stages:
-                    stage.findings = baselines.apply_baseline(stage.findings, baseline, matched)
-            results.append(result)
-            if progress is not None:
-                progress.advance(task)
-    finally:
-        if progress is not None:
-            progress.stop()
-    if baseline is not None:
-        checked = {baselines._relative(p, baseline.folder) for p in paths}
-        stale = baselines.stale_entries(baseline, matched, checked)
-        if stale:
-            results.append(FileResult(os.path.relpath(baseline.path), problems=stale))
-        if args.prune_baseline:
-            removed = baselines.prune_baseline(baseline, matched, checked)
-            print(f"pruned {removed} stale entries from {args.baseline}", file=sys.stderr)
     context = ReportContext(__version__, fail_on, rules)
-    protect = paths
     try:
-        for name, path in outputs:
-            from checker.io.write import write_new_file
-
-            write_new_file(path, renderer(name)(results, context), protect)
-        if args.write_baseline:
-            every = [f for r in results for f in r.findings()]
-            count = baselines.write_baseline(args.write_baseline, every, protect)
-            print(f"wrote {count} entries to {args.write_baseline}", file=sys.stderr)
-    except (OSError, ValueError) as error:
+        sinks = [Sink(args.format, None, context, paths)]
+        sinks += [Sink(name, path, context, paths) for name, path in outputs]
+        run = CheckRun(context, sinks, baseline, args.prune_baseline, args.write_baseline)
+        failing = run.run(paths, missing, request, jobs, _progress(args, len(paths)))
+    except RunError as error:
         raise UsageError(str(error)) from None
-    if args.format == "text":
-        from checker.report.summary import console
-        from checker.report.text import write
-
-        write(console(), results, context)
-    else:
-        sys.stdout.write(renderer(args.format)(results, context))
-    failing = any(context.fails(f) for r in results for f in r.findings())
     return EXIT_FINDINGS if failing else EXIT_OK
+
+
+def _progress(args, total: int):
+    if not _progress_wanted(args):
+        return None
+    from rich.progress import Progress
+
+    from checker.report.summary import console
+
+    progress = Progress(console=console(stderr=True), transient=True)
+    progress.add_task("checking", total=total)
+    progress.start()
+    return progress
 
 
 def cmd_config(args) -> int:

@@ -1,12 +1,15 @@
 """Reporters: one module per output format; they know findings and figures only.
 
-Each format module offers ``render(results, context) -> str``; the text format renders
-through rich. FORMATS maps a format name to its module, imported on first use.
+Each format module has a ``Writer(out, context)`` that takes results one file at a time
+(``add``) and finishes its output on ``close``, so a long audit streams: the machine
+formats keep nothing but counters, the text report keeps only its findings. FORMATS
+maps a format name to its module, imported on first use.
 """
 
 from __future__ import annotations
 
 import importlib
+import io
 
 FORMATS = {
     "text": "checker.report.text",
@@ -17,6 +20,30 @@ FORMATS = {
 }
 
 
-def renderer(name: str):
-    """The render function of format ``name``."""
-    return importlib.import_module(FORMATS[name]).render
+class Writer:
+    """Base of the format writers: results arrive in path order, then close()."""
+
+    def __init__(self, out, context):
+        self.out = out
+        self.context = context
+
+    def add(self, result) -> None:
+        raise NotImplementedError
+
+    def close(self) -> None:
+        """Finish the output (the base writes nothing more)."""
+
+
+def writer(name: str, out, context) -> Writer:
+    """A writer of format ``name`` to the text stream ``out``."""
+    return importlib.import_module(FORMATS[name]).Writer(out, context)
+
+
+def render(name: str, results, context) -> str:
+    """The whole report of ``results`` in format ``name``, as a string."""
+    out = io.StringIO()
+    target = writer(name, out, context)
+    for result in results:
+        target.add(result)
+    target.close()
+    return out.getvalue()

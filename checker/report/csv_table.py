@@ -3,22 +3,22 @@
 from __future__ import annotations
 
 import csv
-import io
 
-from checker.report.context import ReportContext
-from checker.review import FileResult
+from checker.report import Writer as BaseWriter
 
 COLUMNS = ["path", "line", "column", "severity", "rule", "stage", "elements", "message",
            "measured", "limit", "unit", "suggestion", "suggested_value", "waived", "baselined"]
 
 
-def render(results: list[FileResult], context: ReportContext) -> str:
-    out = io.StringIO()
-    writer = csv.writer(out, lineterminator="\n")
-    writer.writerow(COLUMNS)
-    for result in results:
+class Writer(BaseWriter):
+    def __init__(self, out, context):
+        super().__init__(out, context)
+        self.rows = csv.writer(out, lineterminator="\n")
+        self.rows.writerow(COLUMNS)
+
+    def add(self, result) -> None:
         for f in result.findings():
-            writer.writerow([
+            self.rows.writerow([
                 f.path, f.line, f.column, f.severity.label, f.rule, f.stage or "",
                 " ".join(f.elements), f.message,
                 "" if f.measured is None else repr(f.measured),
@@ -26,4 +26,3 @@ def render(results: list[FileResult], context: ReportContext) -> str:
                 f.suggestion.text if f.suggestion else "",
                 "" if not f.suggestion or f.suggestion.value is None else repr(f.suggestion.value),
                 f.waiver or "", "yes" if f.baselined else ""])
-    return out.getvalue()

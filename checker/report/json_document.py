@@ -10,7 +10,8 @@ import json
 
 from checker.findings import Finding
 from checker.report.context import ReportContext
-from checker.review import FileResult, count_by_severity
+from checker.report import Writer as BaseWriter
+from checker.review import FileResult
 
 FORMAT_NAME = "ampcheck-report"
 FORMAT_VERSION = 1
@@ -29,33 +30,45 @@ def finding_dict(finding: Finding) -> dict:
             "baselined": finding.baselined}
 
 
-def document(results: list[FileResult], context: ReportContext) -> dict:
-    files = []
-    every: list[Finding] = []
-    stage_count = 0
-    for result in results:
-        every.extend(result.findings())
-        stages = []
-        for item in result.stages:
-            stage_count += 1
-            summary = dict(item.summary)
-            topology = summary.pop("topology", None)
-            stages.append({"name": item.name, "line": item.line,
-                           "topology": topology, "figures": summary,
-                           "amplifiers": item.amplifiers,
-                           "findings": [finding_dict(f) for f in item.findings]})
-        files.append({"path": result.path,
-                      "problems": [finding_dict(f) for f in result.problems],
-                      "stages": stages})
-    summary = {"files": len(results), "stages": stage_count, **count_by_severity(every)}
-    return {"format": FORMAT_NAME, "version": FORMAT_VERSION,
-            "tool": {"name": "ampcheck", "version": context.tool_version},
-            "summary": summary, "files": files}
+def file_dict(result: FileResult) -> dict:
+    stages = []
+    for item in result.stages:
+        summary = dict(item.summary)
+        topology = summary.pop("topology", None)
+        stages.append({"name": item.name, "line": item.line, "topology": topology,
+                       "figures": summary, "amplifiers": item.amplifiers,
+                       "findings": [finding_dict(f) for f in item.findings]})
+    return {"path": result.path, "problems": [finding_dict(f) for f in result.problems],
+            "stages": stages}
 
 
-def render(results: list[FileResult], context: ReportContext) -> str:
-    return json.dumps(document(results, context), indent=2, ensure_ascii=False,
-                      allow_nan=False) + "\n"
+def _indented(value, depth: int) -> str:
+    text = json.dumps(value, indent=2, ensure_ascii=False, allow_nan=False)
+    return text.replace("\n", "\n" + "  " * depth)
+
+
+class Writer(BaseWriter):
+    """Streams the document: each file's entry as it arrives, the summary last."""
+
+    def __init__(self, out, context: ReportContext):
+        super().__init__(out, context)
+        self.files = self.stages = 0
+        self.counts = {"error": 0, "warning": 0, "info": 0}
+        tool = {"name": "ampcheck", "version": context.tool_version}
+        out.write(f'{{\n  "format": "{FORMAT_NAME}",\n  "version": {FORMAT_VERSION},\n'
+                  f'  "tool": {_indented(tool, 1)},\n  "files": [')
+
+    def add(self, result: FileResult) -> None:
+        self.out.write(("," if self.files else "") + "\n    " + _indented(file_dict(result), 2))
+        self.files += 1
+        self.stages += len(result.stages)
+        for finding in result.findings():
+            self.counts[finding.severity.label] += 1
+
+    def close(self) -> None:
+        summary = {"files": self.files, "stages": self.stages, **self.counts}
+        self.out.write(("\n  " if self.files else "") +
+                       f'],\n  "summary": {_indented(summary, 1)}\n}}\n')
 
 
 _NUMBER = {"type": ["number", "null"]}

@@ -14,6 +14,7 @@ import os
 
 from checker.engine import ENGINE_RULES
 from checker.findings import Finding, Severity
+from checker.report import Writer as BaseWriter
 from checker.report.context import ReportContext
 from checker.review import FileResult
 
@@ -58,55 +59,62 @@ def _rule_entry(rule_id: str, context: ReportContext) -> dict:
             "properties": {"settings": rule.settings}}
 
 
-def document(results: list[FileResult], context: ReportContext, root: str | None = None) -> dict:
-    root = root or repository_root(os.getcwd())
-    findings = [f for result in results for f in result.findings()]
-    rule_ids = sorted(set(context.rules) | {f.rule for f in findings})
-    index = {rule_id: i for i, rule_id in enumerate(rule_ids)}
-    sarif_results = []
-    for finding in findings:
-        uri = os.path.relpath(os.path.abspath(finding.path), root).replace(os.sep, "/")
-        text = finding.message
-        if finding.suggestion is not None:
-            text += f" Fix: {finding.suggestion.text}."
-        item = {
-            "ruleId": finding.rule, "ruleIndex": index[finding.rule],
-            "level": LEVEL[finding.severity], "message": {"text": text},
-            "locations": [{"physicalLocation": {
-                "artifactLocation": {"uri": uri, "uriBaseId": "SRCROOT"},
-                "region": {"startLine": finding.line, "startColumn": finding.column}}}],
-            "partialFingerprints": {"ampcheckFinding/v1": fingerprint(finding, uri)},
-        }
-        properties = {}
-        if finding.stage:
-            properties["stage"] = finding.stage
-        if finding.elements:
-            properties["elements"] = list(finding.elements)
-        for key in ("measured", "limit", "unit"):
-            if getattr(finding, key) is not None:
-                properties[key] = getattr(finding, key)
-        if properties:
-            item["properties"] = properties
-        suppressions = []
-        if finding.waiver is not None:
-            suppressions.append({"kind": "inSource", "justification": finding.waiver})
-        if finding.baselined:
-            suppressions.append({"kind": "external",
-                                 "justification": "recorded in the baseline"})
-        if suppressions:
-            item["suppressions"] = suppressions
-        sarif_results.append(item)
-    return {
-        "$schema": SCHEMA_URI,
-        "version": "2.1.0",
-        "runs": [{
-            "tool": {"driver": {"name": "ampcheck", "version": context.tool_version,
-                                "rules": [_rule_entry(r, context) for r in rule_ids]}},
-            "columnKind": "unicodeCodePoints",
-            "results": sarif_results,
-        }],
+def result_entry(finding: Finding, root: str, index: dict[str, int]) -> dict:
+    uri = os.path.relpath(os.path.abspath(finding.path), root).replace(os.sep, "/")
+    text = finding.message
+    if finding.suggestion is not None:
+        text += f" Fix: {finding.suggestion.text}."
+    item = {
+        "ruleId": finding.rule, "ruleIndex": index[finding.rule],
+        "level": LEVEL[finding.severity], "message": {"text": text},
+        "locations": [{"physicalLocation": {
+            "artifactLocation": {"uri": uri, "uriBaseId": "SRCROOT"},
+            "region": {"startLine": finding.line, "startColumn": finding.column}}}],
+        "partialFingerprints": {"ampcheckFinding/v1": fingerprint(finding, uri)},
     }
+    properties = {}
+    if finding.stage:
+        properties["stage"] = finding.stage
+    if finding.elements:
+        properties["elements"] = list(finding.elements)
+    for key in ("measured", "limit", "unit"):
+        if getattr(finding, key) is not None:
+            properties[key] = getattr(finding, key)
+    if properties:
+        item["properties"] = properties
+    suppressions = []
+    if finding.waiver is not None:
+        suppressions.append({"kind": "inSource", "justification": finding.waiver})
+    if finding.baselined:
+        suppressions.append({"kind": "external", "justification": "recorded in the baseline"})
+    if suppressions:
+        item["suppressions"] = suppressions
+    return item
 
 
-def render(results: list[FileResult], context: ReportContext) -> str:
-    return json.dumps(document(results, context), indent=2, ensure_ascii=False) + "\n"
+class Writer(BaseWriter):
+    """Streams one run: the rule table first (every known rule), then each result."""
+
+    def __init__(self, out, context: ReportContext):
+        super().__init__(out, context)
+        self.root = repository_root(os.getcwd())
+        rule_ids = sorted(set(context.rules) | set(ENGINE_RULES))
+        self.index = {rule_id: i for i, rule_id in enumerate(rule_ids)}
+        driver = {"name": "ampcheck", "version": context.tool_version,
+                  "rules": [_rule_entry(r, context) for r in rule_ids]}
+        tool = json.dumps({"driver": driver}, indent=2, ensure_ascii=False)
+        out.write(f'{{\n  "$schema": "{SCHEMA_URI}",\n  "version": "2.1.0",\n  "runs": [\n'
+                  f'    {{\n      "tool": {tool.replace(chr(10), chr(10) + "      ")},\n'
+                  '      "columnKind": "unicodeCodePoints",\n      "results": [')
+        self.count = 0
+
+    def add(self, result: FileResult) -> None:
+        for finding in result.findings():
+            entry = json.dumps(result_entry(finding, self.root, self.index), indent=2,
+                               ensure_ascii=False)
+            self.out.write(("," if self.count else "") + "\n        " +
+                           entry.replace("\n", "\n        "))
+            self.count += 1
+
+    def close(self) -> None:
+        self.out.write(("\n      " if self.count else "") + "]\n    }\n  ]\n}\n")

@@ -11,7 +11,8 @@ from rich.text import Text
 
 from checker.findings import Finding, Severity
 from checker.report.context import ReportContext
-from checker.review import FileResult, count_by_severity
+from checker.report import Writer as BaseWriter
+from checker.review import FileResult, StageResult, count_by_severity
 from checker.units import format_si
 
 STYLE = {Severity.ERROR: "bold red", Severity.WARNING: "yellow", Severity.INFO: "cyan"}
@@ -164,9 +165,31 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
     console.print(closing)
 
 
-def render(results: list[FileResult], context: ReportContext) -> str:
-    """The text report as plain text (for --output text:FILE)."""
-    console = Console(record=True, file=__import__("io").StringIO(), width=200,
-                      soft_wrap=True, color_system=None)
-    write(console, results, context)
-    return console.export_text()
+class Writer(BaseWriter):
+    """Keeps what the report needs of each file (its findings; stage figures only while
+    the stage lines will be printed) and writes it all on close, grouped by severity."""
+
+    def __init__(self, out, context: ReportContext):
+        super().__init__(out, context)
+        self.kept: list[FileResult] = []
+        self.stage_count = 0
+
+    def add(self, result: FileResult) -> None:
+        self.stage_count += len(result.stages)
+        keep_figures = self.stage_count <= STAGE_LINES_LIMIT
+        stages = [StageResult(s.name, s.line, s.findings,
+                              s.summary if keep_figures else {}, {})
+                  for s in result.stages]
+        self.kept.append(FileResult(result.path, result.problems, stages))
+
+    def close(self) -> None:
+        import sys
+
+        if self.out is sys.stdout:
+            from checker.report.summary import console
+
+            target = console()
+        else:
+            target = Console(file=self.out, width=200, soft_wrap=True, color_system=None,
+                             highlight=False)
+        write(target, self.kept, self.context)

@@ -1,0 +1,130 @@
+"""One `ampcheck check` run: stream every file's results to the report sinks, apply the
+baseline, and work out the outcome. The command line builds it and turns the outcome
+into an exit code; nothing here exits."""
+
+from __future__ import annotations
+
+import os
+import sys
+import tempfile
+from collections import Counter
+
+from checker import audit
+from checker import baseline as baselines
+from checker.report import writer
+from checker.report.context import ReportContext
+from checker.review import FileResult
+
+
+class RunError(Exception):
+    """A problem with the run's own files (a report path, the baseline): a usage error."""
+
+
+class Sink:
+    """One report being written: to standard output, or to a new file that replaces its
+    path atomically when the run ends (never an input)."""
+
+    def __init__(self, name: str, path: str | None, context: ReportContext,
+                 inputs: list[str]):
+        self.path = path
+        if path is None:
+            self.stream = sys.stdout
+        else:
+            target = os.path.realpath(path)
+            if any(os.path.realpath(p) == target for p in inputs):
+                raise RunError(f"refusing to write over the input file {path}")
+            folder = os.path.dirname(target) or "."
+            handle, self.temporary = tempfile.mkstemp(dir=folder, prefix=".ampcheck-",
+                                                      suffix=".tmp")
+            self.stream = os.fdopen(handle, "w", encoding="utf-8", newline="")
+        self.writer = writer(name, self.stream, context)
+
+    def close(self) -> None:
+        self.writer.close()
+        if self.path is not None:
+            self.stream.close()
+            os.replace(self.temporary, os.path.realpath(self.path))
+            self.path = None
+
+    def abandon(self) -> None:
+        """Drop a report file that was not finished (the run failed)."""
+        if self.path is not None:
+            self.stream.close()
+            if os.path.exists(self.temporary):
+                os.unlink(self.temporary)
+            self.path = None
+
+
+class CheckRun:
+    """Streams results to sinks; remembers only counters (failing, baseline keys)."""
+
+    def __init__(self, context: ReportContext, sinks: list[Sink],
+                 baseline: baselines.Baseline | None = None, prune: bool = False,
+                 write_baseline: str | None = None):
+        self.context = context
+        self.sinks = sinks
+        self.baseline = baseline
+        self.prune = prune
+        self.write_baseline = write_baseline
+        self.matched: Counter = Counter()  # baseline entries used so far
+        self.recorded: Counter = Counter()  # this run's keys, for --write-baseline
+        self.failing = False
+
+    def deliver(self, result: FileResult) -> None:
+        if self.baseline is not None:
+            for stage in result.stages:
+                stage.findings = baselines.apply_baseline(stage.findings, self.baseline,
+                                                          self.matched)
+        for sink in self.sinks:
+            sink.writer.add(result)
+        folder = os.path.dirname(os.path.abspath(self.write_baseline or "."))
+        for finding in result.findings():
+            self.failing = self.failing or self.context.fails(finding)
+            if self.write_baseline and finding.rule not in baselines.UNBASELINED \
+                    and finding.waiver is None:
+                self.recorded[baselines.key_of(finding, folder)] += 1
+
+    def run(self, paths: list[str], missing, request: audit.Request, jobs: int,
+            progress=None) -> bool:
+        """Check every path; True when a finding reaches the failing severity."""
+        try:
+            for finding in missing:
+                self.deliver(FileResult(finding.path, problems=[finding]))
+            for result in audit.check_files(paths, request, jobs):
+                self.deliver(result)
+                if progress is not None:
+                    progress.advance(progress.task_ids[0])
+            if progress is not None:
+                progress.stop()
+            self._finish_baseline(paths)
+            for sink in self.sinks:
+                sink.close()
+            if self.write_baseline:
+                baselines.write_counts(self.write_baseline, self.recorded, paths)
+                print(f"wrote {len(self.recorded)} entries to {self.write_baseline}",
+                      file=sys.stderr)
+        except (OSError, ValueError) as error:
+            self._abandon(progress)
+            raise RunError(str(error)) from None
+        except BaseException:
+            self._abandon(progress)
+            raise
+        return self.failing
+
+    def _finish_baseline(self, paths: list[str]) -> None:
+        if self.baseline is None:
+            return
+        checked = {baselines.relative(p, self.baseline.folder) for p in paths}
+        stale = baselines.stale_entries(self.baseline, self.matched, checked)
+        if stale:
+            self.deliver(FileResult(os.path.relpath(self.baseline.path), problems=stale))
+        if self.prune:
+            removed = baselines.prune_baseline(self.baseline, self.matched, checked)
+            print(f"pruned {removed} stale entries from {self.baseline.path}",
+                  file=sys.stderr)
+
+    def _abandon(self, progress) -> None:
+        if progress is not None:
+            progress.stop()
+        for sink in self.sinks:
+            sink.abandon()
