@@ -147,6 +147,14 @@ def _inlined(schema: dict) -> dict:
 
 
 @lru_cache(maxsize=1)
+def quick_check():
+    """The fast yes/no check of the same (inlined) schema; see quick_check.py."""
+    from checker.io.quick_check import build
+
+    return build(_inlined(stage_schema()))
+
+
+@lru_cache(maxsize=1)
 def _validator():
     from jsonschema import Draft202012Validator
 
@@ -155,6 +163,8 @@ def _validator():
 
 def validate(tree: dict, positions: dict[Path, Position], path: str) -> list[InputProblem]:
     """Problems with ``tree`` against the schema, each at its node's position."""
+    if quick_check()(tree):
+        return []
     problems = []
     for error in sorted(_validator().iter_errors(tree), key=lambda e: list(map(str, e.path))):
         node_path = tuple(error.absolute_path)
