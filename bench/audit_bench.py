@@ -5,6 +5,8 @@ Targets (issue: team workflow): one-file cold start of `ampcheck check` under 3x
 1.7x faster than 1; peak memory under 300 MB for 10,000 files, not growing with count.
 
 Run: .venv/bin/python bench/audit_bench.py [--files 2000] [--memory-files 10000]
+from a virtual environment with a regular (not editable) install, so that the cold
+start reads compiled modules as a user's does.
 """
 
 from __future__ import annotations

@@ -233,7 +233,8 @@ def test_unknown_keyword_in_json_suggests_the_nearest(tmp_path, library):
 
 def test_json_nan_constant_is_refused(tmp_path, library):
     text = '{"stages": [{"name": "a", "ground": "g", "note": NaN}]}'
-    _line, _column, message = only_problem(tmp_path, library, "a.stage.json", text)
+    line, column, message = only_problem(tmp_path, library, "a.stage.json", text)
+    assert (line, column) == (1, 50)  # where NaN stands
     assert "NaN is not a value" in message
 
 

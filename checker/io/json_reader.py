@@ -28,7 +28,8 @@ def read_json(text: str, path: str) -> tuple[dict, dict[Path, Position]]:
         raise InputErrors([InputProblem(path, error.lineno, error.colno,
                                         f"invalid JSON: {error.msg}")]) from None
     except ValueError as error:
-        raise InputErrors([InputProblem(path, 1, 1, str(error))]) from None
+        pos = _constant_position(text)
+        raise InputErrors([InputProblem(path, pos.line, pos.column, str(error))]) from None
     except RecursionError:
         tree = None
     too_deep = _too_deep(text, path)
@@ -57,6 +58,14 @@ def _too_deep(text: str, path: str) -> InputProblem | None:
         elif token in "}]":
             depth -= 1
     return None
+
+
+def _constant_position(text: str) -> Position:
+    """Where the first NaN, Infinity or -Infinity outside a string stands."""
+    for match in _TOKEN.finditer(text):
+        if match.group().lstrip("-") in ("NaN", "Infinity"):
+            return LineIndex(text).position(match.start())
+    return Position(1, 1)
 
 
 def _reject_constant(name: str):
