@@ -25,14 +25,16 @@ sys.path.insert(0, HERE)
 
 from generate_stages import generate  # noqa: E402
 
-AMPCHECK = [sys.executable, "-m", "checker"]
+_SCRIPT = os.path.join(os.path.dirname(sys.executable), "ampcheck")
+AMPCHECK = [_SCRIPT] if os.path.exists(_SCRIPT) else [sys.executable, "-m", "checker"]
 
 
 def wall(command: list[str], repeats: int) -> float:
     times = []
     for _ in range(repeats):
         start = time.perf_counter()
-        subprocess.run(command, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        subprocess.run(command, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                       cwd=tempfile.gettempdir(), check=True)
         times.append(time.perf_counter() - start)
     return statistics.median(times)
 
@@ -40,7 +42,8 @@ def wall(command: list[str], repeats: int) -> float:
 def peak_rss_mb(command: list[str]) -> float:
     """Peak resident memory of a child process tree's largest member, in MB."""
     before = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
-    subprocess.run(command, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    subprocess.run(command, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                   cwd=tempfile.gettempdir(), check=True)
     after = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
     return max(after, before) / 1024
 

@@ -103,6 +103,9 @@ class CheckRun:
                 baselines.write_counts(self.write_baseline, self.recorded, paths)
                 print(f"wrote {len(self.recorded)} entries to {self.write_baseline}",
                       file=sys.stderr)
+        except BrokenPipeError:
+            self._abandon(progress)
+            raise
         except (OSError, ValueError) as error:
             self._abandon(progress)
             raise RunError(str(error)) from None

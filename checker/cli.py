@@ -106,6 +106,10 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("ampcheck: interrupted", file=sys.stderr)
         return EXIT_USAGE
+    except BrokenPipeError:  # the reader went away (| head): stop quietly
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return EXIT_FINDINGS
     except Exception as error:  # the last guard: no traceback reaches a user
         if os.environ.get("AMPCHECK_DEBUG"):
             raise

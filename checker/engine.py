@@ -95,7 +95,14 @@ def rules_in(module: ModuleType) -> list[Rule]:
 
 
 def _builtin_modules() -> list[ModuleType]:
-    package = importlib.import_module("checker.rules")
+    try:
+        package = importlib.import_module("checker.rules")
+    except ModuleNotFoundError:
+        # Run from a source checkout that is not installed (python -m checker in the
+        # repository): the rules folder sits beside the package, as it does in git.
+        folder = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))),
+                              "rules")
+        return _folder_modules(folder)
     names = sorted(info.name for info in pkgutil.iter_modules(package.__path__)
                    if not info.name.startswith("_"))
     return [importlib.import_module(f"checker.rules.{name}") for name in names]
