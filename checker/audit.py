@@ -33,6 +33,7 @@ class Request:
     parts: tuple[str, ...] = ()
     rules_dirs: tuple[str, ...] = ()
     use_config: bool = True
+    figures_wanted: bool = True  # False when no report shows stage figures
 
 
 @lru_cache(maxsize=64)
@@ -98,7 +99,8 @@ def setup_for(path: str, request: Request) -> FileSetup:
 
 def check_file(path: str, request: Request) -> FileResult:
     setup = setup_for(path, request)
-    return review_file(path, setup.library, setup.rules, setup.options)
+    return review_file(path, setup.library, setup.rules, setup.options,
+                       request.figures_wanted)
 
 
 def _worker(task: tuple[str, Request]) -> FileResult:

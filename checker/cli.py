@@ -15,6 +15,7 @@ from checker import __version__
 
 EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
 FORMAT_NAMES = ["text", "json", "sarif", "compact", "csv"]
+FIGURE_FORMATS = {"text", "json"}  # the reports that show each stage's figures
 
 
 class UsageError(Exception):
@@ -157,9 +158,11 @@ def _request(args):
     config_file = getattr(args, "config", None)
     if config_file and not os.path.isfile(config_file):
         raise UsageError(f"--config: no such file {config_file}")
+    formats = {args.format} | {item.partition(":")[0] for item in args.output}
     return Request(config_file=config_file, select=ids(args.select), ignore=ids(args.ignore),
                    stray_capacitance_f=stray, parts=tuple(args.parts),
-                   rules_dirs=tuple(args.rules_dir), use_config=not args.no_config)
+                   rules_dirs=tuple(args.rules_dir), use_config=not args.no_config,
+                   figures_wanted=bool(formats & FIGURE_FORMATS))
 
 
 def _outputs(args) -> list[tuple[str, str]]:

@@ -43,8 +43,9 @@ class FileResult:
 
 
 def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
-                options: RunOptions) -> FileResult:
-    """Read, build, analyse and check one file."""
+                options: RunOptions, figures_wanted: bool = True) -> FileResult:
+    """Read, build, analyse and check one file; ``figures_wanted`` false skips the
+    per-stage summary figures (for reports that show findings only)."""
     loaded = load_file(path, library)
     result = FileResult(path, problems=loaded.problems)
     if not loaded.ok:
@@ -52,7 +53,7 @@ def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
     figures, findings = check_stages(loaded.stages, rules, options)
     for stage in loaded.stages:
         stage_figures = figures[stage.name]
-        summary, amplifiers = summarise(stage, stage_figures)
+        summary, amplifiers = summarise(stage, stage_figures) if figures_wanted else ({}, {})
         result.stages.append(StageResult(stage.name, stage.origin.line, findings[stage.name],
                                          summary, amplifiers))
     return result
