@@ -7,7 +7,6 @@ ParsedFile's position index. All problems of a file are collected and raised tog
 from __future__ import annotations
 
 import difflib
-import math
 from collections import Counter
 from dataclasses import replace
 
@@ -356,6 +355,3 @@ def build_stages(parsed: ParsedFile, library: dict[str, OpAmpPart]) -> list[Stag
         raise InputErrors(sorted(builder.problems, key=lambda p: (p.line, p.column)))
     return stages
 
-
-def finite(value: float | None) -> bool:
-    return value is not None and math.isfinite(value)

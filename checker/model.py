@@ -60,13 +60,6 @@ class OpAmpPart:
     builtin: bool = False
     origin: Origin | None = None
 
-    @property
-    def dominant_pole_hz(self) -> float | None:
-        """p1 = GBW / A0 for the single-pole model A(s) = A0 / (1 + s/p1)."""
-        if self.gbw_hz is None or self.open_loop_gain is None:
-            return None
-        return self.gbw_hz / self.open_loop_gain
-
     def missing(self, *attributes: str) -> list[str]:
         """The names among ``attributes`` that this part leaves as None."""
         return [name for name in attributes if getattr(self, name) is None]

@@ -57,11 +57,6 @@ def at_least(value: float, series: str = "E12") -> float:
     return _clean(min(v for v in _candidates(value, series) if v >= value * (1 - 1e-9)))
 
 
-def at_most(value: float, series: str = "E24") -> float:
-    """The largest member of ``series`` that is not above ``value``."""
-    return _clean(max(v for v in _candidates(value, series) if v <= value * (1 + 1e-9)))
-
-
 def ladder(start: float, stop: float, series: str = "E12") -> list[float]:
     """Members of ``series`` from ``start`` up to ``stop`` inclusive, ascending."""
     values = []

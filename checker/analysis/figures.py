@@ -409,7 +409,7 @@ class Figures:
         gain_margin = phase_crossover = None
         j = crossing_index(phase, -180.0)
         if j is not None:
-            phase_crossover = interpolate_log(frequencies, phase, j, -180.0, phase)
+            phase_crossover = interpolate_log(frequencies, j, -180.0, phase)
             log_mag = np.log10(magnitude)
             fraction = (np.log(phase_crossover) - np.log(frequencies[j])) / (
                 np.log(frequencies[j + 1]) - np.log(frequencies[j]))
@@ -431,7 +431,7 @@ class Figures:
         j = crossing_index(log_mag, 0.0)
         if j is None:  # numerically flat at the crossing: take the grid point
             return float(frequencies[i]), float(phase[i]), float(10 ** log_noise[0])
-        crossover = interpolate_log(local, log_mag, j, 0.0, log_mag)
+        crossover = interpolate_log(local, j, 0.0, log_mag)
         fraction = (np.log(crossover) - np.log(local[j])) / (np.log(local[j + 1]) - np.log(local[j]))
 
         def at_crossover(values: np.ndarray) -> float:
@@ -766,9 +766,8 @@ def _bandwidth(frequencies: np.ndarray, gain: np.ndarray, at: int,
             local_values = np.abs(gain_at(local))
             j = crossing_index(local_values, level)
             if j is not None:
-                return interpolate_log(local, local_values, j, math.log10(level),
-                                       np.log10(local_values))
-        return interpolate_log(freqs, values, i, math.log10(level), np.log10(values))
+                return interpolate_log(local, j, math.log10(level), np.log10(local_values))
+        return interpolate_log(freqs, i, math.log10(level), np.log10(values))
 
     high = edge(frequencies[at:], magnitude[at:])
     low = edge(frequencies[: at + 1][::-1], magnitude[: at + 1][::-1])

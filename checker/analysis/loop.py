@@ -42,10 +42,9 @@ def crossing_index(values: np.ndarray, level: float) -> int | None:
     return int(hits[0]) if hits.size else None
 
 
-def interpolate_log(f: np.ndarray, y: np.ndarray, i: int, target: float,
-                    x_values: np.ndarray) -> float:
+def interpolate_log(f: np.ndarray, i: int, target: float, x_values: np.ndarray) -> float:
     """Frequency between f[i] and f[i+1] where x_values (monotone there) hits target,
-    linear in log f; y is not used other than for shape checks."""
+    linear in log f."""
     x0, x1 = x_values[i], x_values[i + 1]
     fraction = 0.0 if x1 == x0 else (target - x0) / (x1 - x0)
     return float(np.exp(np.log(f[i]) + fraction * (np.log(f[i + 1]) - np.log(f[i]))))

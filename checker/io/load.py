@@ -12,7 +12,6 @@ from checker.io.sexp_reader import read_sexp
 
 STAGE_ENDINGS = (".stage", ".stage.json")
 PART_ENDINGS = (".parts", ".parts.json")
-ALL_ENDINGS = STAGE_ENDINGS + PART_ENDINGS
 MAX_FILE_BYTES = 4 * 1024 * 1024
 
 

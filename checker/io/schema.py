@@ -9,7 +9,7 @@ from __future__ import annotations
 import difflib
 from functools import lru_cache
 
-from checker.io.grammar import FORMS, PART_PARAMETERS, REQUIREMENTS, Form, child_by_key, positional_slots
+from checker.io.grammar import FORMS, Form, positional_slots
 from checker.io.positions import InputProblem, Path, Position, locate
 
 SCHEMA_ID = "https://ampcheck.invalid/schema/stage-1.json"
@@ -264,10 +264,3 @@ def _type_words(types) -> str:
     if isinstance(types, str):
         types = [types]
     return " or ".join(words.get(t, t) for t in types)
-
-
-# The keyword lists a documentation generator or a test may want.
-KEYWORDS = {name: sorted(form.children) for name, form in FORMS.items()}
-PARAMETER_KINDS = dict(PART_PARAMETERS)
-REQUIREMENT_KINDS = dict(REQUIREMENTS)
-__all__ = ["stage_schema", "validate", "describe", "child_by_key", "KEYWORDS"]

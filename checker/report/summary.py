@@ -57,22 +57,3 @@ def print_parts(library: dict) -> None:
 
 def _short(value, unit) -> str:
     return "—" if value is None else format_si(value, unit)
-
-
-def print_load_summary(loaded, missing) -> None:
-    out = console()
-    for finding in missing:
-        out.print(f"[bold red]error[/] {finding.path}: {finding.message}")
-    for item in loaded:
-        if not item.ok:
-            for finding in item.problems:
-                out.print(f"[bold red]error[/] {finding.path}:{finding.line}:{finding.column}:"
-                          f" {finding.message}", markup=True)
-            continue
-        for stage in item.stages:
-            opamps = ", ".join(f"{o.ref} ({o.part.name})" for o in stage.opamps)
-            out.print(f"[green]ok[/] {stage.path}:{stage.origin.line} stage [bold]{stage.name}"
-                      f"[/]: {opamps}; {len(stage.passives)} passives, {len(stage.nets)} nets")
-    bad = len(missing) + sum(1 for item in loaded if not item.ok)
-    stages = sum(len(item.stages) for item in loaded)
-    out.print(f"{len(loaded)} files, {stages} stages, {bad} files with problems")
