@@ -74,7 +74,7 @@ def feedback_pole(view):
         # fails with the known capacitance (a sensor's, the stray) fails for certain.
         bare = view.reanalyse(without_inverting_input_capacitance(stage, opamp.ref),
                               stray_capacitance_f=0.0, points=MARGIN_POINTS)
-        bare_margin = bare.loops[opamp.ref].phase_margin_deg
+        bare_margin = bare.margins_of(opamp.ref).phase_margin_deg
         if bare_margin is not None and bare_margin < warn:
             continue  # something else costs the margin (load, compensation): other rules
         yield _finding(view, opamp, margin, bare_margin, warn)

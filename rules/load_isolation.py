@@ -137,7 +137,7 @@ def _capacitive_loads(view):
                                     driven[0].origin, (opamp.ref,))
             continue
         bare = bare or view.margins_of(without_load_capacitance(stage))
-        bare_margin = bare.loops[opamp.ref].phase_margin_deg
+        bare_margin = bare.margins_of(opamp.ref).phase_margin_deg
         if bare_margin is not None and bare_margin < warn:
             continue
         load, series = driven[0]
@@ -165,8 +165,13 @@ def _isolation(view, opamp, load, series, warn) -> Suggestion:
             return with_isolation_resistor(stage, opamp.out, ohms)
         return with_resistance(stage, series.ref, ohms)
 
+    tried: dict[float, float] = {}
+
     def margin(ohms: float) -> float:
-        return view.margins_of(variant(ohms)).loops[opamp.ref].phase_margin_deg or 0.0
+        if ohms not in tried:
+            copy = view.margins_of(variant(ohms))
+            tried[ohms] = copy.margins_of(opamp.ref).phase_margin_deg or 0.0
+        return tried[ohms]
 
     start = series.value * 1.0001 if series else 1.0
     best = smallest_passing(ladder(start, 10e3, "E24"), lambda r: margin(r) >= target)

@@ -394,6 +394,21 @@ class Figures:
                 margins=margins)
         return result
 
+    def margins_of(self, ref: str) -> Margins:
+        """Op-amp ``ref``'s margins alone: its loop column solved over the grid and at the
+        crossover, nothing else (no DC solve, no sources); for fix searches that try
+        many copies of a stage and read one margin from each."""
+        if "loops" in self.__dict__:
+            return self.loops[ref].margins
+        k, block = next((k, b) for k, b in enumerate(self.circuit.gain_blocks) if b.ref == ref)
+        frequencies = self.frequencies_hz
+        X = self._solve_ac(frequencies, only=[("loop", ref)])
+        z = -(_pick(X, block.in_pos, 0) - _pick(X, block.in_neg, 0))
+        T, _beta = return_ratio(self.open_loop_gains(frequencies)[:, k], z)
+        if not block.pole1_hz or np.max(np.abs(T)) < 1.0:
+            return Margins(None, None, None, None)
+        return self._margins(frequencies, T, k, block)
+
     def _loop_z(self, X: np.ndarray, block, column: tuple) -> np.ndarray:
         index = self._ac_columns[0].index(column)
         return -(_pick(X, block.in_pos, index) - _pick(X, block.in_neg, index))
