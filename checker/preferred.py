@@ -60,6 +60,9 @@ def at_least(value: float, series: str = "E12") -> float:
 def ladder(start: float, stop: float, series: str = "E12") -> list[float]:
     """Members of ``series`` from ``start`` up to ``stop`` inclusive, ascending."""
     values = []
+    start = max(start, 1e-15)  # a preferred value is positive
+    if stop < start:
+        return values
     decade = math.floor(math.log10(start))
     while 10.0 ** decade <= stop * 10:
         for m in SERIES[series]:

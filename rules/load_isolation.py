@@ -134,7 +134,7 @@ def _capacitive_loads(view):
         if opamp.part.output_resistance_ohm is None:
             yield view.cannot_check(f"the capacitive load on {opamp.ref}",
                                     f"part {opamp.part.name} gives no output resistance",
-                                    driven[0].origin, (opamp.ref,))
+                                    driven[0][0].origin, (opamp.ref,))
             continue
         bare = bare or view.margins_of(without_load_capacitance(stage))
         bare_margin = bare.margins_of(opamp.ref).phase_margin_deg

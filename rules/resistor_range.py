@@ -141,13 +141,18 @@ def _finding(view, network, resistor, side, limit, fix):
         bound = low
     else:
         pin = "ib+" if resistor in network.bias else "ib-"
-        error = abs(part.bias_current_a * figures.dc_transfer(opamp.out, (pin, opamp.ref)))
         density = thermal_density(resistor.value, settings["temperature_k"])
+        if part.bias_current_a is None:
+            error = None
+            bias = "the part gives no bias current, so its error there is unknown"
+        else:
+            error = abs(part.bias_current_a * figures.dc_transfer(opamp.out, (pin, opamp.ref)))
+            bias = (f"bias current {format_si(part.bias_current_a, 'A')} makes"
+                    f" {format_si(error, 'V')} at the output")
         message = (f"{resistor.ref} ({value}) at {opamp.ref} is above the"
-                   f" {format_si(high, 'Ω')} limit for a {kind} input (bias current"
-                   f" {format_si(part.bias_current_a, 'A')}): the bias current makes"
-                   f" {format_si(error, 'V')} at the output, its thermal noise is"
-                   f" {format_si(density, 'V/√Hz')}, and board leakage competes with it")
+                   f" {format_si(high, 'Ω')} limit for a {kind} input: the {bias}, its"
+                   f" thermal noise is {format_si(density, 'V/√Hz')}, and board leakage"
+                   " competes with it")
         details.update(bias_error_v=error, thermal_noise_v_per_rthz=density)
         bound = high
     suggestion, values = fix
