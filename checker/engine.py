@@ -34,6 +34,7 @@ DOC_SECTIONS = ("What it checks", "Why it matters", "How the fix is computed", "
 ENGINE_RULES = {
     "input-invalid": "A file could not be read, parsed, validated or built.",
     "stage-unsolvable": "The stage's equations have no unique solution as drawn.",
+    "output-on-rail": "An op-amp's output is wired straight to a supply rail.",
     "rule-failed": "A rule stopped with an internal error; the other rules still ran.",
     "waiver-invalid": "A waiver in a stage file gives no reason or names no known rule.",
     "waiver-stale": "A waiver in a stage file matched no finding; remove it.",
@@ -215,13 +216,24 @@ def check_stage(stage: Stage, figures: Figures, rules: list[Rule], options: RunO
     results: list[Finding] = []
     ran = {item.id for item in rules}
     for problem in figures.problems:
+        if problem.kind == "output-on-rail":
+            origin = stage.element(problem.elements[0]).origin
+            results.append(Finding(rule="output-on-rail", severity=Severity.ERROR,
+                                   message=problem.message, path=origin.path,
+                                   line=origin.line, column=origin.column, stage=stage.name,
+                                   elements=problem.elements))
         if problem.fatal:
             origin = stage.origin
-            if problem.elements:
+            named = {s.name: s.origin for s in stage.sources}
+            for element in problem.elements:
+                if element in named:
+                    origin = named[element]
+                    break
                 try:
-                    origin = stage.element(problem.elements[0].split()[0]).origin
+                    origin = stage.element(element.split()[0]).origin
+                    break
                 except KeyError:
-                    pass
+                    continue
             results.append(Finding(rule="stage-unsolvable", severity=Severity.ERROR,
                                    message=problem.message, path=origin.path, line=origin.line,
                                    column=origin.column, stage=stage.name,

@@ -111,3 +111,28 @@ def test_explain_prints_the_rule_docstring(capsys):
 def test_explain_unknown_rule_suggests_the_nearest(capsys):
     assert main(["explain", "feedback-pol"]) == 2
     assert "feedback-pole" in capsys.readouterr().err
+
+
+ODD = textwrap.dedent('''\
+    (stage out-on-rail (supply vcc 12V) (supply vee -12V) (ground gnd)
+      (opamp U1 (part gp-bipolar) (in+ in) (in- vcc) (out vcc) (v+ vcc) (v- vee))
+      (resistor R1 in gnd 10k)
+      (source in (range 0 1V)))
+    (stage source-loop (supply vcc 12V) (supply vee -12V) (ground gnd)
+      (opamp U1 (part gp-bipolar) (in+ vcc) (in- out) (out out) (v+ vcc) (v- vee))
+      (source vcc (range 0 1V))
+      (load out (resistance 1k)))
+    ''')
+
+
+def test_structural_problems_are_findings_at_the_element(tmp_path, capsys):
+    path = tmp_path / "odd.stage"
+    path.write_text(ODD)
+    assert main(["check", str(path), "--format", "json"]) == 1
+    import json
+
+    document = json.loads(capsys.readouterr().out)
+    found = {(f["rule"], f["stage"], f["line"]) for s in document["files"][0]["stages"]
+             for f in s["findings"] if f["rule"] in ("output-on-rail", "stage-unsolvable")}
+    # U1's line in the first stage; the ideal source on the supply net in the second.
+    assert found == {("output-on-rail", "out-on-rail", 2), ("stage-unsolvable", "source-loop", 7)}

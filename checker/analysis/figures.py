@@ -40,6 +40,7 @@ class AnalysisProblem:
     nets: tuple[str, ...] = ()
     elements: tuple[str, ...] = ()
     fatal: bool = True
+    kind: str = "singular"  # "singular" | "output-on-rail" | "floating"
 
 
 @dataclass(frozen=True)
@@ -195,14 +196,16 @@ class Figures:
         for opamp in self.stage.opamps:
             if opamp.out in rails:
                 problems.append(AnalysisProblem(
-                    f"{opamp.ref}'s output is tied to the rail {opamp.out}", nets=(opamp.out,),
-                    elements=(opamp.ref,), fatal=False))
+                    f"{opamp.ref}'s output is tied to the rail {opamp.out}: the op-amp fights"
+                    " the supply, and its output current is limited only by the part",
+                    nets=(opamp.out,), elements=(opamp.ref,), fatal=False,
+                    kind="output-on-rail"))
         floating = [circuit.node_names[n] for n in self._unreferenced(True)]
         if floating:
             problems.append(AnalysisProblem(
                 "no DC path to ground from net " + ", ".join(floating) +
                 " (only capacitors or op-amp inputs touch it)", nets=tuple(floating),
-                fatal=False))
+                fatal=False, kind="floating"))
         return problems
 
     @cached_property
@@ -776,9 +779,10 @@ def _bandwidth(frequencies: np.ndarray, gain: np.ndarray, at: int,
         i = crossing_index(values, level)
         if i is None:
             return None
+        values = np.maximum(values, np.finfo(float).tiny)  # a zero response has no log
         if gain_at is not None:
             local = np.geomspace(freqs[i], freqs[i + 1], REFINE_POINTS)
-            local_values = np.abs(gain_at(local))
+            local_values = np.maximum(np.abs(gain_at(local)), np.finfo(float).tiny)
             j = crossing_index(local_values, level)
             if j is not None:
                 return interpolate_log(local, j, math.log10(level), np.log10(local_values))
