@@ -9,6 +9,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from checker.analysis import Figures
+from checker.analysis.figures import signed_gain
 from checker.analysis.mna import SingularCircuit
 from checker.analysis.topology import classify
 from checker.engine import Rule, RunOptions, check_stages
@@ -64,11 +65,6 @@ def _finite(value) -> float | None:
         return None
     value = float(value)
     return value if math.isfinite(value) else None
-
-
-def signed_gain(gain: complex) -> float:
-    """A mid-band gain as a real number: its magnitude with the sign of its real part."""
-    return math.copysign(abs(gain), gain.real) if gain.real else abs(gain)
 
 
 def summarise(stage: Stage, figures: Figures) -> tuple[dict, dict]:

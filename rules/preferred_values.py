@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 
+from checker.analysis.figures import signed_gain
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.preferred import nearest, series_for_tolerance
@@ -90,9 +91,4 @@ def _gains(view, ref: str, ohms: float) -> tuple[float | None, float | None]:
     if not view.stage.sources or not view.figures.solvable:
         return None, None
     changed = view.reanalyse(with_resistance(view.stage, ref, ohms))
-    return _signed(view.figures.sources[0].gain_mid), _signed(changed.sources[0].gain_mid)
-
-
-def _signed(gain: complex) -> float:
-    """A mid-band gain as a real number: its magnitude with the sign of its real part."""
-    return math.copysign(abs(gain), gain.real) if gain.real else abs(gain)
+    return signed_gain(view.figures.sources[0].gain_mid), signed_gain(changed.sources[0].gain_mid)

@@ -733,6 +733,11 @@ class Figures:
         return min(margins, key=lambda item: item[1]) if margins else None
 
 
+def signed_gain(gain: complex) -> float:
+    """A mid-band gain as a real number: its magnitude with the sign of its real part."""
+    return math.copysign(abs(gain), gain.real) if gain.real else abs(gain)
+
+
 def _pick(X: np.ndarray, node: int, column: int) -> np.ndarray:
     if node == 0:
         return np.zeros(X.shape[0], dtype=X.dtype)
