@@ -247,9 +247,9 @@ def _gain_error_limit(view) -> tuple[float, str]:
 
 
 def _error_at_top(result, ideal, index: int, top: float) -> float:
-    """| |G(top)| / |G_ideal(top)| - 1 |, both read from solved gains."""
-    real = abs(_at(result.frequencies_hz, result.sources[index].gain, top))
-    perfect = abs(_at(ideal.frequencies_hz, ideal.sources[index].gain, top))
+    """| |G(top)| / |G_ideal(top)| - 1 |, both solved at ``top``."""
+    real = abs(result.gain_at(index, top))
+    perfect = abs(ideal.gain_at(index, top))
     if perfect == 0:
         return 0.0
     return float(abs(real / perfect - 1))

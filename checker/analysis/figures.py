@@ -500,6 +500,11 @@ class Figures:
                 bandwidth_low_hz=low, bandwidth_high_hz=high))
         return result
 
+    def gain_at(self, index: int, frequency_hz: float) -> complex:
+        """Source ``index``'s gain (as in SourceFigures.gain) at one frequency, from a
+        one-column solve: cheap enough for searches over many copies of a stage."""
+        return complex(self._gain_function(index)(np.array([float(frequency_hz)]))[0])
+
     def _gain_function(self, i: int):
         """Source i's gain (as in SourceFigures.gain) at any frequencies, for refining a
         band edge between two grid points with a small local solve."""
