@@ -7,19 +7,11 @@ import json
 
 import pytest
 
+from test_readers import GOOD_STAGE
+
 from checker.cli import main
 
-GOOD = """\
-(stage inv
-  (ground gnd)
-  (supply vcc 15V)
-  (supply vee -15V)
-  (opamp U1 (part gp-bipolar) (in+ gnd) (in- sum) (out vout) (v+ vcc) (v- vee))
-  (resistor R1 vin sum 10k)
-  (resistor R2 sum vout 100k)
-  (source vin (amplitude 100mV))
-  (load vout (resistance 10k)))
-"""
+GOOD = GOOD_STAGE  # the valid inverting stage of the reader tests
 BAD = GOOD.replace("(resistor R2", "(resistr R2")
 
 
