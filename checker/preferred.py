@@ -73,16 +73,54 @@ def ladder(start: float, stop: float, series: str = "E12") -> list[float]:
     return values
 
 
-def smallest_passing(values: list[float], passes) -> float | None:
-    """The smallest of ascending ``values`` for which ``passes(value)`` is true, by
-    bisection (assumes once a value passes, every larger one does); None if none does."""
-    if not values or not passes(values[-1]):
+def smallest_passing(values: list[float], passes, start: int | None = None) -> float | None:
+    """The smallest of ascending ``values`` for which ``passes(value)`` is true; None if
+    none does. Assumes once a value passes, every larger one does.
+
+    Without ``start``: bisection over the whole list. With ``start`` (the index of an
+    estimate): an exponential search outward from it brackets the answer, then
+    bisection inside the bracket, so a good estimate costs two or three calls instead
+    of log2(len) + 1 (J. L. Bentley and A. C. Yao, "An almost optimal algorithm for
+    unbounded searching", 1976). Both give the same answer."""
+    if not values:
         return None
-    low, high = 0, len(values) - 1
-    while low < high:
+    if start is None:
+        if not passes(values[-1]):
+            return None
+        low, high = -1, len(values) - 1
+    else:
+        bracket = _bracket(values, passes, min(max(start, 0), len(values) - 1))
+        if bracket is None:
+            return None
+        low, high = bracket
+    # invariant: values[high] passes; values[low] fails (or low is -1, before the list)
+    while high - low > 1:
         middle = (low + high) // 2
         if passes(values[middle]):
             high = middle
         else:
-            low = middle + 1
-    return values[low]
+            low = middle
+    return values[high]
+
+
+def _bracket(values: list[float], passes, i: int) -> tuple[int, int] | None:
+    """(failing index or -1, passing index) around the answer, by doubling steps from
+    index ``i``; None when even the last value fails."""
+    step = 1
+    if passes(values[i]):
+        high = i
+        while high - step >= 0:
+            if not passes(values[high - step]):
+                return high - step, high
+            high -= step
+            step *= 2
+        return -1, high
+    low = i
+    while low + step < len(values):
+        if passes(values[low + step]):
+            return low, low + step
+        low += step
+        step *= 2
+    if low == len(values) - 1 or not passes(values[-1]):
+        return None
+    return low, len(values) - 1

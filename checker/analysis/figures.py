@@ -18,7 +18,7 @@ from checker.analysis.circuit import Circuit, build_circuit
 from checker.analysis.loop import (Margins, crossing_index, interpolate_log, return_ratio,
                                    unwrapped_phase_deg)
 from checker.analysis.mna import (SingularCircuit, assemble, solve, source_loops,
-                                  system_stack, unreferenced_nodes)
+                                  system_stack, unreferenced_nodes, without_rails)
 from checker.model import Source, Stage
 
 REFINE_POINTS = 17  # points of the local grid that pins down each crossover
@@ -299,16 +299,34 @@ class Figures:
         """G, C and the gain-block pattern of the AC system (floating nets tied)."""
         return self._matrices(at_dc=False)
 
+    @cached_property
+    def _ac_reduced(self):
+        """The AC system without the supply rails (see mna.without_rails)."""
+        return without_rails(self.ac_matrices, self.circuit)
+
     def solve_columns(self, frequencies: np.ndarray, B: np.ndarray) -> np.ndarray:
         """Solve the AC system at ``frequencies`` (F,) for right-hand sides ``B``, either
-        (n, m) for every frequency or (F, n, m); returns X (F, n, m)."""
+        (n, m) for every frequency or (F, n, m); returns X (F, n, m). Rail voltages
+        come back 0 and supply currents are not solved (read as 0)."""
         if not self.solvable:
             raise SingularCircuit(self.problems[0].message)
         s = 2j * np.pi * frequencies
-        Y = system_stack(self.ac_matrices, self.open_loop_gains(frequencies), s)
+        gains = self.open_loop_gains(frequencies)
+        matrices, keep = self._ac_reduced
+        n = self.circuit.size
+        if keep.size == n or np.any(np.delete(B, keep, axis=-2)):
+            # nothing to drop, or an excitation on a rail: solve the whole system
+            Y = system_stack(self.ac_matrices, gains, s)
+            if B.ndim == 2:
+                B = np.broadcast_to(B, (frequencies.size,) + B.shape)
+            return solve(Y, B)
+        Y = system_stack(matrices, gains, s)
+        B = B[..., keep, :]
         if B.ndim == 2:
             B = np.broadcast_to(B, (frequencies.size,) + B.shape)
-        return solve(Y, B)
+        X = np.zeros((frequencies.size, n, B.shape[-1]), dtype=complex)
+        X[:, keep, :] = solve(Y, B)
+        return X
 
     @cached_property
     def _ac(self) -> np.ndarray:

@@ -80,6 +80,32 @@ def assemble(circuit: Circuit, tie_nodes: tuple[int, ...] = ()) -> Matrices:
                     np.array(neg, dtype=int))
 
 
+def without_rails(matrices: Matrices, circuit: Circuit) -> tuple[Matrices, np.ndarray]:
+    """The AC system with the supply rails taken out, and the kept unknowns' indices.
+
+    A rail is an ideal DC source to ground, so in AC its node sits at 0 V: its voltage
+    unknown and its branch equation drop out, and the rail node's current equation
+    only gives the supply's current, which no AC figure reads. Eliminating the known
+    unknowns leaves an exact smaller system (standard MNA reduction of grounded
+    sources), which matters because each frequency's solve costs about n^3."""
+    drop = set()
+    for net, branch in circuit.supply_branch.items():
+        drop.add(circuit.row_of_node(circuit.node(net)))
+        drop.add(circuit.row_of_branch(branch))
+    keep = np.array([i for i in range(circuit.size) if i not in drop], dtype=int)
+    if not drop:
+        return matrices, keep
+    new_index = np.full(circuit.size, -1, dtype=int)
+    new_index[keep] = np.arange(keep.size)
+
+    def column(old: np.ndarray) -> np.ndarray:
+        return np.where(old >= 0, new_index[np.maximum(old, 0)], -1)
+
+    return Matrices(matrices.G[np.ix_(keep, keep)], matrices.C[np.ix_(keep, keep)],
+                    new_index[matrices.control_rows], column(matrices.control_pos),
+                    column(matrices.control_neg)), keep
+
+
 def system_stack(matrices: Matrices, gains: np.ndarray, s: np.ndarray) -> np.ndarray:
     """Y(s) for every frequency: (F, n, n) complex.
 

@@ -33,7 +33,26 @@ def build(schema: dict):
             continue
         checks.append(_KEYWORDS[keyword](value, schema) if keyword in _KEYWORDS
                       else _unknown(keyword))
-    return lambda instance: all(check(instance) for check in checks)
+    return _all_of(checks)
+
+
+def _all_of(checks: list):
+    """One function true when every check is (unrolled for the usual one or two)."""
+    if not checks:
+        return lambda instance: True
+    if len(checks) == 1:
+        return checks[0]
+    if len(checks) == 2:
+        first, second = checks
+        return lambda instance: first(instance) and second(instance)
+
+    def every(instance) -> bool:
+        for check in checks:
+            if not check(instance):
+                return False
+        return True
+
+    return every
 
 
 def _unknown(keyword: str):
@@ -42,13 +61,24 @@ def _unknown(keyword: str):
 
 def _type(value, schema):
     tests = [_TYPES[t] for t in ([value] if isinstance(value, str) else value)]
+    if len(tests) == 1:
+        return tests[0]
     return lambda v: any(test(v) for test in tests)
 
 
 def _properties(value, schema):
     checks = {key: build(sub) for key, sub in value.items()}
-    return lambda v: not isinstance(v, dict) or all(
-        checks[k](item) for k, item in v.items() if k in checks)
+
+    def properties(v) -> bool:
+        if not isinstance(v, dict):
+            return True
+        for key, item in v.items():
+            check = checks.get(key)
+            if check is not None and not check(item):
+                return False
+        return True
+
+    return properties
 
 
 def _additional(value, schema):
@@ -66,7 +96,16 @@ def _required(value, schema):
 
 def _items(value, schema):
     check = build(value)
-    return lambda v: not isinstance(v, list) or all(check(item) for item in v)
+
+    def items(v) -> bool:
+        if not isinstance(v, list):
+            return True
+        for item in v:
+            if not check(item):
+                return False
+        return True
+
+    return items
 
 
 def _pattern(value, schema):
