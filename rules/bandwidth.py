@@ -7,6 +7,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from checker.analysis.figures import grid_upper_edges
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.preferred import at_least, ladder, smallest_passing
@@ -48,15 +49,20 @@ def bandwidth(view):
         so the GBW needed is about the required bandwidth times the noise gain (read
         from the solved loop at mid-band). The rule then scales the limiting op-amp's
         GBW (its open-loop gain and second pole kept) over the E12 values from half
-        that estimate, solves each, and reports the smallest whose solved bandwidth
-        reaches the limit; the alternative is a noise gain no higher than GBW / the
+        that estimate to 1000 times it and reports the smallest from which the solved
+        bandwidth reaches the limit: every value is first predicted from the current
+        solve (a new A(s) is a rank-one change of the nodal matrix: Sherman-Morrison
+        identity), and the search starts where the prediction passes for good and
+        solves that value and its neighbour in full to confirm; the alternative is a noise gain no higher than GBW / the
         required bandwidth. Where even ideal op-amps fall short, the network itself
         (a feedback capacitor, a source's RC) sets the bandwidth: against a stated
         `bandwidth` requirement the rule says so; against the band's top alone it
         stays quiet, since a filter or an integrator shapes the band on purpose.
         For the gain error it reports the loop gain at the band's top and the GBW that
-        brings the error within the limit, found the same way (starting from the edge a
-        single pole needs for that error, f / sqrt(1/(1 - e)^2 - 1)); a bandwidth
+        brings the error within the limit, found the same way over the E12 values
+        around the GBW a single pole needs for that error (an edge of
+        f / sqrt(1/(1 - e)^2 - 1) times the noise gain); "from which" matters here,
+        since a response that peaks can cross the ideal gain at one low GBW only; a bandwidth
         finding on a source with a band names that GBW too, since a -3 dB edge at the
         band's top still leaves the top 30 % low.
 
@@ -133,9 +139,11 @@ def _with_gbw(stage, ref: str, gbw: float):
     return replace(stage, opamps=opamps)
 
 
-def _smallest_gbw(view, opamp, estimate: float, passes) -> tuple[float, object] | None:
+def _smallest_gbw(view, opamp, estimate: float, passes, predict
+                  ) -> tuple[float, object] | None:
     """The smallest E12 GBW from estimate/2 up to 1000 x the estimate whose solved
-    figures pass; (gbw, figures) or None."""
+    figures pass; (gbw, figures) or None. ``predict(values)`` gives the index to start
+    from (see _predictor); the solved figures decide."""
     solved = {}
 
     def figures_with(gbw):
@@ -144,8 +152,30 @@ def _smallest_gbw(view, opamp, estimate: float, passes) -> tuple[float, object] 
         return solved[gbw]
 
     values = ladder(at_least(estimate / 2, "E12"), estimate * 1000, "E12")
-    best = smallest_passing(values, lambda gbw: passes(figures_with(gbw)))
+    start = predict(values) if values else None
+    best = smallest_passing(values, lambda gbw: passes(figures_with(gbw)), start=start)
     return None if best is None else (best, figures_with(best))
+
+
+def _predictor(view, opamp, sf, frequencies, judge):
+    """predict(values): the index from which every GBW in ``values`` has a gain of
+    source ``sf`` at ``frequencies`` that ``judge`` (gains (V, F) -> passing (V,))
+    accepts, every candidate's gain from the current solve by rank-one updates
+    (Figures.source_gain_with_opamp_gains); the last index when the last fails. From
+    that index up, not merely at it: a peaking response can cross the ideal gain at one
+    low GBW and leave it again above, and a part's GBW spreads."""
+    figures = view.figures
+    block = next(b for b in figures.circuit.gain_blocks if b.ref == opamp.ref)
+    s = 2j * np.pi * np.asarray(frequencies)
+
+    def predict(values):
+        gains = np.stack([replace(block, pole1_hz=gbw / block.open_loop_gain).gain(s)
+                          for gbw in values])
+        failing = np.nonzero(~judge(figures.source_gain_with_opamp_gains(
+            sf.index, opamp.ref, gains, np.asarray(frequencies))))[0]
+        return min(int(failing[-1]) + 1, len(values) - 1) if failing.size else 0
+
+    return predict
 
 
 def _check_source(view, sf, ideal):
@@ -210,7 +240,15 @@ def _short_bandwidth(view, sf, ideal, opamp, measured, required, severity, reaso
         edge = result.sources[sf.index].bandwidth_high_hz
         return edge is None or edge >= required
 
-    found = _smallest_gbw(view, opamp, estimate, passes)
+    frequencies = view.figures.frequencies_hz
+    at = int(np.argmin(np.abs(frequencies - sf.reference_hz)))
+
+    def judge(gains):
+        edges = grid_upper_edges(frequencies, gains, at)
+        return np.isnan(edges) | (edges >= required)
+
+    found = _smallest_gbw(view, opamp, estimate, passes,
+                          _predictor(view, opamp, sf, frequencies, judge))
     most_noise_gain = gbw / required
     details = {"noise_gain": noise_gain, "ideal_bandwidth_hz": ideal_bw,
                "gbw_estimate_hz": estimate}
@@ -263,8 +301,16 @@ def _gbw_for_gain_error(view, sf, ideal, opamp, noise_gain: float) -> float | No
     limit = _gain_error_limit(view)[0]
     top = sf.source.band_high_hz
     edge_needed = top / math.sqrt(1 / (1 - min(limit, 0.5)) ** 2 - 1)
+    perfect = abs(ideal.gain_at(sf.index, top))
+
+    def judge(gains):
+        if perfect == 0:
+            return np.ones(gains.shape[0], dtype=bool)
+        return np.abs(np.abs(gains[:, 0]) / perfect - 1) <= limit
+
     found = _smallest_gbw(view, opamp, edge_needed * noise_gain,
-                          lambda result: _error_at_top(result, ideal, sf.index, top) <= limit)
+                          lambda result: _error_at_top(result, ideal, sf.index, top) <= limit,
+                          _predictor(view, opamp, sf, [top], judge))
     return None if found is None else found[0]
 
 

@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 
+from checker.analysis.loop import grid_phase_margins
 from checker.analysis.topology import reached_nets
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
@@ -44,9 +45,14 @@ def load_isolation(view):
         (1) A unity-gain follower between source and load. (2) An isolation resistor
         Riso in series with the output, outside the loop (feedback taken before it):
         its zero at 1/(2 pi Riso CL) restores the phase; the rule searches the E24
-        values from 1 ohm (or from the series resistor already there) for the smallest
-        whose solved margin reaches `target_deg`,
-        and states the DC error Riso/(Riso + RL) it costs into a resistive load.
+        values from 1 ohm (or from the series resistor already there) up to 10 kohm for
+        the smallest whose solved margin reaches `target_deg`, and states the DC error
+        Riso/(Riso + RL) it costs into a resistive load. Every value's loop gain is
+        first predicted from one solve (a resistor is a rank-one change of the nodal
+        matrix: Sherman-Morrison identity); the search starts at the first predicted
+        pass and solves it and its neighbour in full to confirm. The margin need not
+        rise with Riso all the way (isolating a resistive load raises the crossover),
+        so a window of good values is found even when 10 kohm fails.
         (3) Raise the next stage's input resistance or buffer between the stages.
 
     Sources:
@@ -174,7 +180,10 @@ def _isolation(view, opamp, load, series, warn) -> Suggestion:
         return tried[ohms]
 
     start = series.value * 1.0001 if series else 1.0
-    best = smallest_passing(ladder(start, 10e3, "E24"), lambda r: margin(r) >= target)
+    values = ladder(start, 10e3, "E24")
+    guess = _predicted(view, variant(values[0]) if values else stage,
+                       series.ref if series else "Riso", values, opamp.ref, target)
+    best = smallest_passing(values, lambda r: margin(r) >= target, start=guess)
     if best is None:
         return Suggestion("no isolation resistor up to 10 kΩ restores the margin: reduce the"
                           " load capacitance or choose a part made for capacitive loads")
@@ -186,6 +195,24 @@ def _isolation(view, opamp, load, series, warn) -> Suggestion:
         text += (f"; into the {format_si(load.resistance_ohm, 'Ω')} load it costs"
                  f" {error * 100:.2g} % of DC accuracy")
     return Suggestion(text, value=best, unit="Ω", element=series.ref if series else "Riso")
+
+
+def _predicted(view, base, ref: str, values: list[float], opamp_ref: str,
+               target: float) -> int | None:
+    """Index of the first of ``values`` for resistor ``ref`` of ``base`` whose grid phase
+    margin reaches ``target``, every value from one solve (rank-one updates; see
+    Figures.loop_gain_with_admittance). Only a start for the solved search, which
+    confirms it and its neighbour."""
+    if not values:
+        return None
+    figures = view.margins_of(base)
+    resistor = base.element(ref)
+    added = np.subtract.outer(1 / np.asarray(values), 1 / resistor.value)
+    added = np.broadcast_to(added[:, None], (len(values), figures.frequencies_hz.size))
+    loop_gain = figures.loop_gain_with_admittance(opamp_ref, resistor.net_a, resistor.net_b,
+                                                  added)
+    passing = np.nonzero(grid_phase_margins(figures.frequencies_hz, loop_gain) >= target)[0]
+    return int(passing[0]) if passing.size else len(values) - 1
 
 
 def _next_stage(view):

@@ -430,6 +430,64 @@ class Figures:
             return Margins(None, None, None, None)
         return self._margins(frequencies, T, k, block)
 
+    def loop_gain_with_admittance(self, ref: str, net_a: str, net_b: str,
+                                  added: np.ndarray) -> np.ndarray:
+        """Op-amp ``ref``'s loop gain T over frequencies_hz with an admittance ``added``
+        (V, F) put between two nets, for V candidates at once: (V, F) complex.
+
+        A two-terminal admittance y between nodes a and b changes Y by y u u^T with
+        u = e_a - e_b, so one solve for the loop column and u gives every candidate by
+        the Sherman-Morrison identity, x = x0 - y z (u^T x0) / (1 + y u^T z) with
+        z = Y^-1 u (the same identity the return ratio uses; see loop.py)."""
+        circuit = self.circuit
+        k, block = next((k, b) for k, b in enumerate(circuit.gain_blocks) if b.ref == ref)
+        a, b = circuit.node(net_a), circuit.node(net_b)
+        columns, B = self._ac_columns
+        u = np.zeros(circuit.size)
+        if a:
+            u[a - 1] += 1.0
+        if b:
+            u[b - 1] -= 1.0
+        loop = B[:, columns.index(("loop", ref))]
+        X = self.solve_columns(self.frequencies_hz, np.stack([loop, u], axis=1))
+
+        def across(column: int, plus: int, minus: int) -> np.ndarray:
+            return _pick(X, plus, column) - _pick(X, minus, column)
+
+        u_x0, u_z = across(0, a, b), across(1, a, b)
+        d0 = -across(0, block.in_pos, block.in_neg)
+        dz = -across(1, block.in_pos, block.in_neg)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            d = d0 - added * dz * u_x0 / (1 + added * u_z)
+        gain = self.open_loop_gains(self.frequencies_hz)[:, k]
+        return return_ratio(gain, d)[0]
+
+    def source_gain_with_opamp_gains(self, index: int, ref: str, gains: np.ndarray,
+                                     frequencies: np.ndarray) -> np.ndarray:
+        """Source ``index``'s gain (as in SourceFigures.gain) at ``frequencies`` (F,) with
+        op-amp ``ref``'s A(s) replaced by each row of ``gains`` (V, F): (V, F) complex.
+
+        A gain block stamps -A e_r (e_in+ - e_in-)^T into Y, so a new A is a rank-one
+        change, and one solve for the source and loop columns gives every candidate by
+        the Sherman-Morrison identity (see loop.py)."""
+        circuit = self.circuit
+        k, block = next((k, b) for k, b in enumerate(circuit.gain_blocks) if b.ref == ref)
+        X = self._solve_ac(frequencies, only=[("source", index), ("loop", ref)])
+        delta = -(gains - self.open_loop_gains(frequencies)[:, k])
+        w_x0 = _pick(X, block.in_pos, 0) - _pick(X, block.in_neg, 0)
+        w_z = _pick(X, block.in_pos, 1) - _pick(X, block.in_neg, 1)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            factor = delta * w_x0 / (1 + delta * w_z)
+
+        def voltage(net: str) -> np.ndarray:
+            node = circuit.node(net)
+            return _pick(X, node, 0) - factor * _pick(X, node, 1)
+
+        v_out = voltage(self.stage.output_net)
+        if self.stage.sources[index].kind == "voltage":
+            return _safe_divide(v_out, voltage(self.stage.sources[index].net))
+        return v_out
+
     def _loop_z(self, X: np.ndarray, block, column: tuple) -> np.ndarray:
         index = self._ac_columns[0].index(column)
         return -(_pick(X, block.in_pos, index) - _pick(X, block.in_neg, index))
@@ -788,6 +846,27 @@ def _band_mask(frequencies: np.ndarray, source: Source) -> np.ndarray:
         if mask.any():
             return mask
     return np.ones(frequencies.shape, dtype=bool)
+
+
+def grid_upper_edges(frequencies: np.ndarray, gains: np.ndarray, at: int) -> np.ndarray:
+    """-3 dB upper edges of many gains (V, F) above grid index ``at``, read on the grid
+    alone (log-log interpolation, no local solve); NaN where the response stays up.
+    For ranking candidates; reported edges come from _bandwidth."""
+    if at >= frequencies.size - 1:
+        return np.full(gains.shape[0], np.nan)
+    magnitude = np.maximum(np.abs(gains[:, at:]), np.finfo(float).tiny)
+    level = magnitude[:, :1] / math.sqrt(2)
+    above = magnitude >= level
+    falls = above[:, :-1] & ~above[:, 1:]
+    found = falls.any(axis=1)
+    i = np.argmax(falls, axis=1)
+    rows = np.arange(gains.shape[0])
+    log_f = np.log(frequencies[at:])
+    m0, m1 = np.log(magnitude[rows, i]), np.log(magnitude[rows, i + 1])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        fraction = np.where(found & (m1 != m0), (np.log(level[:, 0]) - m0) / (m1 - m0), 0.0)
+    edge = np.exp(log_f[i] + fraction * (log_f[np.minimum(i + 1, log_f.size - 1)] - log_f[i]))
+    return np.where(found, edge, np.nan)
 
 
 def _bandwidth(frequencies: np.ndarray, gain: np.ndarray, at: int,

@@ -53,3 +53,24 @@ def interpolate_log(f: np.ndarray, i: int, target: float, x_values: np.ndarray) 
 def unwrapped_phase_deg(T: np.ndarray) -> np.ndarray:
     """arg T in degrees, unwrapped from the lowest frequency."""
     return np.degrees(np.unwrap(np.angle(T)))
+
+
+def grid_phase_margins(frequencies: np.ndarray, T: np.ndarray) -> np.ndarray:
+    """Phase margins of many loop gains T (V, F) read on the grid alone (no local
+    refinement): 180 deg + arg T at the first downward crossing of |T| = 1, with log|T|
+    and the unwrapped phase interpolated linearly in log f. NaN where |T| starts below 1
+    or never crosses. Cheap and a little coarse: for ranking candidates, not reporting."""
+    magnitude = np.abs(T)
+    steps = np.angle(T[:, 1:] / T[:, :-1])  # unwrapping: each step's turn, summed
+    phase = np.degrees(np.concatenate([np.angle(T[:, :1]), steps], axis=1).cumsum(axis=1))
+    above = magnitude >= 1.0
+    falls = above[:, :-1] & ~above[:, 1:]
+    found = falls.any(axis=1) & above[:, 0]
+    i = np.argmax(falls, axis=1)
+    rows = np.arange(T.shape[0])
+    log_mag = np.log10(np.maximum(magnitude, np.finfo(float).tiny))
+    m0, m1 = log_mag[rows, i], log_mag[rows, i + 1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        fraction = np.where(m1 != m0, m0 / (m0 - m1), 0.0)
+    phase_at = phase[rows, i] + fraction * (phase[rows, i + 1] - phase[rows, i])
+    return np.where(found, 180.0 + phase_at, np.nan)
