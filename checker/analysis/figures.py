@@ -498,58 +498,54 @@ class Figures:
 
     def _margins(self, frequencies: np.ndarray, T: np.ndarray, k: int, block,
                  refine_gain_margin: bool = True) -> Margins:
-        """Margins from T on the grid, each crossing pinned down by a local solve (the
-        gain margin's only when ``refine_gain_margin``; fix searches read the phase
-        margin alone)."""
+        """Margins from T on the grid, each crossing pinned down by a local solve (one
+        solve for both; the gain margin's only when ``refine_gain_margin``, since fix
+        searches read the phase margin alone)."""
         magnitude = np.abs(T)
         phase = unwrapped_phase_deg(T)
         i = crossing_index(magnitude, 1.0)
+        if i is not None and magnitude[0] < 1.0:
+            i = None
+        j = crossing_index(phase, -180.0)
+        wanted = [index for index in (i, j if refine_gain_margin else None)
+                  if index is not None]
+        local = dict(zip(wanted, self._local_loops(frequencies, wanted, phase, k, block)))
         crossover = phase_margin = noise_gain = None
-        if i is not None and magnitude[0] >= 1.0:
-            crossover, phase_at, noise_gain = self._refine(frequencies, phase, i, k, block)
+        if i is not None:
+            crossover, phase_at, noise_gain = _refined_crossover(frequencies, phase, i,
+                                                                 *local[i])
             phase_margin = 180.0 + phase_at
         gain_margin = phase_crossover = None
-        j = crossing_index(phase, -180.0)
         if j is not None:
-            local = self._local_loop(frequencies, j, k, block, phase[j]) \
-                if refine_gain_margin else None
-            if local is not None and crossing_index(local[2], -180.0) is not None:
-                freqs, T_local, local_phase, _noise = local
+            phase_crossover, gain_margin = _gain_margin(frequencies, j, phase, magnitude)
+            if j in local:
+                freqs, T_local, local_phase, _noise = local[j]
                 j_local = crossing_index(local_phase, -180.0)
-                phase_crossover, gain_margin = _gain_margin(freqs, j_local, local_phase,
-                                                            np.abs(T_local))
-            else:
-                phase_crossover, gain_margin = _gain_margin(frequencies, j, phase, magnitude)
+                if j_local is not None:
+                    phase_crossover, gain_margin = _gain_margin(freqs, j_local, local_phase,
+                                                                np.abs(T_local))
         return Margins(crossover, phase_margin, gain_margin, phase_crossover, noise_gain)
 
-    def _local_loop(self, frequencies, i, k, block, phase_i: float):
-        """Op-amp k's loop on a fine local grid between grid points i and i + 1:
-        (frequencies, T, unwrapped phase continuing from ``phase_i``, log10 |1/beta|)."""
-        local = np.geomspace(frequencies[i], frequencies[i + 1], REFINE_POINTS)
-        X = self._solve_ac(local, only=[("loop", block.ref)])
-        gain = self.open_loop_gains(local)[:, k]
+    def _local_loops(self, frequencies, brackets: list[int], phase, k, block) -> list:
+        """Op-amp k's loop on a fine local grid between grid points i and i + 1 for each
+        i in ``brackets``, all in one solve: per bracket (frequencies, T, unwrapped phase
+        continuing from the grid's, log10 |1/beta|)."""
+        if not brackets:
+            return []
+        grids = [np.geomspace(frequencies[i], frequencies[i + 1], REFINE_POINTS)
+                 for i in brackets]
+        everything = np.concatenate(grids)
+        X = self._solve_ac(everything, only=[("loop", block.ref)])
         z = -(_pick(X, block.in_pos, 0) - _pick(X, block.in_neg, 0))
-        T_local, beta_local = return_ratio(gain, z)
-        local_phase = unwrapped_phase_deg(T_local)
-        local_phase += 360.0 * np.round((phase_i - local_phase[0]) / 360.0)
-        return local, T_local, local_phase, -np.log10(np.abs(beta_local))
-
-    def _refine(self, frequencies, phase, i, k, block) -> tuple[float, float, float]:
-        """Crossover frequency, unwrapped phase and noise gain |1/beta| there, from a fine
-        local solve."""
-        local, T_local, local_phase, log_noise = self._local_loop(frequencies, i, k, block,
-                                                                  phase[i])
-        log_mag = np.log10(np.abs(T_local))
-        j = crossing_index(log_mag, 0.0)
-        if j is None:  # numerically flat at the crossing: take the grid point
-            return float(frequencies[i]), float(phase[i]), float(10 ** log_noise[0])
-        crossover = interpolate_log(local, j, 0.0, log_mag)
-        fraction = (np.log(crossover) - np.log(local[j])) / (np.log(local[j + 1]) - np.log(local[j]))
-
-        def at_crossover(values: np.ndarray) -> float:
-            return float(values[j] + fraction * (values[j + 1] - values[j]))
-
-        return crossover, at_crossover(local_phase), float(10 ** at_crossover(log_noise))
+        T_all, beta_all = return_ratio(self.open_loop_gains(everything)[:, k], z)
+        result = []
+        for n, (i, local) in enumerate(zip(brackets, grids)):
+            part = slice(n * REFINE_POINTS, (n + 1) * REFINE_POINTS)
+            T_local = T_all[part]
+            local_phase = unwrapped_phase_deg(T_local)
+            local_phase += 360.0 * np.round((phase[i] - local_phase[0]) / 360.0)
+            result.append((local, T_local, local_phase, -np.log10(np.abs(beta_all[part]))))
+        return result
 
     # -- sources: gain, input impedance, bandwidth -------------------------------------
     @cached_property
@@ -832,6 +828,23 @@ class Figures:
         return min(margins, key=lambda item: item[1]) if margins else None
 
 
+def _refined_crossover(frequencies, phase, i, local, T_local, local_phase, log_noise
+                       ) -> tuple[float, float, float]:
+    """Crossover frequency, unwrapped phase and noise gain |1/beta| there, from the local
+    solve between grid points i and i + 1."""
+    log_mag = np.log10(np.abs(T_local))
+    j = crossing_index(log_mag, 0.0)
+    if j is None:  # numerically flat at the crossing: take the grid point
+        return float(frequencies[i]), float(phase[i]), float(10 ** log_noise[0])
+    crossover = interpolate_log(local, j, 0.0, log_mag)
+    fraction = (np.log(crossover) - np.log(local[j])) / (np.log(local[j + 1]) - np.log(local[j]))
+
+    def at_crossover(values: np.ndarray) -> float:
+        return float(values[j] + fraction * (values[j + 1] - values[j]))
+
+    return crossover, at_crossover(local_phase), float(10 ** at_crossover(log_noise))
+
+
 def _gain_margin(frequencies: np.ndarray, j: int, phase: np.ndarray,
                  magnitude: np.ndarray) -> tuple[float, float]:
     """(phase crossover Hz, gain margin dB) where the phase falls through -180 deg
@@ -903,27 +916,35 @@ def _bandwidth(frequencies: np.ndarray, gain: np.ndarray, at: int,
     """-3 dB edges of |gain| around index ``at`` (None where the response stays up).
 
     Each edge is bracketed on the grid, then pinned down on a local grid of
-    REFINE_POINTS solved by ``gain_at(frequencies)`` (when given), so its accuracy does
-    not depend on the grid's density."""
+    REFINE_POINTS solved by ``gain_at(frequencies)`` (when given; one call for both
+    edges), so its accuracy does not depend on the grid's density."""
     magnitude = np.abs(gain)
     reference = magnitude[at]
     if reference == 0:
         return None, None
     level = reference / math.sqrt(2)
-
-    def edge(freqs: np.ndarray, values: np.ndarray) -> float | None:
-        i = crossing_index(values, level)
+    tiny = np.finfo(float).tiny  # a zero response has no log
+    sides = [(frequencies[at:], magnitude[at:]),  # upwards from the reference
+             (frequencies[: at + 1][::-1], magnitude[: at + 1][::-1])]  # downwards
+    brackets = [crossing_index(values, level) for _freqs, values in sides]
+    locals_ = [np.geomspace(freqs[i], freqs[i + 1], REFINE_POINTS)
+               for (freqs, _values), i in zip(sides, brackets) if i is not None]
+    solved = iter(np.split(np.maximum(np.abs(gain_at(np.concatenate(locals_))), tiny),
+                           len(locals_))) if gain_at is not None and locals_ else None
+    local_grids = iter(locals_)
+    edges = []
+    for (freqs, values), i in zip(sides, brackets):
         if i is None:
-            return None
-        values = np.maximum(values, np.finfo(float).tiny)  # a zero response has no log
-        if gain_at is not None:
-            local = np.geomspace(freqs[i], freqs[i + 1], REFINE_POINTS)
-            local_values = np.maximum(np.abs(gain_at(local)), np.finfo(float).tiny)
+            edges.append(None)
+            continue
+        if solved is not None:
+            local, local_values = next(local_grids), next(solved)
             j = crossing_index(local_values, level)
             if j is not None:
-                return interpolate_log(local, j, math.log10(level), np.log10(local_values))
-        return interpolate_log(freqs, i, math.log10(level), np.log10(values))
-
-    high = edge(frequencies[at:], magnitude[at:])
-    low = edge(frequencies[: at + 1][::-1], magnitude[: at + 1][::-1])
+                edges.append(interpolate_log(local, j, math.log10(level),
+                                             np.log10(local_values)))
+                continue
+        edges.append(interpolate_log(freqs, i, math.log10(level),
+                                     np.log10(np.maximum(values, tiny))))
+    high, low = edges
     return low, high
