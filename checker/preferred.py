@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import bisect
 import math
+from functools import lru_cache
 
 # IEC 60063 lists E12 and E24 explicitly; they depart from round(10^(i/n), 1) at several
 # values (2.7, 3.0, 3.3, 3.6, 3.9, 4.3, 4.7, 8.2), so they are written out.
@@ -47,11 +48,13 @@ def _clean(value: float) -> float:
     return float(f"{value:.6g}")
 
 
+@lru_cache(maxsize=8192)
 def nearest(value: float, series: str = "E24") -> float:
     """The member of ``series`` nearest to ``value`` on a log scale."""
     return _clean(min(_candidates(value, series), key=lambda v: abs(math.log(v / value))))
 
 
+@lru_cache(maxsize=8192)
 def at_least(value: float, series: str = "E12") -> float:
     """The smallest member of ``series`` that is not below ``value``."""
     return _clean(min(v for v in _candidates(value, series) if v >= value * (1 - 1e-9)))

@@ -97,7 +97,15 @@ class Circuit:
         return len(self.node_names)
 
     def node(self, net: str) -> int:
-        return self.node_names.index(net)
+        """The index of ``net`` (ValueError if the stage has no such net)."""
+        index = self.__dict__.get("_node_index")
+        if index is None or len(index) != len(self.node_names):
+            index = {name: i for i, name in enumerate(self.node_names)}
+            self.__dict__["_node_index"] = index
+        try:
+            return index[net]
+        except KeyError:
+            raise ValueError(f"{net!r} is not a net of the stage") from None
 
     @property
     def size(self) -> int:

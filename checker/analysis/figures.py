@@ -158,13 +158,18 @@ class _Columns:
     """Names of the right-hand-side columns of one batched solve."""
 
     names: list[tuple] = field(default_factory=list)
+    _index: dict[tuple, int] = field(default_factory=dict)
 
     def add(self, name: tuple) -> int:
+        self._index[name] = len(self.names)
         self.names.append(name)
         return len(self.names) - 1
 
     def index(self, name: tuple) -> int:
-        return self.names.index(name)
+        try:
+            return self._index[name]
+        except KeyError:
+            raise ValueError(f"{name!r} is not a column") from None
 
 
 def analyse(stage: Stage, options: AnalysisOptions | None = None) -> "Figures":
@@ -305,8 +310,10 @@ class Figures:
 
     @cached_property
     def _ac_reduced(self):
-        """The AC system without the supply rails (see mna.without_rails)."""
-        return without_rails(self.ac_matrices, self.circuit)
+        """The AC system without the supply rails (see mna.without_rails): (matrices,
+        kept unknowns, dropped unknowns)."""
+        matrices, keep = without_rails(self.ac_matrices, self.circuit)
+        return matrices, keep, np.setdiff1d(np.arange(self.circuit.size), keep)
 
     def solve_columns(self, frequencies: np.ndarray, B: np.ndarray) -> np.ndarray:
         """Solve the AC system at ``frequencies`` (F,) for right-hand sides ``B``, either
@@ -316,9 +323,9 @@ class Figures:
             raise SingularCircuit(self.problems[0].message)
         s = 2j * np.pi * frequencies
         gains = self.open_loop_gains(frequencies)
-        matrices, keep = self._ac_reduced
+        matrices, keep, dropped = self._ac_reduced
         n = self.circuit.size
-        if keep.size == n or np.any(np.delete(B, keep, axis=-2)):
+        if not dropped.size or B[..., dropped, :].any():
             # nothing to drop, or an excitation on a rail: solve the whole system
             Y = system_stack(self.ac_matrices, gains, s)
             if B.ndim == 2:

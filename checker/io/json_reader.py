@@ -91,7 +91,7 @@ def index_positions(text: str, path: str) -> tuple[dict[Path, Position], list[In
         frame = stack[-1] if stack else None
         if frame is not None and frame[1] and pending_key is None:
             # A string in key position of an object.
-            key = json.loads(token)
+            key = token[1:-1] if "\\" not in token else json.loads(token)
             if key in frame[4]:
                 pos = index.position(start)
                 problems.append(InputProblem(path, pos.line, pos.column,

@@ -45,9 +45,10 @@ class SNode:
         return isinstance(self.value, list)
 
 
-def scan(text: str, path: str) -> tuple[list[int], list[InputProblem]]:
+def scan(text: str, path: str, index: LineIndex | None = None
+         ) -> tuple[list[int], list[InputProblem]]:
     """Check structure; return the offsets of every '(' and atom in order, and problems."""
-    index = LineIndex(text)
+    index = index or LineIndex(text)
     offsets: list[int] = []
     problems: list[InputProblem] = []
     open_stack: list[int] = []
@@ -89,13 +90,13 @@ def scan(text: str, path: str) -> tuple[list[int], list[InputProblem]]:
 
 def parse(text: str, path: str) -> list[SNode]:
     """Parse ``text`` into top-level SNodes; raise InputErrors on any syntax problem."""
-    offsets, problems = scan(text, path)
+    index = LineIndex(text)
+    offsets, problems = scan(text, path, index)
     if problems:
         raise InputErrors(problems)
     if not offsets:
         raise InputErrors([InputProblem(path, 1, 1, "the file holds no forms: expected"
                                         " (stage NAME ...) or (part NAME ...)")])
-    index = LineIndex(text)
     try:
         raw = sexpdata.parse(text, nil=None, true=None, false=None)
     except Exception as error:  # sexpdata raises several kinds; scan() already caught most
