@@ -313,7 +313,9 @@ class Figures:
         """The AC system without the supply rails (see mna.without_rails): (matrices,
         kept unknowns, dropped unknowns)."""
         matrices, keep = without_rails(self.ac_matrices, self.circuit)
-        return matrices, keep, np.setdiff1d(np.arange(self.circuit.size), keep)
+        dropped = np.ones(self.circuit.size, dtype=bool)
+        dropped[keep] = False
+        return matrices, keep, np.flatnonzero(dropped)
 
     def solve_columns(self, frequencies: np.ndarray, B: np.ndarray) -> np.ndarray:
         """Solve the AC system at ``frequencies`` (F,) for right-hand sides ``B``, either

@@ -101,7 +101,7 @@ def without_rails(matrices: Matrices, circuit: Circuit) -> tuple[Matrices, np.nd
     def column(old: np.ndarray) -> np.ndarray:
         return np.where(old >= 0, new_index[np.maximum(old, 0)], -1)
 
-    return Matrices(matrices.G[np.ix_(keep, keep)], matrices.C[np.ix_(keep, keep)],
+    return Matrices(matrices.G[keep][:, keep], matrices.C[keep][:, keep],
                     new_index[matrices.control_rows], column(matrices.control_pos),
                     column(matrices.control_neg)), keep
 
