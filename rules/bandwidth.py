@@ -87,20 +87,45 @@ def bandwidth(view):
                                 (opamp.ref,))
     if without_gbw:
         return
-    solved: list = []
-
-    def ideal():
-        """The ideal-op-amp copy, solved only when a check needs it."""
-        if not solved:
-            solved.append(view.reanalyse(_ideal_opamps(stage)))
-        return solved[0]
-
+    perfect = _Ideal(view)
     for sf in wanted:
-        yield from _check_source(view, sf, ideal)
+        yield from _check_source(view, sf, lambda: perfect)
 
 
 def _closes(loop) -> bool:
     return loop.feedback == "negative" or (loop.feedback == "none" and loop.closes_anywhere)
+
+
+class _Ideal:
+    """The stage with ideal op-amps, solved only as far as a check needs. A gain at one
+    frequency of a one-op-amp stage comes from the stage's own solve (an ideal A(s) is a
+    rank-one change: Figures.source_gain_with_opamp_gains); anything else from a solved
+    copy."""
+
+    def __init__(self, view):
+        self.view = view
+        self._copy = None
+        self._gains: dict[tuple[int, float], complex] = {}
+
+    @property
+    def sources(self):
+        if self._copy is None:
+            self._copy = self.view.reanalyse(_ideal_opamps(self.view.stage))
+        return self._copy.sources
+
+    def gain_at(self, index: int, frequency_hz: float) -> complex:
+        key = (index, float(frequency_hz))
+        if key not in self._gains:
+            opamps = self.view.stage.opamps
+            if len(opamps) == 1:
+                self._gains[key] = complex(self.view.figures.source_gain_with_opamp_gains(
+                    index, opamps[0].ref, np.full((1, 1), IDEAL_GAIN, dtype=complex),
+                    np.array([key[1]]))[0, 0])
+            else:
+                if self._copy is None:
+                    self._copy = self.view.reanalyse(_ideal_opamps(self.view.stage))
+                self._gains[key] = self._copy.gain_at(index, key[1])
+        return self._gains[key]
 
 
 def _ideal_opamps(stage):
