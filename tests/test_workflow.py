@@ -281,5 +281,5 @@ def test_a_bad_file_is_counted_and_listed_and_the_audit_goes_on(project, capsys)
     (project / "broken.stage").write_text("(stage broken\n")
     code, out, _ = run(capsys, "check", ".", "--jobs", "2")
     assert code == 1
-    assert "Could not read 1 files: broken.stage" in out
-    assert "2 files, 1 stages" in out
+    assert "Could not read 1 file: broken.stage" in out
+    assert "2 files, 1 stage:" in out

@@ -133,11 +133,20 @@ class NodeRange:
 
     @property
     def clipped_low(self) -> float:
-        return self.low if self.clip_low is None else max(self.low, self.clip_low)
+        """The lowest value the net reaches with its clip limits applied (a range wholly
+        beyond one limit sits at that limit)."""
+        return self._clip(self.low)
 
     @property
     def clipped_high(self) -> float:
-        return self.high if self.clip_high is None else min(self.high, self.clip_high)
+        return self._clip(self.high)
+
+    def _clip(self, value: float) -> float:
+        if self.clip_low is not None:
+            value = max(value, self.clip_low)
+        if self.clip_high is not None:
+            value = min(value, self.clip_high)
+        return value
 
 
 @dataclass(frozen=True)

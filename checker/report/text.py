@@ -41,7 +41,8 @@ def _audit_summary(console: Console, results: list[FileResult], every: list[Find
 
         files = sorted(((weight([f for f in r.findings() if not f.suppressed]), r.path)
                         for r in results), key=lambda item: (-item[0][0], -item[0][1], item[1]))
-        worst = [f"{path} ({e} errors, {w} warnings)" for (e, w), path in files[:WORST]
+        worst = [f"{path} ({_count(e, 'error')}, {_count(w, 'warning')})"
+                 for (e, w), path in files[:WORST]
                  if e or w]
         if worst:
             console.print(Text("Worst files: ", style="bold").append("; ".join(worst)))
@@ -57,7 +58,7 @@ def _audit_summary(console: Console, results: list[FileResult], every: list[Find
     if unreadable:
         shown = ", ".join(unreadable[:20]) + (f" and {len(unreadable) - 20} more"
                                                if len(unreadable) > 20 else "")
-        console.print(Text(f"Could not read {len(unreadable)} files: ", style="bold")
+        console.print(Text(f"Could not read {_count(len(unreadable), 'file')}: ", style="bold")
                       .append(shown))
     console.print()
 
@@ -148,16 +149,17 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
     suppressed = sum(1 for f in every if f.suppressed)
     stages = sum(len(r.stages) for r in results)
     unreadable = sum(1 for r in results if r.problems)
-    closing = Text(f"{len(results)} files, {stages} stages: ")
-    closing.append(f"{counts['error']} errors", style=STYLE[Severity.ERROR] if counts["error"] else "")
+    closing = Text(f"{_count(len(results), 'file')}, {_count(stages, 'stage')}: ")
+    closing.append(_count(counts["error"], "error"),
+                   style=STYLE[Severity.ERROR] if counts["error"] else "")
     closing.append(", ")
-    closing.append(f"{counts['warning']} warnings",
+    closing.append(_count(counts["warning"], "warning"),
                    style=STYLE[Severity.WARNING] if counts["warning"] else "")
-    closing.append(f", {counts['info']} notes")
+    closing.append(f", {_count(counts['info'], 'note')}")
     if suppressed:
         closing.append(f" ({suppressed} more waived or in the baseline)")
     if unreadable:
-        closing.append(f"; {unreadable} files could not be read")
+        closing.append(f"; {_count(unreadable, 'file')} could not be read")
     if context.fail_on is not None:
         failing = sum(1 for f in every if context.fails(f))
         closing.append(f" — {failing} at or above {context.fail_on.label}" if failing
@@ -193,3 +195,8 @@ class Writer(BaseWriter):
             target = Console(file=self.out, width=200, soft_wrap=True, color_system=None,
                              highlight=False)
         write(target, self.kept, self.context)
+
+
+def _count(number: int, noun: str) -> str:
+    """'1 error', '2 errors'."""
+    return f"{number} {noun}{'' if number == 1 else 's'}"
