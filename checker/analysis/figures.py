@@ -274,6 +274,8 @@ class Figures:
         """A_k(j 2 pi f) of every op-amp: (F, K) complex."""
         s = 2j * np.pi * frequencies
         blocks = self.circuit.gain_blocks
+        if len(blocks) == 1:
+            return blocks[0].gain(s)[:, None]
         return np.stack([block.gain(s) for block in blocks], axis=1) if blocks else \
             np.zeros((frequencies.size, 0), dtype=complex)
 
@@ -550,8 +552,7 @@ class Figures:
         continuing from the grid's, log10 |1/beta|)."""
         if not brackets:
             return []
-        grids = [np.geomspace(frequencies[i], frequencies[i + 1], REFINE_POINTS)
-                 for i in brackets]
+        grids = [_local_grid(frequencies[i], frequencies[i + 1]) for i in brackets]
         everything = np.concatenate(grids)
         X = self._solve_ac(everything, only=[("loop", block.ref)])
         z = -(_pick(X, block.in_pos, 0) - _pick(X, block.in_neg, 0))
@@ -863,6 +864,14 @@ def _refined_crossover(frequencies, phase, i, local, T_local, local_phase, log_n
     return crossover, at_crossover(local_phase), float(10 ** at_crossover(log_noise))
 
 
+_REFINE_STEPS = np.linspace(0.0, 1.0, REFINE_POINTS)
+
+
+def _local_grid(start: float, stop: float) -> np.ndarray:
+    """REFINE_POINTS log-spaced frequencies from ``start`` to ``stop`` (either order)."""
+    return start * (stop / start) ** _REFINE_STEPS
+
+
 def _gain_margin(frequencies: np.ndarray, j: int, phase: np.ndarray,
                  magnitude: np.ndarray) -> tuple[float, float]:
     """(phase crossover Hz, gain margin dB) where the phase falls through -180 deg
@@ -945,7 +954,7 @@ def _bandwidth(frequencies: np.ndarray, gain: np.ndarray, at: int,
     sides = [(frequencies[at:], magnitude[at:]),  # upwards from the reference
              (frequencies[: at + 1][::-1], magnitude[: at + 1][::-1])]  # downwards
     brackets = [crossing_index(values, level) for _freqs, values in sides]
-    locals_ = [np.geomspace(freqs[i], freqs[i + 1], REFINE_POINTS)
+    locals_ = [_local_grid(freqs[i], freqs[i + 1])
                for (freqs, _values), i in zip(sides, brackets) if i is not None]
     solved = iter(np.split(np.maximum(np.abs(gain_at(np.concatenate(locals_))), tiny),
                            len(locals_))) if gain_at is not None and locals_ else None

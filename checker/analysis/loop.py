@@ -51,8 +51,10 @@ def interpolate_log(f: np.ndarray, i: int, target: float, x_values: np.ndarray) 
 
 
 def unwrapped_phase_deg(T: np.ndarray) -> np.ndarray:
-    """arg T in degrees, unwrapped from the lowest frequency."""
-    return np.degrees(np.unwrap(np.angle(T)))
+    """arg T in degrees, unwrapped from the lowest frequency along the last axis: each
+    step's turn arg(T[i+1]/T[i]) taken in (-180, 180] and summed, as np.unwrap does."""
+    steps = np.angle(T[..., 1:] / T[..., :-1])
+    return np.degrees(np.concatenate([np.angle(T[..., :1]), steps], axis=-1).cumsum(axis=-1))
 
 
 def grid_phase_margins(frequencies: np.ndarray, T: np.ndarray) -> np.ndarray:
@@ -61,8 +63,7 @@ def grid_phase_margins(frequencies: np.ndarray, T: np.ndarray) -> np.ndarray:
     and the unwrapped phase interpolated linearly in log f. NaN where |T| starts below 1
     or never crosses. Cheap and a little coarse: for ranking candidates, not reporting."""
     magnitude = np.abs(T)
-    steps = np.angle(T[:, 1:] / T[:, :-1])  # unwrapping: each step's turn, summed
-    phase = np.degrees(np.concatenate([np.angle(T[:, :1]), steps], axis=1).cumsum(axis=1))
+    phase = unwrapped_phase_deg(T)
     above = magnitude >= 1.0
     falls = above[:, :-1] & ~above[:, 1:]
     found = falls.any(axis=1) & above[:, 0]
