@@ -12,8 +12,7 @@ from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.preferred import ladder, smallest_passing
 from checker.units import format_si
-from checker.variants import (with_isolation_resistor, with_resistance,
-                              without_load_capacitance, without_loads)
+from checker.variants import with_isolation_resistor, with_resistance, without_loads
 
 
 @rule("load-isolation", "warning",
@@ -47,10 +46,11 @@ def load_isolation(view):
         its zero at 1/(2 pi Riso CL) restores the phase; the rule searches the E24
         values from 1 ohm (or from the series resistor already there) up to 10 kohm for
         the smallest whose solved margin reaches `target_deg`, and states the DC error
-        Riso/(Riso + RL) it costs into a resistive load. Every value's loop gain is
-        first predicted from one solve (a resistor is a rank-one change of the nodal
-        matrix: Sherman-Morrison identity); the search starts at the first predicted
-        pass and solves it and its neighbour in full to confirm. The margin need not
+        Riso/(Riso + RL) it costs into a resistive load. A resistor is a rank-one
+        change of the nodal matrix (Sherman-Morrison identity), so one solved copy of
+        the stage gives every value: all are first read on the grid, then the search
+        starts at the first that passes there and confirms it and its neighbour with
+        margins refined at the crossover, exact to rounding. The margin need not
         rise with Riso all the way (isolating a resistive load raises the crossover),
         so a window of good values is found even when 10 kohm fails.
         (3) Raise the next stage's input resistance or buffer between the stages.
@@ -126,7 +126,6 @@ def _capacitive_loads(view):
     stage, figures, settings = view.stage, view.figures, view.settings
     if not any(load.capacitance_f for load in stage.loads):
         return
-    bare = None
     warn = stage.require.phase_margin_deg if stage.require.phase_margin_deg is not None \
         else settings["warn_below_deg"]
     for opamp in stage.opamps:
@@ -142,8 +141,8 @@ def _capacitive_loads(view):
                                     f"part {opamp.part.name} gives no output resistance",
                                     driven[0][0].origin, (opamp.ref,))
             continue
-        bare = bare or view.margins_of(without_load_capacitance(stage))
-        bare_margin = bare.margins_of(opamp.ref).phase_margin_deg
+        bare_margin = figures.margins_with_admittances(
+            opamp.ref, lambda f: _load_capacitances_removed(stage, f)).phase_margin_deg
         if bare_margin is not None and bare_margin < warn:
             continue
         load, series = driven[0]
@@ -162,27 +161,40 @@ def _capacitive_loads(view):
             suggestion=_isolation(view, opamp, load, series, warn), load_pole_hz=pole)
 
 
+def _load_capacitances_removed(stage, frequencies: np.ndarray) -> list[tuple]:
+    """Admittance changes that take every load's capacitance out (as
+    variants.without_load_capacitance does), for Figures.margins_with_admittances."""
+    s = 2j * np.pi * frequencies
+    return [(load.net, stage.ground, -s * load.capacitance_f)
+            for load in stage.loads if load.capacitance_f]
+
+
 def _isolation(view, opamp, load, series, warn) -> Suggestion:
     stage, settings = view.stage, view.settings
     target = max(settings["target_deg"], warn)
-
-    def variant(ohms: float):
-        if series is None:
-            return with_isolation_resistor(stage, opamp.out, ohms)
-        return with_resistance(stage, series.ref, ohms)
-
+    start = series.value * 1.0001 if series else 1.0
+    values = ladder(start, 10e3, "E24")
+    if not values:
+        return Suggestion("no isolation resistor up to 10 kΩ restores the margin: reduce the"
+                          " load capacitance or choose a part made for capacitive loads")
+    # One copy of the stage with the resistor at the first value; every other value is a
+    # rank-one change of it (Figures.margins_with_admittances), solved exactly.
+    ref = series.ref if series else "Riso"
+    base_stage = (with_resistance(stage, series.ref, values[0]) if series else
+                  with_isolation_resistor(stage, opamp.out, values[0], ref))
+    base = view.margins_of(base_stage)
+    resistor = base_stage.element(ref)
     tried: dict[float, float] = {}
 
     def margin(ohms: float) -> float:
         if ohms not in tried:
-            copy = view.margins_of(variant(ohms))
-            tried[ohms] = copy.margins_of(opamp.ref).phase_margin_deg or 0.0
+            change = 1 / ohms - 1 / resistor.value
+            tried[ohms] = base.margins_with_admittances(
+                opamp.ref, lambda f: [(resistor.net_a, resistor.net_b, np.full(f.size, change))]
+            ).phase_margin_deg or 0.0
         return tried[ohms]
 
-    start = series.value * 1.0001 if series else 1.0
-    values = ladder(start, 10e3, "E24")
-    guess = _predicted(view, variant(values[0]) if values else stage,
-                       series.ref if series else "Riso", values, opamp.ref, target)
+    guess = _predicted(base, resistor, values, opamp.ref, target)
     best = smallest_passing(values, lambda r: margin(r) >= target, start=guess)
     if best is None:
         return Suggestion("no isolation resistor up to 10 kΩ restores the margin: reduce the"
@@ -194,19 +206,15 @@ def _isolation(view, opamp, load, series, warn) -> Suggestion:
         error = best / (best + load.resistance_ohm)
         text += (f"; into the {format_si(load.resistance_ohm, 'Ω')} load it costs"
                  f" {error * 100:.2g} % of DC accuracy")
-    return Suggestion(text, value=best, unit="Ω", element=series.ref if series else "Riso")
+    return Suggestion(text, value=best, unit="Ω", element=ref)
 
 
-def _predicted(view, base, ref: str, values: list[float], opamp_ref: str,
-               target: float) -> int | None:
-    """Index of the first of ``values`` for resistor ``ref`` of ``base`` whose grid phase
-    margin reaches ``target``, every value from one solve (rank-one updates; see
-    Figures.loop_gain_with_admittance). Only a start for the solved search, which
-    confirms it and its neighbour."""
-    if not values:
-        return None
-    figures = view.margins_of(base)
-    resistor = base.element(ref)
+def _predicted(figures, resistor, values: list[float], opamp_ref: str,
+               target: float) -> int:
+    """Index of the first of ``values`` for ``resistor`` whose grid phase margin reaches
+    ``target``, every value at once from one solve of ``figures`` (rank-one updates:
+    Figures.loop_gain_with_admittance); the last index when none does. Only a start for
+    the search, which solves it and its neighbour exactly."""
     added = np.subtract.outer(1 / np.asarray(values), 1 / resistor.value)
     added = np.broadcast_to(added[:, None], (len(values), figures.frequencies_hz.size))
     loop_gain = figures.loop_gain_with_admittance(opamp_ref, resistor.net_a, resistor.net_b,

@@ -20,7 +20,7 @@ from analysis_helpers import analyse_text, params, rails
 from checker.analysis import analyse
 from checker.analysis.figures import grid_upper_edges
 from checker.analysis.loop import grid_phase_margins
-from checker.variants import with_resistance
+from checker.variants import with_resistance, without_load_capacitance
 
 A0, GBW, RO, RL, CL = 2e5, 1e6, 75.0, 10e3, 10e-9
 DRIVER = params(open_loop_gain=A0, gbw=GBW, output_resistance=RO)
@@ -131,3 +131,47 @@ def test_changing_an_existing_resistor_is_the_same_update():
     predicted = figures.loop_gain_with_admittance("U1", "out", "cable", added)[0]
     solved = analyse(with_resistance(stage, "Riso", 47.0), figures.options).loops["U1"]
     np.testing.assert_allclose(predicted, solved.loop_gain, rtol=1e-8)
+
+
+def two_loads() -> str:
+    """A follower driving a cable directly and a second capacitive load behind 47 ohms:
+    taking both capacitances out is a rank-two change."""
+    return f"""
+        (stage two-loads {rails()}
+          (opamp U1 {DRIVER} (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
+          (resistor R1 out far 47)
+          (source in (range 0V 1V) (band 0Hz 1kHz))
+          (load out (resistance 10k) (capacitance 4.7n))
+          (load far (resistance 10k) (capacitance 22n)))
+        """
+
+
+def test_margins_with_several_elements_removed_match_solving_the_copy():
+    figures = analyse_text(two_loads())
+    stage = figures.stage
+
+    def removed(frequencies):
+        s = 2j * math.pi * frequencies
+        return [(load.net, stage.ground, -s * load.capacitance_f) for load in stage.loads]
+
+    updated = figures.margins_with_admittances("U1", removed)
+    solved = analyse(without_load_capacitance(stage), figures.options).margins_of("U1")
+    assert updated.phase_margin_deg == pytest.approx(solved.phase_margin_deg, abs=1e-6)
+    assert updated.crossover_hz == pytest.approx(solved.crossover_hz, rel=1e-8)
+    # and the loads mattered: with them the margin is lower
+    assert figures.loops["U1"].phase_margin_deg < solved.phase_margin_deg - 5
+
+
+@pytest.mark.parametrize("riso", [4.7, 47.0])
+def test_margins_with_a_changed_resistor_match_solving_the_copy(riso):
+    figures = analyse_text(isolated_follower(1.0))
+    updated = figures.margins_with_admittances(
+        "U1", lambda f: [("out", "cable", np.full(f.size, 1 / riso - 1.0))])
+    solved = analyse_text(isolated_follower(riso)).margins_of("U1")
+    assert updated.phase_margin_deg == pytest.approx(solved.phase_margin_deg, abs=1e-6)
+    # the closed form of the module docstring, read on a dense grid, agrees too
+    frequencies = np.logspace(2, 8, 4000)
+    loop = closed_form_loop_gain(frequencies, riso)
+    crossing = np.argmax(np.abs(loop) < 1)
+    expected = 180 + np.degrees(np.angle(loop[crossing]))
+    assert updated.phase_margin_deg == pytest.approx(expected, abs=0.3)

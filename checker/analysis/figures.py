@@ -430,7 +430,7 @@ class Figures:
             T_dc, beta_dc = return_ratio(np.array([block.open_loop_gain]), z_dc.astype(complex))
             noise_gain = np.divide(1.0, beta, out=np.full_like(beta, np.inf), where=beta != 0)
             closes = block.pole1_hz and np.max(np.abs(T)) >= 1.0
-            margins = self._margins(frequencies, T, k, block) if closes else \
+            margins = self._margins(frequencies, T, block) if closes else \
                 Margins(None, None, None, None)
             result[block.ref] = LoopFigures(
                 ref=block.ref, loop_gain=T, loop_gain_dc=float(T_dc.real[0]),
@@ -445,14 +445,94 @@ class Figures:
         many copies of a stage and read one margin from each."""
         if "loops" in self.__dict__:
             return self.loops[ref].margins
-        k, block = next((k, b) for k, b in enumerate(self.circuit.gain_blocks) if b.ref == ref)
+        return self._margins_with(ref, self._loop_at(ref))
+
+    def margins_with_admittances(self, ref: str, changes) -> Margins:
+        """Op-amp ``ref``'s margins (as margins_of) with admittances added between pairs
+        of nets: ``changes(frequencies)`` gives [(net_a, net_b, y (F,) complex), ...]
+        (a negative y removes an element). Solved exactly by rank-k updates of this
+        stage's system (loop_with_admittances), with no copy of the stage."""
+        return self._margins_with(
+            ref, lambda frequencies: self.loop_with_admittances(ref, changes(frequencies),
+                                                                frequencies))
+
+    def _margins_with(self, ref: str, loop_at) -> Margins:
+        """Margins of op-amp ``ref`` from ``loop_at(frequencies) -> (T, beta)``."""
+        block = next(b for b in self.circuit.gain_blocks if b.ref == ref)
         frequencies = self.frequencies_hz
-        X = self._solve_ac(frequencies, only=[("loop", ref)])
-        z = -(_pick(X, block.in_pos, 0) - _pick(X, block.in_neg, 0))
-        T, _beta = return_ratio(self.open_loop_gains(frequencies)[:, k], z)
+        T, _beta = loop_at(frequencies)
         if not block.pole1_hz or np.max(np.abs(T)) < 1.0:
             return Margins(None, None, None, None)
-        return self._margins(frequencies, T, k, block, refine_gain_margin=False)
+        return self._margins(frequencies, T, block, refine_gain_margin=False,
+                             loop_at=loop_at)
+
+    def _loop_at(self, ref: str):
+        """loop_at(frequencies) -> (T, beta) of op-amp ``ref``: its loop column solved."""
+        k, block = next((k, b) for k, b in enumerate(self.circuit.gain_blocks) if b.ref == ref)
+
+        def loop_at(frequencies: np.ndarray):
+            X = self._solve_ac(frequencies, only=[("loop", ref)])
+            z = -(_pick(X, block.in_pos, 0) - _pick(X, block.in_neg, 0))
+            return return_ratio(self.open_loop_gains(frequencies)[:, k], z)
+
+        return loop_at
+
+    def loop_with_admittances(self, ref: str, changes, frequencies: np.ndarray):
+        """(T, beta) of op-amp ``ref`` at ``frequencies`` with admittances added between
+        pairs of nets, ``changes`` = [(net_a, net_b, y (F,) complex), ...].
+
+        Each is a rank-one term y u u^T (u = e_a - e_b), so with U = [u_1 .. u_k] and
+        D = diag(y): x = x0 - Z D (I + U^T Z D)^-1 U^T x0, Z = Y^-1 U (the Woodbury
+        identity; Sherman-Morrison for k = 1), from one solve of the loop column and the
+        k columns of U."""
+        circuit = self.circuit
+        k_opamp, block = next((k, b) for k, b in enumerate(circuit.gain_blocks)
+                              if b.ref == ref)
+        nodes = [(circuit.node(a), circuit.node(b)) for a, b, _y in changes]
+        X = self._loop_and_pairs(ref, nodes, frequencies)
+        F, size = frequencies.size, len(changes)
+
+        def across(plus: int, minus: int) -> np.ndarray:  # (F, 1 + k)
+            return (X[:, plus - 1, :] if plus else 0.0) - (X[:, minus - 1, :] if minus else 0.0)
+
+        rows = np.stack([across(a, b) for a, b in nodes], axis=1) if size else \
+            np.zeros((F, 0, 1 + size), dtype=complex)  # (F, k, 1 + k): U^T [x0 Z]
+        D = np.stack([np.broadcast_to(np.asarray(y, dtype=complex), (F,))
+                      for _a, _b, y in changes], axis=1) if size else np.zeros((F, 0))
+        M = np.eye(size)[None] + rows[:, :, 1:] * D[:, None, :]
+        w = np.linalg.solve(M, rows[:, :, :1])[:, :, 0] if size else np.zeros((F, 0))
+        inputs = across(block.in_pos, block.in_neg)  # (F, 1 + k)
+        d = -(inputs[:, 0] - np.einsum("fk,fk->f", inputs[:, 1:], D * w))
+        return return_ratio(self.open_loop_gains(frequencies)[:, k_opamp], d)
+
+    def _loop_and_pairs(self, ref: str, nodes: list[tuple[int, int]],
+                        frequencies: np.ndarray) -> np.ndarray:
+        """X (F, n, 1 + k): op-amp ``ref``'s loop column and a unit current between each
+        node pair (u = e_a - e_b), solved; on this stage's own grid the result is kept,
+        since a search tries many values of the same element against it."""
+        cache = self.__dict__.setdefault("_pair_solves", {})
+        key = (ref, tuple(nodes))
+        if frequencies is self.frequencies_hz and key in cache:
+            return cache[key]
+        columns, B = self._ac_columns
+        out = self.circuit.node(self.stage.output_net)
+        if frequencies is self.frequencies_hz and "_ac" in self.__dict__ and out and \
+                all(pair == (out, 0) for pair in nodes):
+            # 1 A into the output net is a column of the grid's solve already
+            picked = [columns.index(("loop", ref))] + [columns.index(("output",))] * len(nodes)
+            cache[key] = self._ac[:, :, picked]
+            return cache[key]
+        U = np.zeros((self.circuit.size, len(nodes)))
+        for j, (a, b) in enumerate(nodes):
+            if a:
+                U[a - 1, j] += 1.0
+            if b:
+                U[b - 1, j] -= 1.0
+        rhs = np.concatenate([B[:, [columns.index(("loop", ref))]], U], axis=1)
+        X = self.solve_columns(frequencies, rhs)
+        if frequencies is self.frequencies_hz:
+            cache[key] = X
+        return X
 
     def loop_gain_with_admittance(self, ref: str, net_a: str, net_b: str,
                                   added: np.ndarray) -> np.ndarray:
@@ -466,14 +546,7 @@ class Figures:
         circuit = self.circuit
         k, block = next((k, b) for k, b in enumerate(circuit.gain_blocks) if b.ref == ref)
         a, b = circuit.node(net_a), circuit.node(net_b)
-        columns, B = self._ac_columns
-        u = np.zeros(circuit.size)
-        if a:
-            u[a - 1] += 1.0
-        if b:
-            u[b - 1] -= 1.0
-        loop = B[:, columns.index(("loop", ref))]
-        X = self.solve_columns(self.frequencies_hz, np.stack([loop, u], axis=1))
+        X = self._loop_and_pairs(ref, [(a, b)], self.frequencies_hz)
 
         def across(column: int, plus: int, minus: int) -> np.ndarray:
             return _pick(X, plus, column) - _pick(X, minus, column)
@@ -516,11 +589,12 @@ class Figures:
         index = self._ac_columns[0].index(column)
         return -(_pick(X, block.in_pos, index) - _pick(X, block.in_neg, index))
 
-    def _margins(self, frequencies: np.ndarray, T: np.ndarray, k: int, block,
-                 refine_gain_margin: bool = True) -> Margins:
+    def _margins(self, frequencies: np.ndarray, T: np.ndarray, block,
+                 refine_gain_margin: bool = True, loop_at=None) -> Margins:
         """Margins from T on the grid, each crossing pinned down by a local solve (one
         solve for both; the gain margin's only when ``refine_gain_margin``, since fix
-        searches read the phase margin alone)."""
+        searches read the phase margin alone). ``loop_at(frequencies) -> (T, beta)``
+        gives the loop on the local grid (default: this stage's loop column solved)."""
         magnitude = np.abs(T)
         phase = unwrapped_phase_deg(T)
         i = crossing_index(magnitude, 1.0)
@@ -529,7 +603,8 @@ class Figures:
         j = crossing_index(phase, -180.0)
         wanted = [index for index in (i, j if refine_gain_margin else None)
                   if index is not None]
-        local = dict(zip(wanted, self._local_loops(frequencies, wanted, phase, k, block)))
+        local = dict(zip(wanted, self._local_loops(frequencies, wanted, phase,
+                                                   loop_at or self._loop_at(block.ref))))
         crossover = phase_margin = noise_gain = None
         if i is not None:
             crossover, phase_at, noise_gain = _refined_crossover(frequencies, phase, i,
@@ -546,17 +621,15 @@ class Figures:
                                                                 np.abs(T_local))
         return Margins(crossover, phase_margin, gain_margin, phase_crossover, noise_gain)
 
-    def _local_loops(self, frequencies, brackets: list[int], phase, k, block) -> list:
-        """Op-amp k's loop on a fine local grid between grid points i and i + 1 for each
-        i in ``brackets``, all in one solve: per bracket (frequencies, T, unwrapped phase
-        continuing from the grid's, log10 |1/beta|)."""
+    @staticmethod
+    def _local_loops(frequencies, brackets: list[int], phase, loop_at) -> list:
+        """The loop from ``loop_at`` on a fine local grid between grid points i and i + 1
+        for each i in ``brackets``, all in one call: per bracket (frequencies, T,
+        unwrapped phase continuing from the grid's, log10 |1/beta|)."""
         if not brackets:
             return []
         grids = [_local_grid(frequencies[i], frequencies[i + 1]) for i in brackets]
-        everything = np.concatenate(grids)
-        X = self._solve_ac(everything, only=[("loop", block.ref)])
-        z = -(_pick(X, block.in_pos, 0) - _pick(X, block.in_neg, 0))
-        T_all, beta_all = return_ratio(self.open_loop_gains(everything)[:, k], z)
+        T_all, beta_all = loop_at(np.concatenate(grids))
         result = []
         for n, (i, local) in enumerate(zip(brackets, grids)):
             part = slice(n * REFINE_POINTS, (n + 1) * REFINE_POINTS)
