@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from dataclasses import replace
 
+import numpy as np
+
 from checker.model import Load, Passive, Stage
 
 
@@ -36,6 +38,32 @@ def without_inverting_input_capacitance(stage: Stage, ref: str) -> Stage:
                      if not (p.kind == "capacitor" and net in p.nets and p.other(net) in rails))
     sources = tuple(replace(s, capacitance_f=None) if s.net == net else s for s in stage.sources)
     return replace(stage, passives=passives, sources=sources)
+
+
+def inverting_input_capacitance_removed(stage: Stage, ref: str, stray_f: float,
+                                        frequencies: np.ndarray) -> list[tuple]:
+    """The same change as without_inverting_input_capacitance(stage, ref) analysed with
+    no stray, as admittances to add to the stage analysed with ``stray_f`` at every
+    inverting input: [(net_a, net_b, y (F,)), ...] for Figures.margins_with_admittances.
+    Each removed capacitance C is y = -sC between the nets it joins (a rail is AC
+    ground, as in the solve)."""
+    s = 2j * np.pi * np.asarray(frequencies)
+    opamp = next(o for o in stage.opamps if o.ref == ref)
+    part, ground, net = opamp.part, stage.ground, opamp.in_neg
+    changes = []
+    if part.input_capacitance_cm_f:
+        changes += [(pin, ground, -s * part.input_capacitance_cm_f)
+                    for pin in (opamp.in_pos, opamp.in_neg)]
+    if part.input_capacitance_diff_f:
+        changes.append((opamp.in_pos, opamp.in_neg, -s * part.input_capacitance_diff_f))
+    if stray_f:
+        changes += [(o.in_neg, ground, -s * stray_f) for o in stage.opamps]
+    rails = set(stage.rail_voltages)
+    changes += [(p.net_a, p.net_b, -s * p.value) for p in stage.passives
+                if p.kind == "capacitor" and net in p.nets and p.other(net) in rails]
+    changes += [(net, ground, -s * source.capacitance_f) for source in stage.sources
+                if source.net == net and source.kind == "current" and source.capacitance_f]
+    return changes
 
 
 def without_load_capacitance(stage: Stage) -> Stage:

@@ -3,11 +3,11 @@
 from __future__ import annotations
 
 from checker.analysis.topology import classify
-from checker.engine import MARGIN_POINTS, rule
+from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.preferred import at_least, ladder, smallest_passing
 from checker.units import format_si
-from checker.variants import with_capacitor, without_inverting_input_capacitance
+from checker.variants import inverting_input_capacitance_removed, with_capacitor
 
 
 @rule("feedback-pole", "warning",
@@ -72,9 +72,10 @@ def feedback_pole(view):
             continue
         # An unknown part capacitance only adds to what is there: a margin that already
         # fails with the known capacitance (a sensor's, the stray) fails for certain.
-        bare = view.reanalyse(without_inverting_input_capacitance(stage, opamp.ref),
-                              stray_capacitance_f=0.0, points=MARGIN_POINTS)
-        bare_margin = bare.margins_of(opamp.ref).phase_margin_deg
+        stray = view.figures.options.stray_capacitance_f
+        bare_margin = view.figures.margins_with_admittances(
+            opamp.ref, lambda f, ref=opamp.ref: inverting_input_capacitance_removed(
+                stage, ref, stray, f)).phase_margin_deg
         if bare_margin is not None and bare_margin < warn:
             continue  # something else costs the margin (load, compensation): other rules
         yield _finding(view, opamp, margin, bare_margin, warn)

@@ -20,7 +20,8 @@ from analysis_helpers import analyse_text, params, rails
 from checker.analysis import analyse
 from checker.analysis.figures import grid_upper_edges
 from checker.analysis.loop import grid_phase_margins
-from checker.variants import with_resistance, without_load_capacitance
+from checker.variants import (inverting_input_capacitance_removed, with_resistance,
+                              without_inverting_input_capacitance, without_load_capacitance)
 
 A0, GBW, RO, RL, CL = 2e5, 1e6, 75.0, 10e3, 10e-9
 DRIVER = params(open_loop_gain=A0, gbw=GBW, output_resistance=RO)
@@ -175,3 +176,27 @@ def test_margins_with_a_changed_resistor_match_solving_the_copy(riso):
     crossing = np.argmax(np.abs(loop) < 1)
     expected = 180 + np.degrees(np.angle(loop[crossing]))
     assert updated.phase_margin_deg == pytest.approx(expected, abs=0.3)
+
+
+def test_inverting_input_capacitance_as_admittances_matches_the_variant():
+    # A transimpedance stage with every kind of capacitance the variant removes: the
+    # part's Ccm and Cdiff, a photodiode's own capacitance, a capacitor from in- to a
+    # rail, and stray at the inverting input.
+    opamp = params(open_loop_gain=1e5, gbw=10e6, output_resistance=50.0,
+                   input_capacitance_cm=5e-12, input_capacitance_diff=3e-12)
+    figures = analyse_text(f"""
+        (stage tia {rails()}
+          (opamp U1 {opamp} (in+ gnd) (in- sum) (out out) (v+ vcc) (v- vee))
+          (resistor Rf sum out 1M) (capacitor Cr sum vee 2p)
+          (source sum (kind current) (range 0A 1uA) (capacitance 20p) (impedance 1G))
+          (load out (resistance 10k)))
+        """, stray_capacitance_f=1.5e-12)
+    stage = figures.stage
+    updated = figures.margins_with_admittances(
+        "U1", lambda f: inverting_input_capacitance_removed(stage, "U1", 1.5e-12, f))
+    variant = without_inverting_input_capacitance(stage, "U1")
+    solved = analyse(variant, replace(figures.options, stray_capacitance_f=0.0)) \
+        .margins_of("U1")
+    assert updated.phase_margin_deg == pytest.approx(solved.phase_margin_deg, abs=1e-6)
+    assert updated.crossover_hz == pytest.approx(solved.crossover_hz, rel=1e-8)
+    assert figures.loops["U1"].phase_margin_deg < solved.phase_margin_deg - 10

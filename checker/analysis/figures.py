@@ -488,12 +488,19 @@ class Figures:
         circuit = self.circuit
         k_opamp, block = next((k, b) for k, b in enumerate(circuit.gain_blocks)
                               if b.ref == ref)
-        nodes = [(circuit.node(a), circuit.node(b)) for a, b, _y in changes]
+        changes = [(circuit.node(a), circuit.node(b), y) for a, b, y in changes]
+        changes = [c for c in changes if c[0] != c[1]]  # within one net: no change
+        nodes = [(a, b) for a, b, _y in changes]
         X = self._loop_and_pairs(ref, nodes, frequencies)
         F, size = frequencies.size, len(changes)
 
         def across(plus: int, minus: int) -> np.ndarray:  # (F, 1 + k)
-            return (X[:, plus - 1, :] if plus else 0.0) - (X[:, minus - 1, :] if minus else 0.0)
+            result = np.zeros(X[:, 0, :].shape, dtype=complex)
+            if plus:
+                result += X[:, plus - 1, :]
+            if minus:
+                result -= X[:, minus - 1, :]
+            return result
 
         rows = np.stack([across(a, b) for a, b in nodes], axis=1) if size else \
             np.zeros((F, 0, 1 + size), dtype=complex)  # (F, k, 1 + k): U^T [x0 Z]
