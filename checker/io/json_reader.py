@@ -31,10 +31,9 @@ def read_json(text: str, path: str) -> tuple[dict, dict[Path, Position]]:
         pos = _constant_position(text)
         raise InputErrors([InputProblem(path, pos.line, pos.column, str(error))]) from None
     except RecursionError:
-        tree = None
-    too_deep = _too_deep(text, path)
-    if too_deep or tree is None:
-        raise InputErrors([too_deep or InputProblem(path, 1, 1, "nesting too deep to read")])
+        too_deep = _too_deep(text, path)
+        raise InputErrors([too_deep or InputProblem(path, 1, 1, "nesting too deep to read")]
+                          ) from None
     positions, problems = index_positions(text, path)
     if problems:
         raise InputErrors(problems)
@@ -52,12 +51,15 @@ def _too_deep(text: str, path: str) -> InputProblem | None:
         if token in "{[":
             depth += 1
             if depth > MAX_DEPTH:
-                pos = LineIndex(text).position(match.start())
-                return InputProblem(path, pos.line, pos.column, f"nesting deeper than"
-                                    f" {MAX_DEPTH} levels; the format needs at most 6")
+                return _deep_at(LineIndex(text).position(match.start()), path)
         elif token in "}]":
             depth -= 1
     return None
+
+
+def _deep_at(pos: Position, path: str) -> InputProblem:
+    return InputProblem(path, pos.line, pos.column, f"nesting deeper than {MAX_DEPTH} levels;"
+                        " the format needs at most 6")
 
 
 def _constant_position(text: str) -> Position:
@@ -113,4 +115,6 @@ def index_positions(text: str, path: str) -> tuple[dict[Path, Position], list[In
             if not frame or not frame[1]:
                 positions[value_path] = index.position(start)
             stack.append([value_path, token == "{", 0, None, set()])
+            if len(stack) > MAX_DEPTH:  # one pass checks the depth too
+                return positions, [_deep_at(index.position(start), path)]
     return positions, problems
