@@ -44,7 +44,7 @@ def inverting_input_capacitance_removed(stage: Stage, ref: str, stray_f: float,
                                         frequencies: np.ndarray) -> list[tuple]:
     """The same change as without_inverting_input_capacitance(stage, ref) analysed with
     no stray, as admittances to add to the stage analysed with ``stray_f`` at every
-    inverting input: [(net_a, net_b, y (F,)), ...] for Figures.margins_with_admittances.
+    inverting input: [(net_a, net_b, y (F,)), ...] for updates.margins_with_admittances.
     Each removed capacitance C is y = -sC between the nets it joins (a rail is AC
     ground, as in the solve)."""
     s = 2j * np.pi * np.asarray(frequencies)

@@ -8,6 +8,7 @@ from dataclasses import replace
 import numpy as np
 
 from checker.analysis.figures import grid_upper_edges
+from checker.analysis.updates import source_gain_candidates
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.preferred import at_least, ladder, smallest_passing
@@ -99,7 +100,7 @@ def _closes(loop) -> bool:
 class _Ideal:
     """The stage with ideal op-amps, solved only as far as a check needs. A gain at one
     frequency of a one-op-amp stage comes from the stage's own solve (an ideal A(s) is a
-    rank-one change: Figures.source_gain_with_opamp_gains); anything else from a solved
+    rank-one change: updates.source_gain_candidates); anything else from a solved
     copy."""
 
     def __init__(self, view):
@@ -118,9 +119,9 @@ class _Ideal:
         if key not in self._gains:
             opamps = self.view.stage.opamps
             if len(opamps) == 1:
-                self._gains[key] = complex(self.view.figures.source_gain_with_opamp_gains(
-                    index, opamps[0].ref, np.full((1, 1), IDEAL_GAIN, dtype=complex),
-                    np.array([key[1]]))[0, 0])
+                self._gains[key] = complex(source_gain_candidates(
+                    self.view.figures, index, opamps[0].ref,
+                    np.full((1, 1), IDEAL_GAIN, dtype=complex), np.array([key[1]]))[0, 0])
             else:
                 if self._copy is None:
                     self._copy = self.view.reanalyse(_ideal_opamps(self.view.stage))
@@ -186,7 +187,7 @@ def _predictor(view, opamp, sf, frequencies, judge):
     """predict(values): the index from which every GBW in ``values`` has a gain of
     source ``sf`` at ``frequencies`` that ``judge`` (gains (V, F) -> passing (V,))
     accepts, every candidate's gain from the current solve by rank-one updates
-    (Figures.source_gain_with_opamp_gains); the last index when the last fails. From
+    (updates.source_gain_candidates); the last index when the last fails. From
     that index up, not merely at it: a peaking response can cross the ideal gain at one
     low GBW and leave it again above, and a part's GBW spreads."""
     figures = view.figures
@@ -196,8 +197,8 @@ def _predictor(view, opamp, sf, frequencies, judge):
     def predict(values):
         gains = np.stack([replace(block, pole1_hz=gbw / block.open_loop_gain).gain(s)
                           for gbw in values])
-        failing = np.nonzero(~judge(figures.source_gain_with_opamp_gains(
-            sf.index, opamp.ref, gains, np.asarray(frequencies))))[0]
+        failing = np.nonzero(~judge(source_gain_candidates(
+            figures, sf.index, opamp.ref, gains, np.asarray(frequencies))))[0]
         return min(int(failing[-1]) + 1, len(values) - 1) if failing.size else 0
 
     return predict

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from checker.analysis.topology import classify
+from checker.analysis.updates import margins_with_admittances
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.preferred import at_least, ladder, smallest_passing
@@ -73,8 +74,8 @@ def feedback_pole(view):
         # An unknown part capacitance only adds to what is there: a margin that already
         # fails with the known capacitance (a sensor's, the stray) fails for certain.
         stray = view.figures.options.stray_capacitance_f
-        bare_margin = view.figures.margins_with_admittances(
-            opamp.ref, lambda f, ref=opamp.ref: inverting_input_capacitance_removed(
+        bare_margin = margins_with_admittances(
+            view.figures, opamp.ref, lambda f, ref=opamp.ref: inverting_input_capacitance_removed(
                 stage, ref, stray, f)).phase_margin_deg
         if bare_margin is not None and bare_margin < warn:
             continue  # something else costs the margin (load, compensation): other rules

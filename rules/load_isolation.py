@@ -8,6 +8,7 @@ import numpy as np
 
 from checker.analysis.loop import grid_phase_margins
 from checker.analysis.topology import reached_nets
+from checker.analysis.updates import loop_gain_candidates, margins_with_admittances
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.preferred import ladder, smallest_passing
@@ -141,8 +142,8 @@ def _capacitive_loads(view):
                                     f"part {opamp.part.name} gives no output resistance",
                                     driven[0][0].origin, (opamp.ref,))
             continue
-        bare_margin = figures.margins_with_admittances(
-            opamp.ref, lambda f: _load_capacitances_removed(stage, f)).phase_margin_deg
+        bare_margin = margins_with_admittances(
+            figures, opamp.ref, lambda f: _load_capacitances_removed(stage, f)).phase_margin_deg
         if bare_margin is not None and bare_margin < warn:
             continue
         load, series = driven[0]
@@ -163,7 +164,7 @@ def _capacitive_loads(view):
 
 def _load_capacitances_removed(stage, frequencies: np.ndarray) -> list[tuple]:
     """Admittance changes that take every load's capacitance out (as
-    variants.without_load_capacitance does), for Figures.margins_with_admittances."""
+    variants.without_load_capacitance does), for updates.margins_with_admittances."""
     s = 2j * np.pi * frequencies
     return [(load.net, stage.ground, -s * load.capacitance_f)
             for load in stage.loads if load.capacitance_f]
@@ -178,7 +179,7 @@ def _isolation(view, opamp, load, series, warn) -> Suggestion:
         return Suggestion("no isolation resistor up to 10 kΩ restores the margin: reduce the"
                           " load capacitance or choose a part made for capacitive loads")
     # One copy of the stage with the resistor at the first value; every other value is a
-    # rank-one change of it (Figures.margins_with_admittances), solved exactly.
+    # rank-one change of it (updates.margins_with_admittances), solved exactly.
     ref = series.ref if series else "Riso"
     base_stage = (with_resistance(stage, series.ref, values[0]) if series else
                   with_isolation_resistor(stage, opamp.out, values[0], ref))
@@ -189,8 +190,9 @@ def _isolation(view, opamp, load, series, warn) -> Suggestion:
     def margin(ohms: float) -> float:
         if ohms not in tried:
             change = 1 / ohms - 1 / resistor.value
-            tried[ohms] = base.margins_with_admittances(
-                opamp.ref, lambda f: [(resistor.net_a, resistor.net_b, np.full(f.size, change))]
+            tried[ohms] = margins_with_admittances(
+                base, opamp.ref,
+                lambda f: [(resistor.net_a, resistor.net_b, np.full(f.size, change))]
             ).phase_margin_deg or 0.0
         return tried[ohms]
 
@@ -213,12 +215,12 @@ def _predicted(figures, resistor, values: list[float], opamp_ref: str,
                target: float) -> int:
     """Index of the first of ``values`` for ``resistor`` whose grid phase margin reaches
     ``target``, every value at once from one solve of ``figures`` (rank-one updates:
-    Figures.loop_gain_with_admittance); the last index when none does. Only a start for
+    updates.loop_gain_candidates); the last index when none does. Only a start for
     the search, which solves it and its neighbour exactly."""
     added = np.subtract.outer(1 / np.asarray(values), 1 / resistor.value)
     added = np.broadcast_to(added[:, None], (len(values), figures.frequencies_hz.size))
-    loop_gain = figures.loop_gain_with_admittance(opamp_ref, resistor.net_a, resistor.net_b,
-                                                  added)
+    loop_gain = loop_gain_candidates(figures, opamp_ref, resistor.net_a, resistor.net_b,
+                                     added)
     passing = np.nonzero(grid_phase_margins(figures.frequencies_hz, loop_gain) >= target)[0]
     return int(passing[0]) if passing.size else len(values) - 1
 

@@ -20,6 +20,8 @@ from analysis_helpers import analyse_text, params, rails
 from checker.analysis import analyse
 from checker.analysis.figures import grid_upper_edges
 from checker.analysis.loop import grid_phase_margins
+from checker.analysis.updates import (loop_gain_candidates, margins_with_admittances,
+                                      source_gain_candidates)
 from checker.variants import (inverting_input_capacitance_removed, with_resistance,
                               without_inverting_input_capacitance, without_load_capacitance)
 
@@ -51,7 +53,7 @@ def test_loop_gain_for_many_resistances_matches_solving_each():
     figures = analyse_text(isolated_follower(1.0))
     added = np.subtract.outer(1 / np.array(RISO_VALUES), 1 / 1.0)
     added = np.broadcast_to(added[:, None], (len(RISO_VALUES), figures.frequencies_hz.size))
-    predicted = figures.loop_gain_with_admittance("U1", "out", "cable", added)
+    predicted = loop_gain_candidates(figures, "U1", "out", "cable", added)
     for row, riso in zip(predicted, RISO_VALUES):
         solved = analyse_text(isolated_follower(riso)).loops["U1"].loop_gain
         np.testing.assert_allclose(row, solved, rtol=1e-8)
@@ -63,7 +65,7 @@ def test_grid_margins_rank_candidates_within_half_a_degree_of_the_refined_ones()
     figures = analyse_text(isolated_follower(1.0))
     added = np.subtract.outer(1 / np.array(RISO_VALUES), 1 / 1.0)
     added = np.broadcast_to(added[:, None], (len(RISO_VALUES), figures.frequencies_hz.size))
-    on_grid = grid_phase_margins(figures.frequencies_hz, figures.loop_gain_with_admittance(
+    on_grid = grid_phase_margins(figures.frequencies_hz, loop_gain_candidates(figures,
         "U1", "out", "cable", added))
     for margin, riso in zip(on_grid, RISO_VALUES):
         refined = analyse_text(isolated_follower(riso)).loops["U1"].phase_margin_deg
@@ -101,8 +103,8 @@ def _opamp_gains(figures, values, frequencies):
 def test_source_gain_for_many_gbws_matches_solving_each_and_the_closed_form():
     figures = analyse_text(non_inverting(1e6))
     frequencies = figures.frequencies_hz
-    predicted = figures.source_gain_with_opamp_gains(
-        0, "U1", _opamp_gains(figures, GBW_VALUES, frequencies), frequencies)
+    predicted = source_gain_candidates(
+        figures, 0, "U1", _opamp_gains(figures, GBW_VALUES, frequencies), frequencies)
     beta = RG / (RG + RF)
     for row, gbw in zip(predicted, GBW_VALUES):
         solved = analyse_text(non_inverting(gbw)).gain_at
@@ -116,8 +118,8 @@ def test_grid_edges_rank_candidates_within_two_percent_of_the_refined_ones():
     figures = analyse_text(non_inverting(1e6))
     frequencies = figures.frequencies_hz
     at = int(np.argmin(np.abs(frequencies - figures.sources[0].reference_hz)))
-    edges = grid_upper_edges(frequencies, figures.source_gain_with_opamp_gains(
-        0, "U1", _opamp_gains(figures, GBW_VALUES, frequencies), frequencies), at)
+    edges = grid_upper_edges(frequencies, source_gain_candidates(
+        figures, 0, "U1", _opamp_gains(figures, GBW_VALUES, frequencies), frequencies), at)
     for edge, gbw in zip(edges, GBW_VALUES):
         refined = analyse_text(non_inverting(gbw)).sources[0].bandwidth_high_hz
         assert edge == pytest.approx(refined, rel=0.02)
@@ -129,7 +131,7 @@ def test_changing_an_existing_resistor_is_the_same_update():
     figures = analyse_text(text)
     stage = figures.stage
     added = np.full((1, figures.frequencies_hz.size), 1 / 47.0 - 1 / 10.0)
-    predicted = figures.loop_gain_with_admittance("U1", "out", "cable", added)[0]
+    predicted = loop_gain_candidates(figures, "U1", "out", "cable", added)[0]
     solved = analyse(with_resistance(stage, "Riso", 47.0), figures.options).loops["U1"]
     np.testing.assert_allclose(predicted, solved.loop_gain, rtol=1e-8)
 
@@ -155,7 +157,7 @@ def test_margins_with_several_elements_removed_match_solving_the_copy():
         s = 2j * math.pi * frequencies
         return [(load.net, stage.ground, -s * load.capacitance_f) for load in stage.loads]
 
-    updated = figures.margins_with_admittances("U1", removed)
+    updated = margins_with_admittances(figures, "U1", removed)
     solved = analyse(without_load_capacitance(stage), figures.options).margins_of("U1")
     assert updated.phase_margin_deg == pytest.approx(solved.phase_margin_deg, abs=1e-6)
     assert updated.crossover_hz == pytest.approx(solved.crossover_hz, rel=1e-8)
@@ -166,8 +168,8 @@ def test_margins_with_several_elements_removed_match_solving_the_copy():
 @pytest.mark.parametrize("riso", [4.7, 47.0])
 def test_margins_with_a_changed_resistor_match_solving_the_copy(riso):
     figures = analyse_text(isolated_follower(1.0))
-    updated = figures.margins_with_admittances(
-        "U1", lambda f: [("out", "cable", np.full(f.size, 1 / riso - 1.0))])
+    updated = margins_with_admittances(
+        figures, "U1", lambda f: [("out", "cable", np.full(f.size, 1 / riso - 1.0))])
     solved = analyse_text(isolated_follower(riso)).margins_of("U1")
     assert updated.phase_margin_deg == pytest.approx(solved.phase_margin_deg, abs=1e-6)
     # the closed form of the module docstring, read on a dense grid, agrees too
@@ -192,8 +194,8 @@ def test_inverting_input_capacitance_as_admittances_matches_the_variant():
           (load out (resistance 10k)))
         """, stray_capacitance_f=1.5e-12)
     stage = figures.stage
-    updated = figures.margins_with_admittances(
-        "U1", lambda f: inverting_input_capacitance_removed(stage, "U1", 1.5e-12, f))
+    updated = margins_with_admittances(
+        figures, "U1", lambda f: inverting_input_capacitance_removed(stage, "U1", 1.5e-12, f))
     variant = without_inverting_input_capacitance(stage, "U1")
     solved = analyse(variant, replace(figures.options, stray_capacitance_f=0.0)) \
         .margins_of("U1")

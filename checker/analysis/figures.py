@@ -445,19 +445,11 @@ class Figures:
         many copies of a stage and read one margin from each."""
         if "loops" in self.__dict__:
             return self.loops[ref].margins
-        return self._margins_with(ref, self._loop_at(ref))
+        return self.margins_from(ref, self._loop_at(ref))
 
-    def margins_with_admittances(self, ref: str, changes) -> Margins:
-        """Op-amp ``ref``'s margins (as margins_of) with admittances added between pairs
-        of nets: ``changes(frequencies)`` gives [(net_a, net_b, y (F,) complex), ...]
-        (a negative y removes an element). Solved exactly by rank-k updates of this
-        stage's system (loop_with_admittances), with no copy of the stage."""
-        return self._margins_with(
-            ref, lambda frequencies: self.loop_with_admittances(ref, changes(frequencies),
-                                                                frequencies))
-
-    def _margins_with(self, ref: str, loop_at) -> Margins:
-        """Margins of op-amp ``ref`` from ``loop_at(frequencies) -> (T, beta)``."""
+    def margins_from(self, ref: str, loop_at) -> Margins:
+        """Margins of op-amp ``ref`` (as margins_of) from ``loop_at(frequencies) ->
+        (T, beta)``, a loop other than the solved one (updates.py gives such loops)."""
         block = next(b for b in self.circuit.gain_blocks if b.ref == ref)
         frequencies = self.frequencies_hz
         T, _beta = loop_at(frequencies)
@@ -476,121 +468,6 @@ class Figures:
             return return_ratio(self.open_loop_gains(frequencies)[:, k], z)
 
         return loop_at
-
-    def loop_with_admittances(self, ref: str, changes, frequencies: np.ndarray):
-        """(T, beta) of op-amp ``ref`` at ``frequencies`` with admittances added between
-        pairs of nets, ``changes`` = [(net_a, net_b, y (F,) complex), ...].
-
-        Each is a rank-one term y u u^T (u = e_a - e_b), so with U = [u_1 .. u_k] and
-        D = diag(y): x = x0 - Z D (I + U^T Z D)^-1 U^T x0, Z = Y^-1 U (the Woodbury
-        identity; Sherman-Morrison for k = 1), from one solve of the loop column and the
-        k columns of U."""
-        circuit = self.circuit
-        k_opamp, block = next((k, b) for k, b in enumerate(circuit.gain_blocks)
-                              if b.ref == ref)
-        changes = [(circuit.node(a), circuit.node(b), y) for a, b, y in changes]
-        changes = [c for c in changes if c[0] != c[1]]  # within one net: no change
-        nodes = [(a, b) for a, b, _y in changes]
-        X = self._loop_and_pairs(ref, nodes, frequencies)
-        F, size = frequencies.size, len(changes)
-
-        def across(plus: int, minus: int) -> np.ndarray:  # (F, 1 + k)
-            result = np.zeros(X[:, 0, :].shape, dtype=complex)
-            if plus:
-                result += X[:, plus - 1, :]
-            if minus:
-                result -= X[:, minus - 1, :]
-            return result
-
-        rows = np.stack([across(a, b) for a, b in nodes], axis=1) if size else \
-            np.zeros((F, 0, 1 + size), dtype=complex)  # (F, k, 1 + k): U^T [x0 Z]
-        D = np.stack([np.broadcast_to(np.asarray(y, dtype=complex), (F,))
-                      for _a, _b, y in changes], axis=1) if size else np.zeros((F, 0))
-        M = np.eye(size)[None] + rows[:, :, 1:] * D[:, None, :]
-        w = np.linalg.solve(M, rows[:, :, :1])[:, :, 0] if size else np.zeros((F, 0))
-        inputs = across(block.in_pos, block.in_neg)  # (F, 1 + k)
-        d = -(inputs[:, 0] - np.einsum("fk,fk->f", inputs[:, 1:], D * w))
-        return return_ratio(self.open_loop_gains(frequencies)[:, k_opamp], d)
-
-    def _loop_and_pairs(self, ref: str, nodes: list[tuple[int, int]],
-                        frequencies: np.ndarray) -> np.ndarray:
-        """X (F, n, 1 + k): op-amp ``ref``'s loop column and a unit current between each
-        node pair (u = e_a - e_b), solved; on this stage's own grid the result is kept,
-        since a search tries many values of the same element against it."""
-        cache = self.__dict__.setdefault("_pair_solves", {})
-        key = (ref, tuple(nodes))
-        if frequencies is self.frequencies_hz and key in cache:
-            return cache[key]
-        columns, B = self._ac_columns
-        out = self.circuit.node(self.stage.output_net)
-        if frequencies is self.frequencies_hz and "_ac" in self.__dict__ and out and \
-                all(pair == (out, 0) for pair in nodes):
-            # 1 A into the output net is a column of the grid's solve already
-            picked = [columns.index(("loop", ref))] + [columns.index(("output",))] * len(nodes)
-            cache[key] = self._ac[:, :, picked]
-            return cache[key]
-        U = np.zeros((self.circuit.size, len(nodes)))
-        for j, (a, b) in enumerate(nodes):
-            if a:
-                U[a - 1, j] += 1.0
-            if b:
-                U[b - 1, j] -= 1.0
-        rhs = np.concatenate([B[:, [columns.index(("loop", ref))]], U], axis=1)
-        X = self.solve_columns(frequencies, rhs)
-        if frequencies is self.frequencies_hz:
-            cache[key] = X
-        return X
-
-    def loop_gain_with_admittance(self, ref: str, net_a: str, net_b: str,
-                                  added: np.ndarray) -> np.ndarray:
-        """Op-amp ``ref``'s loop gain T over frequencies_hz with an admittance ``added``
-        (V, F) put between two nets, for V candidates at once: (V, F) complex.
-
-        A two-terminal admittance y between nodes a and b changes Y by y u u^T with
-        u = e_a - e_b, so one solve for the loop column and u gives every candidate by
-        the Sherman-Morrison identity, x = x0 - y z (u^T x0) / (1 + y u^T z) with
-        z = Y^-1 u (the same identity the return ratio uses; see loop.py)."""
-        circuit = self.circuit
-        k, block = next((k, b) for k, b in enumerate(circuit.gain_blocks) if b.ref == ref)
-        a, b = circuit.node(net_a), circuit.node(net_b)
-        X = self._loop_and_pairs(ref, [(a, b)], self.frequencies_hz)
-
-        def across(column: int, plus: int, minus: int) -> np.ndarray:
-            return _pick(X, plus, column) - _pick(X, minus, column)
-
-        u_x0, u_z = across(0, a, b), across(1, a, b)
-        d0 = -across(0, block.in_pos, block.in_neg)
-        dz = -across(1, block.in_pos, block.in_neg)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            d = d0 - added * dz * u_x0 / (1 + added * u_z)
-        gain = self.open_loop_gains(self.frequencies_hz)[:, k]
-        return return_ratio(gain, d)[0]
-
-    def source_gain_with_opamp_gains(self, index: int, ref: str, gains: np.ndarray,
-                                     frequencies: np.ndarray) -> np.ndarray:
-        """Source ``index``'s gain (as in SourceFigures.gain) at ``frequencies`` (F,) with
-        op-amp ``ref``'s A(s) replaced by each row of ``gains`` (V, F): (V, F) complex.
-
-        A gain block stamps -A e_r (e_in+ - e_in-)^T into Y, so a new A is a rank-one
-        change, and one solve for the source and loop columns gives every candidate by
-        the Sherman-Morrison identity (see loop.py)."""
-        circuit = self.circuit
-        k, block = next((k, b) for k, b in enumerate(circuit.gain_blocks) if b.ref == ref)
-        X = self._solve_ac(frequencies, only=[("source", index), ("loop", ref)])
-        delta = -(gains - self.open_loop_gains(frequencies)[:, k])
-        w_x0 = _pick(X, block.in_pos, 0) - _pick(X, block.in_neg, 0)
-        w_z = _pick(X, block.in_pos, 1) - _pick(X, block.in_neg, 1)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            factor = delta * w_x0 / (1 + delta * w_z)
-
-        def voltage(net: str) -> np.ndarray:
-            node = circuit.node(net)
-            return _pick(X, node, 0) - factor * _pick(X, node, 1)
-
-        v_out = voltage(self.stage.output_net)
-        if self.stage.sources[index].kind == "voltage":
-            return _safe_divide(v_out, voltage(self.stage.sources[index].net))
-        return v_out
 
     def _loop_z(self, X: np.ndarray, block, column: tuple) -> np.ndarray:
         index = self._ac_columns[0].index(column)
