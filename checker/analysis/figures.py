@@ -268,7 +268,9 @@ class Figures:
             if source.band_high_hz:
                 high = max(high, source.band_high_hz * 1000)
         grid = np.logspace(math.log10(low), math.log10(high), self.options.points)
-        return np.unique(np.concatenate([grid, extra]))
+        values = np.sort(np.concatenate([grid, extra]))
+        # sorted and without repeats, as np.unique (which would import numpy.ma)
+        return values[np.concatenate([[True], values[1:] != values[:-1]])]
 
     def open_loop_gains(self, frequencies: np.ndarray) -> np.ndarray:
         """A_k(j 2 pi f) of every op-amp: (F, K) complex."""
