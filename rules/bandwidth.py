@@ -88,9 +88,9 @@ def bandwidth(view):
                                 (opamp.ref,))
     if without_gbw:
         return
-    perfect = _Ideal(view)
+    ideal = _Ideal(view)
     for sf in wanted:
-        yield from _check_source(view, sf, lambda: perfect)
+        yield from _check_source(view, sf, ideal)
 
 
 def _closes(loop) -> bool:
@@ -108,11 +108,14 @@ class _Ideal:
         self._copy = None
         self._gains: dict[tuple[int, float], complex] = {}
 
-    @property
-    def sources(self):
+    def _solved_copy(self):
         if self._copy is None:
             self._copy = self.view.reanalyse(_ideal_opamps(self.view.stage))
-        return self._copy.sources
+        return self._copy
+
+    @property
+    def sources(self):
+        return self._solved_copy().sources
 
     def gain_at(self, index: int, frequency_hz: float) -> complex:
         key = (index, float(frequency_hz))
@@ -123,9 +126,7 @@ class _Ideal:
                     self.view.figures, index, opamps[0].ref,
                     np.full((1, 1), IDEAL_GAIN, dtype=complex), np.array([key[1]]))[0, 0])
             else:
-                if self._copy is None:
-                    self._copy = self.view.reanalyse(_ideal_opamps(self.view.stage))
-                self._gains[key] = self._copy.gain_at(index, key[1])
+                self._gains[key] = self._solved_copy().gain_at(index, key[1])
         return self._gains[key]
 
 
@@ -216,13 +217,13 @@ def _check_source(view, sf, ideal):
     measured = sf.bandwidth_high_hz if sf.bandwidth_high_hz is not None else math.inf
     opamp = _limiting_opamp(view)
     if measured < required:
-        finding = _short_bandwidth(view, sf, ideal(), opamp, measured, required, severity,
+        finding = _short_bandwidth(view, sf, ideal, opamp, measured, required, severity,
                                    reason)
         if finding is not None:
             yield finding
         return
     if source.band_high_hz and not _surely_flat(view, source.band_high_hz):
-        yield from _gain_error(view, sf, ideal(), opamp)
+        yield from _gain_error(view, sf, ideal, opamp)
 
 
 def _surely_flat(view, top: float) -> bool:
