@@ -25,7 +25,6 @@ from checker.analysis.mna import SingularCircuit
 from checker.findings import Finding, Severity, Suggestion
 from checker.model import Origin, Stage
 
-REANALYSIS_POINTS = 100
 # Enough points to bracket each loop crossover, which is then refined on a local grid:
 # for a copy of a stage that a rule reads only phase margins from.
 MARGIN_POINTS = 50
@@ -157,10 +156,8 @@ class StageView:
     siblings: dict[str, Figures] = field(default_factory=dict)  # other stages of the file
 
     def reanalyse(self, stage: Stage, **options) -> Figures:
-        """Figures of a modified copy of the stage (to verify a suggested fix), on a
-        coarser grid: crossovers are refined locally and band edges interpolated, so
-        half the points keep the margins and edges a fix is judged by."""
-        options.setdefault("points", min(self.figures.options.points, REANALYSIS_POINTS))
+        """Figures of a modified copy of the stage (to verify a suggested fix), with the
+        stage's own analysis options unless ``options`` override them."""
         return analyse(stage, replace(self.figures.options, **options))
 
     def margins_of(self, stage: Stage) -> Figures:
