@@ -412,9 +412,15 @@ class Figures:
 
     def dc_transfer(self, net: str, column: tuple) -> float:
         """DC voltage at ``net`` per unit of the excitation named by ``column``."""
-        columns, X = self._dc
+        index, rows = self._dc_table
         node = self.circuit.node(net)
-        return 0.0 if node == 0 else float(X[node - 1, columns.index(column)])
+        return 0.0 if node == 0 else rows[node - 1][index(column)]
+
+    @cached_property
+    def _dc_table(self):
+        """The DC solution as Python floats, for the many single reads of dc_transfer."""
+        columns, X = self._dc
+        return columns.index, X.tolist()
 
     # -- loops -----------------------------------------------------------------------
     @cached_property
