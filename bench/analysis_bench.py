@@ -74,7 +74,7 @@ def breakdown(stage, points: int = 200) -> dict[str, float]:
     _columns, B = figures._ac_columns
 
     def assembly():
-        matrices, _keep = without_rails(assemble(circuit), circuit)
+        matrices, _keep, _dropped = without_rails(assemble(circuit), circuit)
         system_stack(matrices, figures.open_loop_gains(frequencies), s)
 
     def batched_solve():  # the stack with the rails taken out, solved for every column

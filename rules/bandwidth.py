@@ -196,8 +196,7 @@ def _predictor(view, opamp, sf, frequencies, judge):
     s = 2j * np.pi * np.asarray(frequencies)
 
     def predict(values):
-        gains = np.stack([replace(block, pole1_hz=gbw / block.open_loop_gain).gain(s)
-                          for gbw in values])
+        gains = np.stack([block.with_gbw(gbw).gain(s) for gbw in values])
         failing = np.nonzero(~judge(source_gain_candidates(
             figures, sf.index, opamp.ref, gains, np.asarray(frequencies))))[0]
         return min(int(failing[-1]) + 1, len(values) - 1) if failing.size else 0

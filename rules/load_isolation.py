@@ -170,14 +170,17 @@ def _load_capacitances_removed(stage, frequencies: np.ndarray) -> list[tuple]:
             for load in stage.loads if load.capacitance_f]
 
 
+_NO_ISOLATION = Suggestion("no isolation resistor up to 10 kΩ restores the margin: reduce"
+                           " the load capacitance or choose a part made for capacitive loads")
+
+
 def _isolation(view, opamp, load, series, warn) -> Suggestion:
     stage, settings = view.stage, view.settings
     target = max(settings["target_deg"], warn)
     start = series.value * 1.0001 if series else 1.0
     values = ladder(start, 10e3, "E24")
     if not values:
-        return Suggestion("no isolation resistor up to 10 kΩ restores the margin: reduce the"
-                          " load capacitance or choose a part made for capacitive loads")
+        return _NO_ISOLATION
     # One copy of the stage with the resistor at the first value; every other value is a
     # rank-one change of it (updates.margins_with_admittances), solved exactly.
     ref = series.ref if series else "Riso"
@@ -199,8 +202,7 @@ def _isolation(view, opamp, load, series, warn) -> Suggestion:
     guess = _predicted(base, resistor, values, opamp.ref, target)
     best = smallest_passing(values, lambda r: margin(r) >= target, start=guess)
     if best is None:
-        return Suggestion("no isolation resistor up to 10 kΩ restores the margin: reduce the"
-                          " load capacitance or choose a part made for capacitive loads")
+        return _NO_ISOLATION
     where = (f"raise {series.ref} to {format_si(best, 'Ω')} (E24)" if series else
              f"put {format_si(best, 'Ω')} (E24) in series between {opamp.out} and the load")
     text = f"{where}, feedback taken before it: solved phase margin {margin(best):.0f}°"

@@ -97,7 +97,7 @@ GBW_VALUES = [0.5e6, 1e6, 2.2e6, 10e6]
 def _opamp_gains(figures, values, frequencies):
     block = figures.circuit.gain_blocks[0]
     s = 2j * math.pi * frequencies
-    return np.stack([replace(block, pole1_hz=g / block.open_loop_gain).gain(s) for g in values])
+    return np.stack([block.with_gbw(g).gain(s) for g in values])
 
 
 def test_source_gain_for_many_gbws_matches_solving_each_and_the_closed_form():

@@ -15,7 +15,7 @@ voltage sits in series with the non-inverting input; bias currents flow into eac
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -65,6 +65,10 @@ class GainBlock:
     pole1_hz: float | None  # None: no frequency dependence (part lacks GBW)
     pole2_hz: float | None
     output_resistance_ohm: float
+
+    def with_gbw(self, gbw_hz: float) -> "GainBlock":
+        """The same block with another GBW, A0 and the second pole kept (p1 = GBW/A0)."""
+        return replace(self, pole1_hz=gbw_hz / self.open_loop_gain)
 
     def gain(self, s: np.ndarray) -> np.ndarray:
         """A(s) = A0 / ((1 + s/p1)(1 + s/p2)); shape of ``s``, complex."""
@@ -212,9 +216,9 @@ def _expand_opamp(circuit: Circuit, index: dict[str, int], opamp: OpAmp,
         out_int = out
     circuit.gain_branch[opamp.ref] = len(circuit.branches)
     circuit.branches.append(Branch(out_int, 0, f"{opamp.ref} gain block"))
-    circuit.gain_blocks.append(GainBlock(
+    block = GainBlock(
         ref=opamp.ref, out_int=out_int, in_pos=in_pos, in_neg=in_neg, out=out,
         v_pos=index[opamp.v_pos], v_neg=index[opamp.v_neg], open_loop_gain=open_loop_gain,
-        pole1_hz=(part.gbw_hz / open_loop_gain) if part.gbw_hz else None,
-        pole2_hz=part.second_pole_hz if part.gbw_hz else None,
-        output_resistance_ohm=resistance))
+        pole1_hz=None, pole2_hz=part.second_pole_hz if part.gbw_hz else None,
+        output_resistance_ohm=resistance)
+    circuit.gain_blocks.append(block.with_gbw(part.gbw_hz) if part.gbw_hz else block)

@@ -325,10 +325,7 @@ class Figures:
     def _ac_reduced(self):
         """The AC system without the supply rails (see mna.without_rails): (matrices,
         kept unknowns, dropped unknowns)."""
-        matrices, keep = without_rails(self.ac_matrices, self.circuit)
-        dropped = np.ones(self.circuit.size, dtype=bool)
-        dropped[keep] = False
-        return matrices, keep, np.flatnonzero(dropped)
+        return without_rails(self.ac_matrices, self.circuit)
 
     def solve_columns(self, frequencies: np.ndarray, B: np.ndarray) -> np.ndarray:
         """Solve the AC system at ``frequencies`` (F,) for right-hand sides ``B``, either

@@ -80,8 +80,10 @@ def assemble(circuit: Circuit, tie_nodes: tuple[int, ...] = ()) -> Matrices:
                     np.array(neg, dtype=int))
 
 
-def without_rails(matrices: Matrices, circuit: Circuit) -> tuple[Matrices, np.ndarray]:
-    """The AC system with the supply rails taken out, and the kept unknowns' indices.
+def without_rails(matrices: Matrices, circuit: Circuit
+                  ) -> tuple[Matrices, np.ndarray, np.ndarray]:
+    """The AC system with the supply rails taken out, the kept unknowns' indices and the
+    dropped ones'.
 
     A rail is an ideal DC source to ground, so in AC its node sits at 0 V: its voltage
     unknown and its branch equation drop out, and the rail node's current equation
@@ -93,8 +95,9 @@ def without_rails(matrices: Matrices, circuit: Circuit) -> tuple[Matrices, np.nd
         drop.add(circuit.row_of_node(circuit.node(net)))
         drop.add(circuit.row_of_branch(branch))
     keep = np.array([i for i in range(circuit.size) if i not in drop], dtype=int)
+    dropped = np.array(sorted(drop), dtype=int)
     if not drop:
-        return matrices, keep
+        return matrices, keep, dropped
     new_index = np.full(circuit.size, -1, dtype=int)
     new_index[keep] = np.arange(keep.size)
 
@@ -103,7 +106,7 @@ def without_rails(matrices: Matrices, circuit: Circuit) -> tuple[Matrices, np.nd
 
     return Matrices(matrices.G[keep][:, keep], matrices.C[keep][:, keep],
                     new_index[matrices.control_rows], column(matrices.control_pos),
-                    column(matrices.control_neg)), keep
+                    column(matrices.control_neg)), keep, dropped
 
 
 def system_stack(matrices: Matrices, gains: np.ndarray, s: np.ndarray) -> np.ndarray:

@@ -31,6 +31,16 @@ def _opamp(figures: Figures, ref: str):
     return next((k, b) for k, b in enumerate(figures.circuit.gain_blocks) if b.ref == ref)
 
 
+def _across(X: np.ndarray, plus: int, minus: int) -> np.ndarray:
+    """V(plus) - V(minus) for every frequency and column of X (F, n, m): (F, m)."""
+    result = np.zeros((X.shape[0], X.shape[2]), dtype=X.dtype)
+    if plus:
+        result += X[:, plus - 1, :]
+    if minus:
+        result -= X[:, minus - 1, :]
+    return result
+
+
 def _loop_and_pairs(figures: Figures, ref: str, nodes: list[tuple[int, int]],
                     frequencies: np.ndarray) -> np.ndarray:
     """X (F, n, 1 + k): op-amp ``ref``'s loop column and a unit current between each
@@ -72,19 +82,10 @@ def loop_with_admittances(figures: Figures, ref: str, changes, frequencies: np.n
     nodes = [(a, b) for a, b, _y in changes]
     X = _loop_and_pairs(figures, ref, nodes, frequencies)
     F, size = frequencies.size, len(changes)
-
-    def across(plus: int, minus: int) -> np.ndarray:  # (F, 1 + k)
-        result = np.zeros(X[:, 0, :].shape, dtype=complex)
-        if plus:
-            result += X[:, plus - 1, :]
-        if minus:
-            result -= X[:, minus - 1, :]
-        return result
-
-    inputs = across(block.in_pos, block.in_neg)  # (F, 1 + k)
+    inputs = _across(X, block.in_pos, block.in_neg)  # (F, 1 + k)
     d = -inputs[:, 0]
     if size:
-        rows = np.stack([across(a, b) for a, b in nodes], axis=1)  # (F, k, 1 + k)
+        rows = np.stack([_across(X, a, b) for a, b in nodes], axis=1)  # (F, k, 1 + k)
         D = np.stack([np.broadcast_to(np.asarray(y, dtype=complex), (F,))
                       for _a, _b, y in changes], axis=1)  # (F, k)
         M = np.eye(size)[None] + rows[:, :, 1:] * D[:, None, :]
@@ -110,13 +111,8 @@ def loop_gain_candidates(figures: Figures, ref: str, net_a: str, net_b: str,
     k, block = _opamp(figures, ref)
     a, b = circuit.node(net_a), circuit.node(net_b)
     X = _loop_and_pairs(figures, ref, [(a, b)], figures.frequencies_hz)
-
-    def across(column: int, plus: int, minus: int) -> np.ndarray:
-        return _pick(X, plus, column) - _pick(X, minus, column)
-
-    u_x0, u_z = across(0, a, b), across(1, a, b)
-    d0 = -across(0, block.in_pos, block.in_neg)
-    dz = -across(1, block.in_pos, block.in_neg)
+    u_x0, u_z = _across(X, a, b).T
+    d0, dz = -_across(X, block.in_pos, block.in_neg).T
     with np.errstate(divide="ignore", invalid="ignore"):
         d = d0 - added * dz * u_x0 / (1 + added * u_z)
     return return_ratio(figures.open_loop_gains(figures.frequencies_hz)[:, k], d)[0]
@@ -131,8 +127,7 @@ def source_gain_candidates(figures: Figures, index: int, ref: str, gains: np.nda
     k, block = _opamp(figures, ref)
     X = figures._solve_ac(frequencies, only=[("source", index), ("loop", ref)])
     delta = -(gains - figures.open_loop_gains(frequencies)[:, k])
-    w_x0 = _pick(X, block.in_pos, 0) - _pick(X, block.in_neg, 0)
-    w_z = _pick(X, block.in_pos, 1) - _pick(X, block.in_neg, 1)
+    w_x0, w_z = _across(X, block.in_pos, block.in_neg).T
     with np.errstate(divide="ignore", invalid="ignore"):
         factor = delta * w_x0 / (1 + delta * w_z)
 
