@@ -10,6 +10,7 @@ import numpy as np
 from checker.analysis.topology import classify
 from checker.engine import rule
 from checker.findings import Suggestion
+from checker.limits import below, reaches
 from checker.model import Passive
 from checker.preferred import at_least, ladder
 from checker.units import format_si
@@ -70,7 +71,7 @@ def stable_gain(view):
         crossover = _crossover(figures, opamp.ref)
         if crossover is None:
             lowest = float(np.min(np.abs(loop.noise_gain)))
-            if lowest >= minimum:
+            if reaches(lowest, minimum):
                 continue
             why = (f"part {opamp.part.name} gives no GBW" if opamp.part.gbw_hz is None
                    else "its loop gain never falls through 1 on the analysis grid")
@@ -79,7 +80,7 @@ def stable_gain(view):
                                     " somewhere", opamp.origin, (opamp.ref,))
             continue
         noise_gain = _noise_gain_at(figures, opamp.ref, crossover)
-        if noise_gain >= minimum:
+        if reaches(noise_gain, minimum):
             continue
         topology = classify(stage, opamp)
         dc = loop.noise_gain_dc
@@ -171,12 +172,12 @@ def _suggest(view, opamp, topology, minimum: float) -> tuple[Suggestion, dict]:
     values = ladder(1.0, rf * 10, "E24")[::-1]  # largest first: the least added noise
     # The noise gain at crossover rises as Rs falls: bisect for the largest that passes.
     low, high = 0, len(values) - 1
-    if solved(values[high])[1] < minimum:
+    if below(solved(values[high])[1], minimum):
         return Suggestion(f"no series RC across the inputs brings the noise gain up to"
                           f" {minimum:.3g}: {unity}", element=opamp.ref), {}
     while low < high:
         middle = (low + high) // 2
-        if solved(values[middle])[1] >= minimum:
+        if reaches(solved(values[middle])[1], minimum):
             high = middle
         else:
             low = middle + 1
