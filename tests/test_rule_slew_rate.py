@@ -5,10 +5,11 @@ Expected values, derived independently:
 * a sine of peak V at frequency f needs a slew rate of 2 pi f V; the full-power
   bandwidth at a swing V is SR / (2 pi V) (any op-amp text, e.g. Sedra and Smith,
   Microelectronic Circuits, op-amp chapter);
-* REFERENCES.md worked values: SR 2 V/us at 12 V peak -> 26.5 kHz (NPTEL course
-  117107094, unit 7); GBW 1 MHz, SR 0.5 V/us, gain 10 -> bandwidth 100 kHz and largest
-  undistorted peak 0.796 V at that frequency (a Scilab textbook-companion collection,
-  chapter 9, example 4);
+* worked values of the same two relations: SR 2 V/us at 12 V peak -> SR/(2 pi V) =
+  26.5 kHz; GBW 1 MHz, SR 0.5 V/us, gain 10 -> bandwidth 100 kHz and largest
+  undistorted peak SR/(2 pi f) = 0.796 V at that frequency (Sedra and Smith,
+  Microelectronic Circuits, section on the large-signal operation of op-amps: slew
+  rate and full-power bandwidth);
 * the output peak at the band's top: the source's amplitude times |G(j 2 pi f)| of the
   closed loop A/(1 + A/NG), A(s) = A0/(1 + s/w1), from python-control ``evalfr``.
 """
@@ -62,7 +63,8 @@ def test_full_power_bandwidth_of_2_v_per_us_at_12_v_is_26_5_khz():
     # A 12 V peak to 30 kHz: 2 pi 30 kHz 12 V = 2.26 V/us, over the part's 2 V/us.
     text = follower(2e6, 12.0, 30e3)
     finding = only(text, RULE)
-    # REFERENCES.md (NPTEL 117107094, unit 7): 26.5 kHz.
+    # SR/(2 pi Vpeak) = 2e6/(2 pi 12) = 26.5 kHz (Sedra and Smith, Microelectronic
+    # Circuits, large-signal operation of op-amps: full-power bandwidth).
     assert finding.details["full_power_bandwidth_hz"] == pytest.approx(26.5e3, rel=0.002)
     assert finding.details["output_peak_v"] == pytest.approx(12.0, rel=1e-3)
 
