@@ -100,7 +100,7 @@ def setup_for(path: str, request: Request) -> FileSetup:
 def check_file(path: str, request: Request) -> FileResult:
     setup = setup_for(path, request)
     return review_file(path, setup.library, setup.rules, setup.options,
-                       request.figures_wanted)
+                       request.figures_wanted, setup.all_rules)
 
 
 def _worker(task: tuple[str, Request]) -> FileResult:

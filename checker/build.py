@@ -235,6 +235,8 @@ class _Builder:
         if node is None:
             return Requirements()
         values = {}
+        positions = tuple((keyword, self.origin(path + (keyword,))) for keyword in REQUIREMENTS
+                          if keyword in node)
         for keyword, kind in REQUIREMENTS.items():
             if keyword == "gain" and isinstance(node.get(keyword), (int, float)):
                 values["gain"] = float(node[keyword])
@@ -243,7 +245,7 @@ class _Builder:
                                 positive=keyword in ("input-resistance", "bandwidth", "cmrr"))
             if number is not None:
                 values[REQUIREMENT_ATTRIBUTES[keyword]] = number
-        return Requirements(origin=self.origin(path), **values)
+        return Requirements(origin=self.origin(path), positions=positions, **values)
 
     # -- references ------------------------------------------------------------------
     def check_references(self, stage: Stage, node: dict, path: Path) -> None:

@@ -278,7 +278,7 @@ def cmd_config(args) -> int:
 def cmd_rules(args) -> int:
     from rich.table import Table
 
-    from checker.engine import ENGINE_RULES
+    from checker.engine import ENGINE_RULES, ENGINE_SEVERITIES
     from checker.report.summary import console
 
     if args.markdown:
@@ -293,17 +293,18 @@ def cmd_rules(args) -> int:
     for rule in _rules(args.rules_dir).values():
         table.add_row(rule.id, rule.severity.label, rule.summary)
     for rid, summary in ENGINE_RULES.items():
-        table.add_row(rid, "error", summary + " (built into the engine)")
+        table.add_row(rid, ENGINE_SEVERITIES[rid].label, summary + " (built into the engine)")
     console().print(table)
     return EXIT_OK
 
 
 def cmd_explain(args) -> int:
-    from checker.engine import ENGINE_RULES
+    from checker.engine import ENGINE_RULES, ENGINE_SEVERITIES
 
     rules = _rules(args.rules_dir)
     if args.rule in ENGINE_RULES:
-        print(f"{args.rule} (error, built into the engine)\n\n{ENGINE_RULES[args.rule]}")
+        print(f"{args.rule} ({ENGINE_SEVERITIES[args.rule].label}, built into the engine)"
+              f"\n\n{ENGINE_RULES[args.rule]}")
         return EXIT_OK
     if args.rule not in rules:
         import difflib

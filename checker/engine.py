@@ -24,6 +24,8 @@ from checker.analysis import AnalysisOptions, Figures, analyse
 from checker.analysis.mna import SingularCircuit
 from checker.findings import Finding, Severity, Suggestion
 from checker.model import Origin, Stage
+from checker.records import Verdict
+from checker.requirements import judge_requirements
 
 # Enough points to bracket each loop crossover, which is then refined on a local grid:
 # for a copy of a stage that a rule reads only phase margins from.
@@ -38,7 +40,15 @@ ENGINE_RULES = {
     "waiver-invalid": "A waiver in a stage file gives no reason or names no known rule.",
     "waiver-stale": "A waiver in a stage file matched no finding; remove it.",
     "baseline-stale": "A baseline entry matched no finding; prune the baseline.",
+    "requirement-unmet": "A stated requirement is not met and no rule names the cause.",
+    "requirement-unchecked": "A stated requirement could not be checked (the reason is"
+                             " given).",
 }
+REQUIREMENT_UNMET, REQUIREMENT_UNCHECKED = "requirement-unmet", "requirement-unchecked"
+# The severity each engine finding is emitted with (the catalogue prints these).
+ENGINE_SEVERITIES = {rid: Severity.ERROR for rid in ENGINE_RULES} | {
+    "waiver-stale": Severity.INFO, "baseline-stale": Severity.INFO,
+    "requirement-unchecked": Severity.INFO}
 
 
 class RuleError(Exception):
@@ -154,6 +164,7 @@ class StageView:
     rule: Rule
     settings: dict[str, float]
     siblings: dict[str, Figures] = field(default_factory=dict)  # other stages of the file
+    verdicts: dict[str, Verdict] = field(default_factory=dict)  # by requirement keyword
 
     def reanalyse(self, stage: Stage, **options) -> Figures:
         """Figures of a modified copy of the stage (to verify a suggested fix), with the
@@ -175,6 +186,18 @@ class StageView:
                        elements=tuple(elements), measured=measured, limit=limit, unit=unit,
                        suggestion=suggestion, details=details)
 
+    def answers(self, *keywords: str) -> dict:
+        """Details that mark a finding as the explanation of the stage's requirements
+        ``keywords`` (pass them to :meth:`finding`); the engine keeps the claim only for
+        requirements whose verdict is not met."""
+        stated = tuple(k for k in keywords if k in self.verdicts)
+        return {"requirement": stated} if stated else {}
+
+    def unmet(self, keyword: str) -> bool:
+        """True when the stage states ``keyword`` and its verdict is not met."""
+        verdict = self.verdicts.get(keyword)
+        return verdict is not None and verdict.not_met
+
     def cannot_check(self, what: str, why: str, at: Origin | None = None,
                      elements=()) -> Finding:
         """An info finding: this rule could not check ``what`` because ``why``."""
@@ -190,6 +213,23 @@ class RunOptions:
     settings: dict[str, dict[str, float]] = field(default_factory=dict)
     severities: dict[str, Severity] = field(default_factory=dict)  # per-rule overrides
     known_rules: frozenset[str] = frozenset()  # every loaded rule id, for waiver checks
+    # Requirement verdicts: off only in the single-rule test harness, which judges rules
+    # alone; every real run judges every stated requirement.
+    judge_requirements: bool = True
+
+    def settings_of(self, rule_id: str, rules: dict[str, "Rule"] | None = None) -> dict:
+        """A rule's settings: its defaults (when known) with the configured ones on top."""
+        merged = dict(rules[rule_id].settings) if rules and rule_id in rules else {}
+        merged.update(self.settings.get(rule_id, {}))
+        return merged
+
+
+@dataclass
+class StageCheck:
+    """One stage checked: its findings (sorted) and its requirements' verdicts."""
+
+    findings: list[Finding]
+    verdicts: list[Verdict] = field(default_factory=list)
 
 
 def selected(rules: dict[str, Rule], options: RunOptions) -> list[Rule]:
@@ -200,18 +240,26 @@ def selected(rules: dict[str, Rule], options: RunOptions) -> list[Rule]:
 def check_stages(stages: list[Stage], rules: list[Rule], options: RunOptions
                  ) -> tuple[dict[str, Figures], dict[str, list[Finding]]]:
     """Figures and findings of every stage of one file (stages may look at siblings)."""
+    figures, checks = check_file_stages(stages, rules, options)
+    return figures, {name: check.findings for name, check in checks.items()}
+
+
+def check_file_stages(stages: list[Stage], rules: list[Rule], options: RunOptions,
+                      catalogue: dict[str, Rule] | None = None
+                      ) -> tuple[dict[str, Figures], dict[str, StageCheck]]:
+    """Figures, findings and verdicts of every stage of one file. ``catalogue`` holds
+    every loaded rule (for the defaults of settings the verdicts share with rules that
+    are not selected)."""
     figures = {stage.name: analyse(stage, options.analysis) for stage in stages}
-    findings: dict[str, list[Finding]] = {}
-    for stage in stages:
-        findings[stage.name] = check_stage(stage, figures[stage.name], rules, options, figures)
-    return figures, findings
+    catalogue = catalogue or {item.id: item for item in rules}
+    checks = {stage.name: check_stage(stage, figures[stage.name], rules, options, figures,
+                                      catalogue)
+              for stage in stages}
+    return figures, checks
 
 
-def check_stage(stage: Stage, figures: Figures, rules: list[Rule], options: RunOptions,
-                siblings: dict[str, Figures] | None = None) -> list[Finding]:
-    """Run each rule over one stage; a failing rule becomes a finding, never a crash."""
-    results: list[Finding] = []
-    ran = {item.id for item in rules}
+def _structural_findings(stage: Stage, figures: Figures) -> list[Finding]:
+    results = []
     for problem in figures.problems:
         if problem.kind == "output-on-rail":
             origin = stage.element(problem.elements[0]).origin
@@ -235,26 +283,107 @@ def check_stage(stage: Stage, figures: Figures, rules: list[Rule], options: RunO
                                    message=problem.message, path=origin.path, line=origin.line,
                                    column=origin.column, stage=stage.name,
                                    elements=problem.elements))
+    return results
+
+
+def _failure(stage: Stage, what: str, error: Exception) -> Finding:
+    return Finding(rule="rule-failed", severity=Severity.ERROR,
+                   message=f"{what} failed: {type(error).__name__}: {error}", path=stage.path,
+                   line=stage.origin.line, column=stage.origin.column, stage=stage.name)
+
+
+def check_stage(stage: Stage, figures: Figures, rules: list[Rule], options: RunOptions,
+                siblings: dict[str, Figures] | None = None,
+                catalogue: dict[str, Rule] | None = None) -> StageCheck:
+    """Judge the stage's requirements, run each rule, then answer every requirement that
+    is not met: by the findings of the rules that name its cause, else by a finding of
+    its own. A failing rule becomes a finding, never a crash."""
+    results = _structural_findings(stage, figures)
+    ran = {item.id for item in rules}
+    verdicts: list[Verdict] = []
+    if options.judge_requirements and stage.require.stated():
+        try:
+            verdicts = judge_requirements(
+                stage, figures, lambda rule_id: options.settings_of(rule_id, catalogue))
+        except Exception as error:  # a verdict's bug must not stop the run
+            results.append(_failure(stage, "judging the requirements", error))
+    by_keyword = {verdict.requirement: verdict for verdict in verdicts}
     for item in rules:
         settings = dict(item.settings)
         settings.update(options.settings.get(item.id, {}))
-        view = StageView(stage, figures, item, settings, siblings or {})
+        view = StageView(stage, figures, item, settings, siblings or {}, by_keyword)
         severity = options.severities.get(item.id)
         try:
             for finding in item.check(view) or ():
+                finding = _answering(finding, by_keyword)
                 if severity is not None and not finding.details.get("unchecked"):
                     finding = replace(finding, severity=severity)
                 results.append(finding)
         except SingularCircuit:
             continue  # already reported once as stage-unsolvable
         except Exception as error:  # a rule's bug must not stop the run
-            results.append(Finding(rule="rule-failed", severity=Severity.ERROR,
-                                   message=f"rule {item.id} failed: {type(error).__name__}:"
-                                           f" {error}", path=stage.path,
-                                   line=stage.origin.line, column=stage.origin.column,
-                                   stage=stage.name))
-    results = apply_waivers(stage, results, ran, options.known_rules | ran)
-    return sorted(results, key=Finding.sort_key)
+            results.append(_failure(stage, f"rule {item.id}", error))
+    verdicts, answered = _answer_verdicts(stage, verdicts, results, options)
+    results = apply_waivers(stage, results + answered, ran | {f.rule for f in answered},
+                            options.known_rules | ran)
+    return StageCheck(sorted(results, key=Finding.sort_key), verdicts)
+
+
+def claimed(finding: Finding) -> tuple[str, ...]:
+    """The requirement keywords a finding explains."""
+    value = finding.details.get("requirement")
+    if value is None:
+        return ()
+    return (value,) if isinstance(value, str) else tuple(value)
+
+
+def _answering(finding: Finding, verdicts: dict[str, Verdict]) -> Finding:
+    """A finding that answers a requirement which is not met is an error: a stated
+    requirement is the stage's contract. A finding keeps its claim only on requirements
+    whose verdict is not met."""
+    keywords = claimed(finding)
+    if not keywords:
+        return finding
+    kept = tuple(k for k in keywords if k in verdicts and verdicts[k].not_met)
+    details = {k: v for k, v in finding.details.items() if k != "requirement"}
+    if kept:
+        details["requirement"] = kept
+    finding = replace(finding, details=details)
+    if kept and finding.severity < Severity.ERROR:
+        finding = replace(finding, severity=Severity.ERROR)
+    return finding
+
+
+def _answer_verdicts(stage: Stage, verdicts: list[Verdict], findings: list[Finding],
+                     options: RunOptions) -> tuple[list[Verdict], list[Finding]]:
+    """Each verdict with the rules that explain it; a finding of its own for a verdict
+    not met that no rule explains, and a note for one that could not be checked."""
+    answered, extra = [], []
+    for verdict in verdicts:
+        explaining = tuple(sorted({f.rule for f in findings
+                                   if verdict.requirement in claimed(f)}))
+        verdict = replace(verdict, explained_by=explaining)
+        answered.append(verdict)
+        if verdict.not_met and not explaining:
+            rule_id, severity = REQUIREMENT_UNMET, Severity.ERROR
+            message = (f"requirement {verdict.requirement} {verdict.required} is not met:"
+                       f" {verdict.statement}; {verdict.reason}")
+        elif verdict.unchecked:
+            rule_id, severity = REQUIREMENT_UNCHECKED, Severity.INFO
+            message = (f"could not check requirement {verdict.requirement}"
+                       f" {verdict.required}: {verdict.reason}")
+        else:
+            continue
+        if (options.select is not None and rule_id not in options.select) \
+                or rule_id in options.ignore:
+            continue
+        extra.append(Finding(rule=rule_id, severity=severity, message=message,
+                             path=verdict.path, line=verdict.line, column=verdict.column,
+                             stage=stage.name, measured=verdict.measured, limit=verdict.limit,
+                             unit=verdict.unit,
+                             details={"requirement": (verdict.requirement,),
+                                      "unchecked": verdict.unchecked}))
+    return answered, extra
 
 
 def apply_waivers(stage: Stage, findings: list[Finding], ran: set[str],

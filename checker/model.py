@@ -177,6 +177,9 @@ class Load:
 
 @dataclass(frozen=True)
 class Requirements:
+    """What the stage must achieve; None where the file states nothing. ``positions``
+    gives where each stated keyword was written."""
+
     origin: Origin | None = None
     gain: float | None = None
     gain_tolerance: float | None = None
@@ -187,6 +190,16 @@ class Requirements:
     dc_error_v: float | None = None
     noise_v: float | None = None
     cmrr: float | None = None
+    positions: tuple[tuple[str, Origin], ...] = field(default=(), compare=False)
+
+    def stated(self) -> list[str]:
+        """The keywords this stage states, in the format's order."""
+        return [keyword for keyword, attribute in REQUIREMENT_ATTRIBUTES.items()
+                if getattr(self, attribute) is not None]
+
+    def origin_of(self, keyword: str) -> Origin | None:
+        """Where ``keyword`` was written (the require form where it is not known)."""
+        return dict(self.positions).get(keyword, self.origin)
 
 
 REQUIREMENT_ATTRIBUTES: dict[str, str] = {

@@ -11,11 +11,13 @@ import numpy as np
 from checker.analysis import Figures
 from checker.analysis.figures import signed_gain
 from checker.analysis.mna import SingularCircuit
+from checker.analysis.signal import stage_signals
 from checker.analysis.topology import classify
-from checker.engine import Rule, RunOptions, check_stages
+from checker.engine import Rule, RunOptions, check_file_stages
 from checker.files import load_file
 from checker.findings import Finding, Severity
 from checker.model import OpAmpPart, Stage
+from checker.records import Verdict
 
 
 @dataclass
@@ -28,6 +30,7 @@ class StageResult:
     findings: list[Finding]
     summary: dict = field(default_factory=dict)  # key figures, SI floats or None
     amplifiers: dict = field(default_factory=dict)  # per op-amp figures
+    verdicts: list[Verdict] = field(default_factory=list)  # one per stated requirement
 
 
 @dataclass
@@ -44,19 +47,23 @@ class FileResult:
 
 
 def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
-                options: RunOptions, figures_wanted: bool = True) -> FileResult:
+                options: RunOptions, figures_wanted: bool = True,
+                catalogue: dict[str, Rule] | None = None) -> FileResult:
     """Read, build, analyse and check one file; ``figures_wanted`` false skips the
-    per-stage summary figures (for reports that show findings only)."""
+    per-stage summary figures (for reports that show findings only). ``catalogue`` is
+    every loaded rule (the verdicts read the settings of rules that may not be
+    selected)."""
     loaded = load_file(path, library)
     result = FileResult(path, problems=loaded.problems)
     if not loaded.ok:
         return result
-    figures, findings = check_stages(loaded.stages, rules, options)
+    figures, checks = check_file_stages(loaded.stages, rules, options, catalogue)
     for stage in loaded.stages:
         stage_figures = figures[stage.name]
         summary, amplifiers = summarise(stage, stage_figures) if figures_wanted else ({}, {})
-        result.stages.append(StageResult(stage.name, stage.origin.line, findings[stage.name],
-                                         summary, amplifiers))
+        check = checks[stage.name]
+        result.stages.append(StageResult(stage.name, stage.origin.line, check.findings,
+                                         summary, amplifiers, check.verdicts))
     return result
 
 
@@ -67,11 +74,19 @@ def _finite(value) -> float | None:
     return value if math.isfinite(value) else None
 
 
+SUMMARY_KEYS = ("topology", "gain", "gain_from_net", "input_resistance", "output_resistance",
+                "bandwidth", "phase_margin", "crossover", "noise_gain", "feedback_pole",
+                "output_low", "output_high")
+
+
 def summarise(stage: Stage, figures: Figures) -> tuple[dict, dict]:
-    """The stage's key figures (for the report line and the JSON document)."""
-    summary = dict.fromkeys(("topology", "gain", "input_resistance", "output_resistance",
-                             "bandwidth", "phase_margin", "crossover", "noise_gain",
-                             "feedback_pole", "output_low", "output_high"))
+    """The stage's key figures (for the report line and the JSON document).
+
+    The gain and bandwidth are the signal's, from the source itself (for a
+    differential pair, Vout/(V1 - V2)); the gain from the source's net is kept where it
+    differs. No closed-loop figure (gain, bandwidth, phase margin, crossover, noise
+    gain) is given for a stage with an op-amp whose loop has no negative feedback."""
+    summary = dict.fromkeys(SUMMARY_KEYS)
     amplifiers: dict = {}
     try:
         loops = figures.loops
@@ -80,6 +95,7 @@ def summarise(stage: Stage, figures: Figures) -> tuple[dict, dict]:
     names = []
     for opamp in stage.opamps:
         loop = loops[opamp.ref]
+        closed = loop.negative_somewhere
         resistance, capacitance, pole = figures.inverting_input[opamp.ref]
         topology = classify(stage, opamp, loop.feedback)
         names.append(topology.name)
@@ -90,10 +106,10 @@ def summarise(stage: Stage, figures: Figures) -> tuple[dict, dict]:
             "topology": topology.name,
             "feedback": loop.feedback,
             "loop_gain_dc": _finite(loop.loop_gain_dc),
-            "phase_margin": _finite(loop.phase_margin_deg),
-            "crossover": _finite(loop.crossover_hz),
-            "gain_margin": _finite(loop.margins.gain_margin_db),
-            "noise_gain": _finite(loop.noise_gain_dc),
+            "phase_margin": _finite(loop.phase_margin_deg) if closed else None,
+            "crossover": _finite(loop.crossover_hz) if closed else None,
+            "gain_margin": _finite(loop.margins.gain_margin_db) if closed else None,
+            "noise_gain": _finite(loop.noise_gain_dc) if closed else None,
             "feedback_pole": _finite(pole),
             "inverting_input_resistance": _finite(resistance),
             "inverting_input_capacitance": _finite(capacitance),
@@ -105,20 +121,24 @@ def summarise(stage: Stage, figures: Figures) -> tuple[dict, dict]:
             "output_current_sunk": _finite(current.most_sunk_a),
         }
     summary["topology"] = names[0] if len(set(names)) == 1 else " + ".join(names)
+    open_loop = any(not loops[o.ref].negative_somewhere for o in stage.opamps)
     worst = figures.worst_phase_margin
-    if worst:
-        ref = worst[0]
-    else:
-        ref = stage.opamps[-1].ref
-    for key in ("phase_margin", "crossover", "noise_gain", "feedback_pole"):
-        summary[key] = amplifiers[ref][key]
+    ref = worst[0] if worst else stage.opamps[-1].ref
+    if not open_loop:
+        for key in ("phase_margin", "crossover", "noise_gain", "feedback_pole"):
+            summary[key] = amplifiers[ref][key]
     if figures.sources:
-        main = figures.sources[0]
-        summary["gain"] = _finite(signed_gain(main.gain_mid))
+        signal = stage_signals(figures)[0]
+        if not open_loop:
+            summary["gain"] = _finite(signed_gain(signal.gain))
+            if signal.gain_from_net is not None and \
+                    abs(signal.gain_from_net - signal.gain) > 1e-3 * abs(signal.gain):
+                summary["gain_from_net"] = _finite(signed_gain(signal.gain_from_net))
+            summary["bandwidth"] = _finite(signal.bandwidth_high_hz)
         voltage = [s.input_resistance_min for s in figures.sources if s.source.kind == "voltage"]
         summary["input_resistance"] = _finite(min(voltage)) if voltage else None
-        summary["bandwidth"] = _finite(main.bandwidth_high_hz)
-        at = int(np.argmin(np.abs(figures.frequencies_hz - main.reference_hz)))
+        reference = signal.reference_hz
+        at = int(np.argmin(np.abs(figures.frequencies_hz - reference)))
         summary["output_resistance"] = _finite(abs(figures.output_impedance[at]))
     output = figures.output_range  # what the output does: clipped where an op-amp drives it
     summary["output_low"] = _finite(output.clipped_low)

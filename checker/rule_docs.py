@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from checker.engine import DOC_SECTIONS, ENGINE_RULES, Rule
+from checker.engine import DOC_SECTIONS, ENGINE_RULES, ENGINE_SEVERITIES, Rule
 
 
 def rules_markdown(rules: dict[str, Rule]) -> str:
@@ -13,7 +13,7 @@ def rules_markdown(rules: dict[str, Rule]) -> str:
     for rule in rules.values():
         lines.append(f"| [`{rule.id}`](#{rule.id}) | {rule.severity.label} | {rule.summary} |")
     for rid, summary in ENGINE_RULES.items():
-        lines.append(f"| `{rid}` | error | {summary} (engine) |")
+        lines.append(f"| `{rid}` | {ENGINE_SEVERITIES[rid].label} | {summary} (engine) |")
     for rule in rules.values():
         lines += ["", f"## {rule.id}", "", f"*{rule.summary}* Default severity:"
                   f" **{rule.severity.label}**.", ""]

@@ -102,10 +102,11 @@ def best_factor(resistors, k_min: float, k_max: float, tolerance: float,
 
 
 def gain_kept(before, after, tolerance: float) -> bool:
-    """Every source's mid-band gain of ``after`` within ``tolerance`` of ``before``."""
+    """Every source's signal gain (from the source, at its reference) of ``after`` within
+    ``tolerance`` of ``before``."""
     for old, new in zip(before.sources, after.sources):
-        if old.gain_mid == 0:
+        if old.gain_from_source_mid == 0:
             continue
-        if abs(new.gain_mid / old.gain_mid - 1) > tolerance:
+        if abs(new.gain_from_source_mid / old.gain_from_source_mid - 1) > tolerance:
             return False
     return True

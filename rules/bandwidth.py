@@ -11,6 +11,7 @@ from checker.analysis.figures import grid_upper_edges
 from checker.analysis.updates import source_gain_candidates
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
+from checker.limits import below, within
 from checker.preferred import at_least, ladder, smallest_passing
 from checker.units import format_si
 
@@ -151,7 +152,10 @@ def _limiting_opamp(view):
 
 
 def _at(frequencies, values, frequency: float):
-    """values at the grid point nearest to ``frequency`` (band edges are on the grid)."""
+    """values at the grid point nearest to ``frequency`` on a log scale (band edges are on
+    the grid); the lowest point for 0 Hz, a DC reading."""
+    if frequency <= 0:
+        return values[0]
     return values[int(np.argmin(np.abs(np.log(frequencies / frequency))))]
 
 
@@ -215,7 +219,7 @@ def _check_source(view, sf, ideal):
         severity, reason = Severity.WARNING, f"the top of {source.name}'s band"
     measured = sf.bandwidth_high_hz if sf.bandwidth_high_hz is not None else math.inf
     opamp = _limiting_opamp(view)
-    if measured < required:
+    if below(measured, required):
         finding = _short_bandwidth(view, sf, ideal, opamp, measured, required, severity,
                                    reason)
         if finding is not None:
@@ -255,7 +259,8 @@ def _short_bandwidth(view, sf, ideal, opamp, measured, required, severity, reaso
                                 f" works against until the edge passes {format_si(required, 'Hz')}")
         return view.finding(message, opamp.origin, elements=(opamp.ref, source.name),
                             severity=severity, measured=measured, limit=required, unit="Hz",
-                            suggestion=suggestion, ideal_bandwidth_hz=ideal_bw)
+                            suggestion=suggestion, ideal_bandwidth_hz=ideal_bw,
+                            **view.answers("bandwidth"))
     gbw = opamp.part.gbw_hz
     noise_gain = _noise_gain(view, opamp, sf.reference_hz)
     estimate = required * noise_gain  # closed-loop bandwidth ~ GBW / noise gain
@@ -276,21 +281,26 @@ def _short_bandwidth(view, sf, ideal, opamp, measured, required, severity, reaso
     found = _smallest_gbw(view, opamp, estimate, passes,
                           _predictor(view, opamp, sf, frequencies, judge))
     most_noise_gain = gbw / required
+    if most_noise_gain < noise_gain:
+        lower = f"lower the noise gain to about {most_noise_gain:.3g} or less"
+    else:  # GBW / NG already reaches the band: the part's other poles limit it, not NG
+        lower = (f"the noise gain {noise_gain:.3g} is already within the {most_noise_gain:.3g}"
+                 f" a single pole would allow, so {opamp.ref}'s second pole or the"
+                 " capacitance at its inputs sets the edge")
     details = {"noise_gain": noise_gain, "ideal_bandwidth_hz": ideal_bw,
                "gbw_estimate_hz": estimate}
     if found is None:
         suggestion = Suggestion(
             f"no GBW up to {format_si(estimate * 1000, 'Hz')} reaches"
-            f" {format_si(required, 'Hz')} with {opamp.ref}'s other poles: lower the noise"
-            f" gain (at most about {most_noise_gain:.3g} on this part)")
+            f" {format_si(required, 'Hz')} with {opamp.ref}'s other poles: {lower}")
     else:
         chosen, result = found
         edge = result.sources[sf.index].bandwidth_high_hz
         text = (f"choose a part for {opamp.ref} with a GBW of at least"
                 f" {format_si(chosen, 'Hz')} (required bandwidth x noise gain ~"
                 f" {format_si(estimate, 'Hz')}; solved -3 dB edge with it"
-                f" {format_si(edge, 'Hz') if edge else 'beyond the grid'}), or lower the noise"
-                f" gain to about {most_noise_gain:.3g} or less")
+                f" {format_si(edge, 'Hz') if edge else 'beyond the grid'});"
+                f" {'or ' if most_noise_gain < noise_gain else ''}{lower}")
         if source.band_high_hz:
             flat = _gbw_for_gain_error(view, sf, ideal, opamp, noise_gain)
             if flat is not None:
@@ -301,7 +311,7 @@ def _short_bandwidth(view, sf, ideal, opamp, measured, required, severity, reaso
         suggestion = Suggestion(text, value=chosen, unit="Hz", element=opamp.ref)
     return view.finding(message, opamp.origin, elements=(opamp.ref, source.name),
                         severity=severity, measured=measured, limit=required, unit="Hz",
-                        suggestion=suggestion, **details)
+                        suggestion=suggestion, **details, **view.answers("bandwidth"))
 
 
 def _gain_error_limit(view) -> tuple[float, str]:

@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import replace
 
+from checker.analysis.dc_error import DcErrorTerms, dc_error_terms
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
+from checker.limits import within
 from checker.model import Passive
 from checker.preferred import nearest, series_for_tolerance
 from checker.units import format_si
@@ -67,16 +69,14 @@ def dc_error(view):
     if any({o.in_pos, o.in_neg} & floating for o in stage.opamps):
         return  # an input with no DC path: its error is unbounded (other rules say so)
     net = stage.output_net
-    terms = []
-    for opamp in stage.opamps:
-        part = opamp.part
-        missing = part.missing("offset_voltage_v", "bias_current_a", "offset_current_a")
-        if missing:
-            names = ", ".join(_PARAMETER_NAMES[m] for m in missing)
-            yield view.cannot_check(f"the DC error from {opamp.ref}",
-                                    f"part {part.name} gives no {names}; the error counts"
-                                    " the other terms only", opamp.origin, (opamp.ref,))
-        terms.append(_terms(figures, net, opamp))
+    terms = dc_error_terms(figures, net)
+    for item in terms:
+        if item.missing:
+            part = item.opamp.part
+            yield view.cannot_check(f"the DC error from {item.opamp.ref}",
+                                    f"part {part.name} gives no {', '.join(item.missing)};"
+                                    " the error counts the other terms only",
+                                    item.opamp.origin, (item.opamp.ref,))
     total = sum(t.total for t in terms)
     required = stage.require.dc_error_v
     if required is not None:
@@ -87,79 +87,34 @@ def dc_error(view):
         severity = Severity.INFO
         against = (f"{settings['swing_fraction'] * 100:g} % of the"
                    f" {format_si(high - low, 'V')} usable swing,")
-    if total <= limit:
+    if within(total, limit):
         return
     worst = max(terms, key=lambda t: t.total)
-    parts = "; ".join(t.describe() for t in terms if t.total > 0)
+    parts = "; ".join(_describe(t) for t in terms if t.total > 0)
     message = (f"the output's worst-case DC error is ±{format_si(total, 'V')}, beyond"
                f" {against} {format_si(limit, 'V')} ({parts})")
     yield view.finding(message, worst.opamp.origin,
                        elements=tuple(t.opamp.ref for t in terms if t.total > 0),
                        severity=severity, measured=total, limit=limit, unit="V",
                        suggestion=_suggest(view, worst, total, limit),
-                       **{f"{t.opamp.ref}_{k}": v for t in terms for k, v in t.details().items()})
+                       **{f"{t.opamp.ref}_{k}": v for t in terms for k, v in _details(t).items()},
+                       **view.answers("dc-error"))
 
 
-_PARAMETER_NAMES = {"offset_voltage_v": "offset voltage", "bias_current_a": "bias current",
-                    "offset_current_a": "offset current"}
+def _describe(terms: DcErrorTerms) -> str:
+    return (f"{terms.opamp.ref}: offset voltage {format_si(terms.offset_voltage, 'V')} ×"
+            f" noise gain {terms.noise_gain:.3g} = {format_si(terms.vos_term, 'V')},"
+            f" bias and offset currents {format_si(terms.current_terms, 'V')}")
 
 
-@dataclass(frozen=True)
-class _Terms:
-    """One op-amp's contribution to the DC error at the output net."""
-
-    opamp: object
-    noise_gain: float  # |T(vos)|: output volts per volt of offset
-    plus: float  # T(ib+): output volts per ampere drawn out of in+
-    minus: float  # T(ib-)
-    offset_voltage: float
-    bias: float
-    offset_current: float
-
-    @property
-    def vos_term(self) -> float:
-        return abs(self.offset_voltage * self.noise_gain)
-
-    @property
-    def bias_term(self) -> float:
-        return abs(self.bias * (self.plus + self.minus))
-
-    @property
-    def offset_current_term(self) -> float:
-        return abs(self.offset_current / 2 * (self.plus - self.minus))
-
-    @property
-    def current_terms(self) -> float:
-        return self.bias_term + self.offset_current_term
-
-    @property
-    def total(self) -> float:
-        return self.vos_term + self.current_terms
-
-    def describe(self) -> str:
-        return (f"{self.opamp.ref}: offset voltage {format_si(self.offset_voltage, 'V')} ×"
-                f" noise gain {self.noise_gain:.3g} = {format_si(self.vos_term, 'V')},"
-                f" bias and offset currents {format_si(self.current_terms, 'V')}")
-
-    def details(self) -> dict:
-        return {"noise_gain": self.noise_gain, "offset_voltage_term_v": self.vos_term,
-                "bias_current_term_v": self.bias_term,
-                "offset_current_term_v": self.offset_current_term}
-
-
-def _terms(figures, net: str, opamp) -> _Terms:
-    part = opamp.part
-    return _Terms(opamp=opamp,
-                  noise_gain=abs(figures.dc_transfer(net, ("vos", opamp.ref))),
-                  plus=figures.dc_transfer(net, ("ib+", opamp.ref)),
-                  minus=figures.dc_transfer(net, ("ib-", opamp.ref)),
-                  offset_voltage=part.offset_voltage_v or 0.0,
-                  bias=part.bias_current_a or 0.0,
-                  offset_current=part.offset_current_a or 0.0)
+def _details(terms: DcErrorTerms) -> dict:
+    return {"noise_gain": terms.noise_gain, "offset_voltage_term_v": terms.vos_term,
+            "bias_current_term_v": terms.bias_term,
+            "offset_current_term_v": terms.offset_current_term}
 
 
 def _total(figures, stage) -> float:
-    return sum(_terms(figures, stage.output_net, o).total for o in stage.opamps)
+    return sum(t.total for t in dc_error_terms(figures, stage.output_net))
 
 
 def _usable_swing(stage, figures) -> tuple[float, float]:
@@ -169,7 +124,7 @@ def _usable_swing(stage, figures) -> tuple[float, float]:
     return node.clip_low, node.clip_high
 
 
-def _suggest(view, worst: _Terms, total: float, limit: float) -> Suggestion:
+def _suggest(view, worst: DcErrorTerms, total: float, limit: float) -> Suggestion:
     settings = view.settings
     opamp, part = worst.opamp, worst.opamp.part
     others = total - worst.total
@@ -191,7 +146,7 @@ def _suggest(view, worst: _Terms, total: float, limit: float) -> Suggestion:
     return _balance(view, worst, total, limit)
 
 
-def _better_offset(view, worst: _Terms, others: float, limit: float, why: str) -> Suggestion:
+def _better_offset(view, worst: DcErrorTerms, others: float, limit: float, why: str) -> Suggestion:
     room = limit - others - worst.current_terms
     if room <= 0 or worst.noise_gain == 0:
         return Suggestion(f"{why}; lower the noise gain or the resistances, or choose a part"
@@ -203,7 +158,7 @@ def _better_offset(view, worst: _Terms, others: float, limit: float, why: str) -
                       value=needed, unit="V", element=worst.opamp.ref)
 
 
-def _balance(view, worst: _Terms, total: float, limit: float) -> Suggestion:
+def _balance(view, worst: DcErrorTerms, total: float, limit: float) -> Suggestion:
     stage = view.stage
     opamp = worst.opamp
     # With a resistance R+ at in+, T(ib+) = -R+ * NG; T(ib-) = R- * NG (Rf in a plain

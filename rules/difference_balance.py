@@ -4,12 +4,13 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
-
-from checker.analysis.tolerance import corner_values, transfer_samples, uniform_values
+from checker.analysis.signal import stage_signals
+from checker.analysis.spread import SpreadOptions
 from checker.analysis.topology import classify
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
+from checker.limits import reaches
+from checker.requirements import differential_pair, rejection_spread
 from checker.units import format_si
 
 MATCH_STEPS = (0.001, 0.0025, 0.005, 0.01, 0.02, 0.05)  # stock resistor tolerances
@@ -33,9 +34,11 @@ def difference_balance(view):
         Carlo run (`samples` boards, uniform, seeded with `seed`) estimates the share
         of boards that do. Resistors without a tolerance count at `default_tolerance`.
         With more than `max_corner_resistors` resistors that matter, the Monte Carlo
-        extremes stand in for the corners. The transfers are read at 0 Hz unless a
-        source's band starts above it (then at mid-band); the sources' own impedances
-        are part of the transfers, so an unbalanced source shows too.
+        extremes stand in for the corners. The transfers are read where the first
+        source's figures are (0 Hz for a source with no band or a band from 0 Hz, else
+        its band centre), the same spread the `cmrr` requirement's verdict reads; the
+        sources' own impedances are part of the transfers, so an unbalanced source
+        shows too. The op-amp named is the difference stage that delivers the output.
 
     Why it matters:
         A difference stage rejects what both inputs share (ground noise, a bridge's
@@ -58,24 +61,25 @@ def difference_balance(view):
         34 dB). Corner enumeration and the uniform tolerance band: common practice.
     """
     stage, figures, settings = view.stage, view.figures, view.settings
-    amp = next((o for o in stage.opamps
-                if figures.loops[o.ref].feedback == "negative"
-                and classify(stage, o, "negative").name == "difference"), None)
-    if amp is None:
+    differences = [o for o in stage.opamps if figures.loops[o.ref].feedback == "negative"
+                   and classify(stage, o, "negative").name == "difference"]
+    if not differences:
         return
-    sources = [i for i, s in enumerate(stage.sources) if s.kind == "voltage"]
-    if len(sources) != 2:
+    # The difference stage is the one that delivers the output (an instrumentation
+    # amplifier's input op-amps read as differences too), else the last of them.
+    amp = next((o for o in differences if o.out == stage.output_net), differences[-1])
+    pair = differential_pair(stage_signals(figures))
+    if pair is None:
+        voltage = sum(1 for s in stage.sources if s.kind == "voltage")
         yield view.cannot_check(f"the common-mode rejection of {amp.ref}",
-                                f"the stage has {len(sources)} voltage sources, not the two"
-                                " a difference stage's rejection is measured between",
-                                amp.origin, (amp.ref,))
+                                f"the stage has {voltage} voltage sources, not a pair whose"
+                                " transfers have opposite signs, that its rejection is"
+                                " measured between", amp.origin, (amp.ref,))
         return
-    frequency = 0.0
-    if any(stage.sources[i].band_low_hz for i in sources):
-        frequency = figures.sources[sources[0]].reference_hz
-    tolerances, assumed = _tolerances(stage, settings["default_tolerance"])
-    solver = _Rejection(figures, sources, stage.output_net, frequency)
-    refs = solver.sensitive([p.ref for p in stage.resistors()], tolerances)
+    options = SpreadOptions(default_tolerance=settings["default_tolerance"],
+                            max_corner_resistors=int(settings["max_corner_resistors"]),
+                            samples=int(settings["samples"]), seed=int(settings["seed"]))
+    solver, refs, tolerances, assumed, worst = rejection_spread(figures, pair, options)
     required = stage.require.cmrr
     if required is not None:
         limit, severity, against = required, Severity.ERROR, "the required"
@@ -83,11 +87,9 @@ def difference_balance(view):
         limit, severity = 10 ** (settings["min_cmrr_db"] / 20), Severity.WARNING
         against = "the default minimum"
     limit_db = _db(limit)
-    worst = _worst(solver, refs, tolerances, settings)
-    if worst.cmrr >= limit * (1 - 1e-9):
+    if reaches(worst.cmrr, limit):
         return
-    assumed = [r for r in assumed if r in refs]
-    share = _share(solver, refs, tolerances, limit, settings)
+    share = solver.share_rejecting(refs, tolerances, limit, options)
     listed = ", ".join(f"{r} {format_si(tolerances[r], '%')}" for r in refs)
     how = ("at the worst corner" if worst.exact else
            f"at the worst of {int(settings['samples'])} Monte Carlo boards")
@@ -107,87 +109,27 @@ def difference_balance(view):
     yield view.finding(message, amp.origin, elements=(amp.ref,) + tuple(refs),
                        severity=severity, measured=_db(worst.cmrr), limit=limit_db,
                        unit="dB", suggestion=_suggest(solver, refs, tolerances, limit,
-                                                      settings),
+                                                      options),
                        cmrr_ratio=worst.cmrr, share_within=share,
-                       exact_corners=worst.exact, assumed_tolerance=list(assumed))
+                       exact_corners=worst.exact, assumed_tolerance=list(assumed),
+                       **view.answers("cmrr"))
 
 
-class _Rejection:
-    """Transfers from the two sources to the output for sets of resistor values."""
-
-    def __init__(self, figures, sources: list[int], out: str, frequency: float):
-        self.figures, self.sources, self.out, self.frequency = figures, sources, out, frequency
-        self.nominal_values = {p.ref: p.value for p in figures.stage.resistors()}
-        h = self.transfers({})
-        self.nominal_cmrr = float(_cmrr(h)[0])
-
-    def transfers(self, values: dict[str, np.ndarray]) -> np.ndarray:
-        """(S, 2): the output per unit EMF of each source."""
-        return transfer_samples(self.figures, values, self.sources, [self.out],
-                                self.frequency)[:, :, 0]
-
-    def sensitive(self, refs: list[str], tolerances: dict[str, float]) -> list[str]:
-        if not refs:
-            return []
-        values = {r: np.full(len(refs) + 1, self.nominal_values[r]) for r in refs}
-        for k, r in enumerate(refs):
-            values[r][k] *= 1 + tolerances[r]
-        h = self.transfers(values)
-        moved = np.max(np.abs(h[:-1] - h[-1]), axis=1)
-        scale = max(float(np.max(np.abs(h[-1]))), 1e-30)
-        return [r for r, m in zip(refs, moved) if m > 1e-6 * scale]
-
-
-def _cmrr(h: np.ndarray) -> np.ndarray:
-    """|Ad/Acm| per sample, with Ad = (H2 - H1)/2 and Acm = H1 + H2 (inf where Acm = 0)."""
-    differential = np.abs(h[:, 1] - h[:, 0]) / 2
-    common = np.abs(h[:, 0] + h[:, 1])
-    with np.errstate(divide="ignore"):
-        return np.where(common > 1e-15 * differential, differential / common, np.inf)
-
-
-class _Worst:
-    def __init__(self, cmrr: float, differential: float, common: float, exact: bool):
-        self.cmrr, self.differential, self.common, self.exact = cmrr, differential, common, exact
-
-
-def _worst(solver: _Rejection, refs, tolerances, settings) -> _Worst:
-    if not refs:
-        h = solver.transfers({})
-        exact = True
-    elif len(refs) <= settings["max_corner_resistors"]:
-        h = solver.transfers(corner_values(refs, solver.nominal_values, tolerances))
-        exact = True
-    else:
-        h = solver.transfers(uniform_values(refs, solver.nominal_values, tolerances,
-                                            int(settings["samples"]), int(settings["seed"])))
-        exact = False
-    cmrr = _cmrr(h)
-    at = int(np.argmin(cmrr))
-    return _Worst(float(cmrr[at]), float(abs(h[at, 1] - h[at, 0]) / 2),
-                  float(abs(h[at, 0] + h[at, 1])), exact)
-
-
-def _share(solver, refs, tolerances, limit, settings) -> float:
-    if not refs:
-        return float(solver.nominal_cmrr >= limit)
-    values = uniform_values(refs, solver.nominal_values, tolerances, int(settings["samples"]),
-                            int(settings["seed"]))
-    return float(np.mean(_cmrr(solver.transfers(values)) >= limit))
-
-
-def _suggest(solver, refs, tolerances, limit, settings) -> Suggestion:
+def _suggest(solver, refs, tolerances, limit, options) -> Suggestion:
     if refs:
         loosest = max(tolerances[r] for r in refs)
         for step in reversed(MATCH_STEPS):
             if step >= loosest * (1 - 1e-9):
                 continue
             tighter = {r: min(tolerances[r], step) for r in refs}
-            worst = _worst(solver, refs, tighter, settings)
-            if worst.cmrr >= limit * (1 - 1e-9):
+            worst = solver.worst_rejection(refs, tighter, options)
+            if reaches(worst.cmrr, limit):
+                changed = [r for r in refs if tolerances[r] > step * (1 + 1e-9)]
+                kept = [r for r in refs if r not in changed]
+                also = f" ({', '.join(kept)} already at or below it)" if kept else ""
                 return Suggestion(
-                    f"use matched {format_si(step, '%')} resistors for {', '.join(refs)}:"
-                    f" the solved worst corner then rejects {_db(worst.cmrr):.1f} dB"
+                    f"use matched {format_si(step, '%')} resistors for {', '.join(changed)}"
+                    f"{also}: the solved worst corner then rejects {_db(worst.cmrr):.1f} dB"
                     f" ({worst.cmrr:.3g}), reaching {_db(limit):.1f} dB",
                     value=step, unit="%")
     nominal = ("infinite" if math.isinf(solver.nominal_cmrr)
@@ -196,15 +138,6 @@ def _suggest(solver, refs, tolerances, limit, settings) -> Suggestion:
                       f" {nominal}): make the two resistor ratios equal, including the"
                       " sources' impedances, and use a matched resistor network or an"
                       " instrumentation amplifier")
-
-
-def _tolerances(stage, default: float) -> tuple[dict[str, float], list[str]]:
-    tolerances, assumed = {}, []
-    for p in stage.resistors():
-        tolerances[p.ref] = p.tolerance or default
-        if not p.tolerance:
-            assumed.append(p.ref)
-    return tolerances, assumed
 
 
 def _db(ratio: float) -> float:

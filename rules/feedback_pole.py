@@ -2,10 +2,15 @@
 
 from __future__ import annotations
 
+import math
+from dataclasses import replace
+
+from checker.analysis.mna import SingularCircuit
 from checker.analysis.topology import classify
 from checker.analysis.updates import margins_with_admittances
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
+from checker.limits import below, reaches
 from checker.preferred import at_least, ladder, smallest_passing
 from checker.units import format_si
 from checker.variants import inverting_input_capacitance_removed, with_capacitor
@@ -67,7 +72,7 @@ def feedback_pole(view):
             continue
         margin = loop.phase_margin_deg
         warn = _warn_limit(stage, settings)
-        if margin is None or margin >= warn:
+        if margin is None or reaches(margin, warn):
             if unknown_cin:  # the part's own capacitance could still cost the margin
                 yield _no_input_capacitance(view, opamp)
             continue
@@ -77,7 +82,7 @@ def feedback_pole(view):
         bare_margin = margins_with_admittances(
             view.figures, opamp.ref, lambda f, ref=opamp.ref: inverting_input_capacitance_removed(
                 stage, ref, stray, f)).phase_margin_deg
-        if bare_margin is not None and bare_margin < warn:
+        if bare_margin is not None and below(bare_margin, warn):
             continue  # something else costs the margin (load, compensation): other rules
         yield _finding(view, opamp, margin, bare_margin, warn)
 
@@ -101,7 +106,7 @@ def _finding(view, opamp, margin, bare_margin, warn):
     topology = classify(stage, opamp)
     feedback_resistors = [stage.element(ref) for ref in topology.feedback_elements
                           if stage.element(ref).kind == "resistor"]
-    severity = Severity.ERROR if margin < settings["error_below_deg"] else Severity.WARNING
+    severity = Severity.ERROR if below(margin, settings["error_below_deg"]) else Severity.WARNING
     where = feedback_resistors[0] if feedback_resistors else opamp
     elements = (opamp.ref,) + tuple(r.ref for r in feedback_resistors)
     message = (f"{opamp.ref} ({topology.name}) has {margin:.1f}° phase margin: the"
@@ -113,7 +118,7 @@ def _finding(view, opamp, margin, bare_margin, warn):
     return view.finding(message, where.origin, elements=elements, severity=severity,
                         measured=margin, limit=warn, unit="°",
                         suggestion=suggestion, feedback_pole_hz=pole_hz,
-                        topology=topology.name)
+                        topology=topology.name, **view.answers("phase-margin"))
 
 
 def _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn):
@@ -135,7 +140,7 @@ def _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn):
 
     needed_band = stage.require.bandwidth_hz or max(
         (s.band_high_hz or 0.0 for s in stage.sources), default=0.0)
-    rg = None if resistance >= rf * (1 - 1e-9) else 1 / (1 / resistance - 1 / rf)
+    rg = _ground_resistance(view, opamp, feedback_resistors)
     if rg is not None:
         neutral = rg * capacitance / rf
         chosen = at_least(max(neutral, existing * 1.0001) if existing else neutral, "E12")
@@ -162,6 +167,21 @@ def _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn):
         f" the smallest E12 value whose solved phase margin reaches {target:.0f}°"
         f" ({margin:.0f}°; bandwidth then {format_si(bandwidth, 'Hz')})",
         value=best, unit="F", element=ref)
+
+
+def _ground_resistance(view, opamp, feedback_resistors) -> float | None:
+    """Rg of the neutralising formula: the DC resistance from the inverting input to AC
+    ground with the feedback resistors taken out (the other op-amps active), so neither
+    Rf nor the op-amp's own output resistance hides in it; None where nothing else
+    conducts (a follower, a transimpedance stage without a shunt)."""
+    stage = view.stage
+    removed = {r.ref for r in feedback_resistors}
+    copy = replace(stage, passives=tuple(p for p in stage.passives if p.ref not in removed))
+    try:
+        rg = view.reanalyse(copy).resistance_at(opamp.ref, opamp.in_neg)
+    except (SingularCircuit, ValueError):
+        return None
+    return rg if math.isfinite(rg) and rg > 0 else None
 
 
 def _placing(stage, opamp, farads: float, ref: str) -> str:

@@ -2,13 +2,12 @@
 
 from __future__ import annotations
 
-import math
-
-import numpy as np
-
-from checker.analysis.tolerance import corner_values, transfer_samples, uniform_values
+from checker.analysis.signal import stage_signals
+from checker.analysis.spread import SpreadOptions
 from checker.engine import rule
 from checker.findings import Suggestion
+from checker.limits import within
+from checker.requirements import gain_spread
 from checker.units import format_si
 
 TOLERANCE_STEPS = (0.001, 0.0025, 0.005, 0.01, 0.02, 0.05)  # stock resistor tolerances
@@ -20,14 +19,16 @@ TOLERANCE_STEPS = (0.001, 0.0025, 0.005, 0.01, 0.02, 0.05)  # stock resistor tol
 def gain_tolerance(view):
     """
     What it checks:
-        In a stage that states both `gain` and `gain-tolerance`, the gain from the
-        first voltage source's net to the output, V(out)/V(source net), for every
-        combination of each resistor at the low and the high end of its tolerance
-        (corner enumeration, each set solved by the analysis core). Resistors whose
-        change does not move the gain are left out first. The worst corner must stay
-        within the required band (|G/G_required - 1| <= gain-tolerance). The gain is
-        read at 0 Hz when the source's band starts at 0 Hz, else at its mid-band (as
-        a magnitude with the sign of its real part). A Monte Carlo run (`samples`
+        In a stage that states both `gain` and `gain-tolerance`, the signal's gain
+        from the source itself (its EMF, behind its impedance) to the output, or a
+        differential pair's Vout/(V1 - V2), for every combination of each resistor at
+        the low and the high end of its tolerance (corner enumeration, each set
+        solved by the analysis core). Resistors whose change does not move the gain
+        are left out first. The worst corner must stay within the required band
+        (|G/G_required - 1| <= gain-tolerance); it reads the same spread as the
+        requirement's verdict. The gain is read at 0 Hz for a source with no band or
+        a band from 0 Hz, else at its mid-band (as a magnitude with the sign of its
+        real part). A Monte Carlo run (`samples`
         boards, each resistor uniform within its tolerance, seeded with `seed`)
         estimates the share of boards inside the band. A resistor without a
         tolerance is taken at `default_tolerance` and the message says so. With more
@@ -54,137 +55,73 @@ def gain_tolerance(view):
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     required, band = stage.require.gain, stage.require.gain_tolerance
-    if required is None or band is None:
-        return
-    index = next((i for i, s in enumerate(stage.sources) if s.kind == "voltage"), None)
-    if index is None:
+    if required is None or band is None or required == 0:
+        return  # the requirement's verdict says why it cannot be checked
+    signals = [s for s in stage_signals(figures) if s.unit == "V/V"]
+    if not signals:
         yield view.cannot_check("the gain tolerance", "the stage has no voltage source to"
-                                " take the gain from", stage.require.origin)
+                                " take a voltage gain from", stage.require.origin)
         return
-    source = stage.sources[index]
-    frequency = 0.0 if not source.band_low_hz else figures.sources[index].reference_hz
-    tolerances, assumed = _tolerances(stage, settings["default_tolerance"])
-    gain = _GainSolver(figures, index, source.net, stage.output_net, frequency)
-    refs = gain.sensitive([p.ref for p in stage.resistors()], tolerances)
-    if not refs:
+    options = _options(settings)
+    spreads = [gain_spread(figures, signal, options, required) for signal in signals]
+    spread = max(spreads, key=lambda item: item.worst.error)
+    worst, refs, tolerances = spread.worst, spread.refs, spread.tolerances
+    if not refs or within(worst.error, band):
         return
-    worst = _worst(gain, refs, tolerances, required, settings)
-    if worst.error <= band * (1 + 1e-9):
-        return
-    assumed = [r for r in assumed if r in refs]
-    share = _share_within(gain, refs, tolerances, required, band, settings)
-    origin = max(refs, key=lambda r: gain.sensitivity[r])
+    share = spread.solver.share_within(refs, tolerances, required, band, options)
+    origin = max(refs, key=lambda r: spread.solver.sensitivity[r])
     listed = ", ".join(f"{r} {_percent(tolerances[r])}" for r in refs)
     corner = ", ".join(f"{r} {'+' if s > 0 else '-'}{_percent(tolerances[r])}"
                        for r, s in zip(refs, worst.signs))
     how = "at the worst corner" if worst.exact else \
         f"at the extremes of {int(settings['samples'])} Monte Carlo boards"
-    message = (f"the gain is {gain.nominal:.4g} nominal, but over the resistors' tolerances"
-               f" ({listed}) it reaches {worst.gain:.4g} {how}"
+    message = (f"the gain from {spread.signal.label} is {spread.nominal:.4g} nominal, but over"
+               f" the resistors' tolerances ({listed}) it reaches {worst.gain:.4g} {how}"
                + (f" ({corner})" if worst.exact else "") +
                f", {_percent(worst.error)} from the required {required:.4g}, beyond"
                f" ±{_percent(band)}; {_share_text(share, int(settings['samples']))}")
-    if assumed:
-        message += (f"; {', '.join(assumed)} {'has' if len(assumed) == 1 else 'have'} no"
+    if spread.assumed:
+        message += (f"; {', '.join(spread.assumed)}"
+                    f" {'has' if len(spread.assumed) == 1 else 'have'} no"
                     f" tolerance, {_percent(settings['default_tolerance'])} assumed"
                     " (common practice)")
     yield view.finding(message, stage.element(origin).origin, elements=tuple(refs),
                        measured=worst.error, limit=band, unit="%",
-                       suggestion=_suggest(gain, refs, tolerances, required, band, settings),
-                       nominal_gain=gain.nominal, worst_gain=worst.gain,
+                       suggestion=_suggest(spread, required, band, options),
+                       nominal_gain=spread.nominal, worst_gain=worst.gain,
                        share_within=share, exact_corners=worst.exact,
-                       assumed_tolerance=list(assumed))
+                       assumed_tolerance=list(spread.assumed),
+                       **view.answers("gain-tolerance"))
 
 
-class _GainSolver:
-    """V(out)/V(source net) for sets of resistor values, through the analysis core."""
-
-    def __init__(self, figures, index: int, net: str, out: str, frequency: float):
-        self.figures, self.index, self.net, self.out = figures, index, net, out
-        self.frequency = frequency
-        self.nominal_values = {p.ref: p.value for p in figures.stage.resistors()}
-        self.nominal = float(self.gains({})[0])
-        self.sensitivity: dict[str, float] = {}
-
-    def gains(self, values: dict[str, np.ndarray]) -> np.ndarray:
-        """The signed gain of every sample: (S,) real."""
-        h = transfer_samples(self.figures, values, [self.index], [self.out, self.net],
-                             self.frequency)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            g = h[:, 0, 0] / h[:, 0, 1]
-        if np.iscomplexobj(g):
-            g = np.where(g.real < 0, -1.0, 1.0) * np.abs(g)
-        return np.asarray(g, dtype=float)
-
-    def sensitive(self, refs: list[str], tolerances: dict[str, float]) -> list[str]:
-        """Those of ``refs`` whose move to the top of their tolerance moves the gain."""
-        if not refs:
-            return []
-        values = {r: np.full(len(refs), self.nominal_values[r]) for r in refs}
-        for k, r in enumerate(refs):
-            values[r][k] *= 1 + tolerances[r]
-        moved = np.abs(self.gains(values) - self.nominal)
-        self.sensitivity = dict(zip(refs, moved))
-        scale = max(abs(self.nominal), 1e-30)
-        return [r for r, m in zip(refs, moved) if m > 1e-6 * scale]
+def _options(settings) -> SpreadOptions:
+    return SpreadOptions(default_tolerance=settings["default_tolerance"],
+                         max_corner_resistors=int(settings["max_corner_resistors"]),
+                         samples=int(settings["samples"]), seed=int(settings["seed"]))
 
 
-class _Worst:
-    def __init__(self, error: float, gain: float, signs: tuple[float, ...], exact: bool):
-        self.error, self.gain, self.signs, self.exact = error, gain, signs, exact
-
-
-def _worst(gain: _GainSolver, refs, tolerances, required: float, settings) -> _Worst:
-    if len(refs) <= settings["max_corner_resistors"]:
-        values = corner_values(refs, gain.nominal_values, tolerances)
-        exact = True
-    else:
-        values = uniform_values(refs, gain.nominal_values, tolerances,
-                                int(settings["samples"]), int(settings["seed"]))
-        exact = False
-    gains = gain.gains(values)
-    errors = np.abs(gains / required - 1)
-    at = int(np.argmax(errors))
-    signs = tuple(math.copysign(1.0, values[r][at] - gain.nominal_values[r]) for r in refs)
-    return _Worst(float(errors[at]), float(gains[at]), signs, exact)
-
-
-def _share_within(gain, refs, tolerances, required, band, settings) -> float:
-    values = uniform_values(refs, gain.nominal_values, tolerances, int(settings["samples"]),
-                            int(settings["seed"]))
-    errors = np.abs(gain.gains(values) / required - 1)
-    return float(np.mean(errors <= band))
-
-
-def _suggest(gain, refs, tolerances, required, band, settings) -> Suggestion:
+def _suggest(spread, required, band, options) -> Suggestion:
+    refs, tolerances = spread.refs, spread.tolerances
     loosest = max(tolerances[r] for r in refs)
     for step in reversed(TOLERANCE_STEPS):
         if step >= loosest * (1 - 1e-9):
             continue
         tighter = {r: min(tolerances[r], step) for r in refs}
-        worst = _worst(gain, refs, tighter, required, settings)
-        if worst.error <= band * (1 + 1e-9):
+        worst = spread.solver.worst_gain(refs, tighter, required, options)
+        if within(worst.error, band):
+            changed = [r for r in refs if tolerances[r] > step * (1 + 1e-9)]
+            kept = [r for r in refs if r not in changed]
+            also = f" ({', '.join(kept)} already at or below it)" if kept else ""
             return Suggestion(
-                f"use {_percent(step)} resistors for {', '.join(refs)}: the solved worst"
-                f" case is then {worst.gain:.4g} ({_percent(worst.error)} from"
+                f"use {_percent(step)} resistors for {', '.join(changed)}{also}: the solved"
+                f" worst case is then {worst.gain:.4g} ({_percent(worst.error)} from"
                 f" {required:.4g}, within ±{_percent(band)})",
                 value=step, unit="%")
-    nominal_error = abs(gain.nominal / required - 1)
+    nominal_error = abs(spread.nominal / required - 1)
     return Suggestion(f"even 0.1 % resistors do not hold the gain within ±{_percent(band)}:"
-                      f" the nominal gain {gain.nominal:.4g} is already"
+                      f" the nominal gain {spread.nominal:.4g} is already"
                       f" {_percent(nominal_error)} from {required:.4g}; correct the"
-                      " resistor ratio first")
-
-
-def _tolerances(stage, default: float) -> tuple[dict[str, float], list[str]]:
-    tolerances, assumed = {}, []
-    for p in stage.resistors():
-        if p.tolerance:
-            tolerances[p.ref] = p.tolerance
-        else:
-            tolerances[p.ref] = default
-            assumed.append(p.ref)
-    return tolerances, assumed
+                      " resistor ratio (or the source's loading) first")
 
 
 def _share_text(share: float, samples: int) -> str:

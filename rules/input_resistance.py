@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+from checker.analysis.figures import signed_gain
 from checker.analysis.topology import classify
 from checker.engine import rule
+from checker.limits import below, within
+from checker.requirements import DEFAULT_GAIN_TOLERANCE
 from checker.findings import Severity, Suggestion
 from checker.preferred import at_least, nearest, series_for_tolerance
 from checker.units import format_si
@@ -17,9 +20,12 @@ def input_resistance(view):
     """
     What it checks:
         For every voltage source, the smallest magnitude of the stage's input impedance
-        over the source's band, solved at the source's net. It must reach the stated
-        `input-resistance` requirement (error when it does not) or, without one,
-        `ratio_to_source` times the source's own impedance (warning).
+        over the source's band (at DC for a source with no band), solved at the
+        source's net. It must reach the stated `input-resistance` requirement (error
+        when it does not) and, whether or not one is stated, `ratio_to_source` times
+        the source's own impedance (warning). Where the stage's gain requirement is
+        not met from the source's side but would be from its net, this loading is
+        named as its cause.
 
     Why it matters:
         The source impedance and the stage's input resistance form a voltage divider:
@@ -42,32 +48,53 @@ def input_resistance(view):
         Smith, Microelectronic Circuits, op-amp chapter).
     """
     stage, figures, settings = view.stage, view.figures, view.settings
+    required = stage.require.input_resistance_ohm
     for sf in figures.sources:
         source = sf.source
         if source.kind != "voltage":
             continue
         zin = sf.input_resistance_min
-        required = stage.require.input_resistance_ohm
+        checks = []  # (limit, severity, reason, answers)
         if required is not None:
-            limit, severity, reason = required, Severity.ERROR, "the required minimum"
-        elif source.impedance_ohm:
-            limit = settings["ratio_to_source"] * source.impedance_ohm
-            severity = Severity.WARNING
-            reason = f"{settings['ratio_to_source']:g}× the source's {format_si(source.impedance_ohm, 'Ω')}"
-        else:
+            checks.append((required, Severity.ERROR, "the required minimum",
+                           view.answers("input-resistance")))
+        if source.impedance_ohm:
+            # loading is the cause of a gain that falls short from the source's side
+            loading = view.answers("gain") if _loading_costs_the_gain(view, sf) else {}
+            checks.append((settings["ratio_to_source"] * source.impedance_ohm,
+                           Severity.WARNING,
+                           f"{settings['ratio_to_source']:g}× the source's"
+                           f" {format_si(source.impedance_ohm, 'Ω')}", loading))
+        failing = [check for check in checks if below(zin, check[0])]
+        if not failing:
             continue
-        if zin >= limit:
-            continue
+        severity = failing[0][1]
+        claims = tuple(k for item in failing for k in item[3].get("requirement", ()))
+        answers = {"requirement": claims} if claims else {}
         loss_db = sf.loss_db
         loss_percent = (1 - 10 ** (-loss_db / 20)) * 100
-        message = (f"{source.name} sees {format_si(zin, 'Ω')} of input resistance, below"
-                   f" {reason} ({format_si(limit, 'Ω')})")
+        limits = " and ".join(f"{reason} ({format_si(limit, 'Ω')})"
+                              for limit, _severity, reason, _answers in failing)
+        message = f"{source.name} sees {format_si(zin, 'Ω')} of input resistance, below {limits}"
         if source.impedance_ohm:
             message += f"; loading loses {loss_percent:.1f} % ({loss_db:.2f} dB) of its signal"
         yield view.finding(message, source.origin, elements=(source.name,), severity=severity,
-                           measured=zin, limit=limit, unit="Ω",
-                           suggestion=_suggest(view, source, zin, limit, settings),
-                           loss_db=loss_db, loss_percent=loss_percent)
+                           measured=zin, limit=max(item[0] for item in failing), unit="Ω",
+                           suggestion=_suggest(view, source, zin,
+                                               max(item[0] for item in failing), settings),
+                           loss_db=loss_db, loss_percent=loss_percent, **answers)
+
+
+def _loading_costs_the_gain(view, sf) -> bool:
+    """True when the stage's gain requirement is not met from the source's side but would
+    be from its net: the divider of the source's impedance and the input resistance is
+    then what costs the gain."""
+    stage = view.stage
+    if not view.unmet("gain") or not stage.require.gain:
+        return False
+    band = stage.require.gain_tolerance or DEFAULT_GAIN_TOLERANCE
+    from_net = signed_gain(sf.gain_mid)
+    return within(abs(from_net / stage.require.gain - 1), band)
 
 
 def _suggest(view, source, zin, limit, settings) -> Suggestion:

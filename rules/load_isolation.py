@@ -11,6 +11,7 @@ from checker.analysis.topology import reached_nets
 from checker.analysis.updates import loop_gain_candidates, margins_with_admittances
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
+from checker.limits import below, reaches, within
 from checker.preferred import ladder, smallest_passing
 from checker.units import format_si
 from checker.variants import with_isolation_resistor, with_resistance, without_loads
@@ -89,7 +90,7 @@ def _unbuffered_sources(view):
             if not without:
                 continue
             loss = -20 * math.log10(max(with_load / without, 1e-30))
-            if loss <= settings["max_loss_db"]:
+            if within(loss, settings["max_loss_db"]):
                 continue
             where = (f"before the load on {load.net}" if load.net == source.net
                      else f"between {source.net} and {load.net}")
@@ -135,7 +136,7 @@ def _capacitive_loads(view):
             continue
         loop = figures.loops[opamp.ref]
         margin = loop.phase_margin_deg
-        if loop.feedback != "negative" or margin is None or margin >= warn:
+        if loop.feedback != "negative" or margin is None or reaches(margin, warn):
             continue
         if opamp.part.output_resistance_ohm is None:
             yield view.cannot_check(f"the capacitive load on {opamp.ref}",
@@ -144,12 +145,13 @@ def _capacitive_loads(view):
             continue
         bare_margin = margins_with_admittances(
             figures, opamp.ref, lambda f: _load_capacitances_removed(stage, f)).phase_margin_deg
-        if bare_margin is not None and bare_margin < warn:
+        if bare_margin is not None and below(bare_margin, warn):
             continue
         load, series = driven[0]
         pole = 1 / (2 * math.pi * opamp.part.output_resistance_ohm * load.capacitance_f) \
             if opamp.part.output_resistance_ohm else None
-        severity = Severity.ERROR if margin < settings["error_below_deg"] else Severity.WARNING
+        severity = Severity.ERROR if below(margin, settings["error_below_deg"]) \
+            else Severity.WARNING
         behind = f" behind {series.ref}" if series else ""
         yield view.finding(
             f"{opamp.ref} drives {format_si(load.capacitance_f, 'F')} on {load.net}{behind}:"
@@ -159,7 +161,8 @@ def _capacitive_loads(view):
             f" (without the load capacitance {bare_margin:.0f}°)",
             load.origin, elements=(opamp.ref, f"load {load.net}"), severity=severity,
             measured=margin, limit=warn, unit="°",
-            suggestion=_isolation(view, opamp, load, series, warn), load_pole_hz=pole)
+            suggestion=_isolation(view, opamp, load, series, warn), load_pole_hz=pole,
+            **view.answers("phase-margin"))
 
 
 def _load_capacitances_removed(stage, frequencies: np.ndarray) -> list[tuple]:
@@ -243,7 +246,7 @@ def _next_stage(view):
         z_in = target.input_impedance_mid
         ratio = abs(z_in / (z_in + z_out))
         loss = -20 * math.log10(ratio)
-        if loss <= settings["max_interstage_loss_db"]:
+        if within(loss, settings["max_interstage_loss_db"]):
             continue
         yield view.finding(
             f"stage {following.stage.name} loads this output: its input"

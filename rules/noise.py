@@ -5,10 +5,12 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 
-from checker.analysis.noise import output_noise
+from checker.analysis.noise import noise_band, output_noise
 from checker.engine import rule
 from checker.findings import Suggestion
+from checker.limits import within
 from checker.parts.library import builtin_parts
+from checker.requirements import stage_noise
 from checker.rules._resistor_networks import gain_kept, network_of, rounded
 from checker.units import format_si
 
@@ -61,21 +63,21 @@ def noise(view):
     limit = stage.require.noise_v
     if limit is None:
         return
-    band = _band(stage)
+    band = noise_band(stage)
     where = stage.require.origin or stage.origin
     if band is None:
         yield view.cannot_check("the output noise", "no source gives a band and the stage"
                                 " requires no bandwidth", where)
         return
     low, high = band
-    result = output_noise(figures, low, high, settings["temperature_k"])
+    result = stage_noise(figures, settings["temperature_k"])  # the verdict's own figure
     for ref in result.missing:
         opamp = stage.element(ref)
         yield view.cannot_check(f"the noise of {ref}", f"part {opamp.part.name} gives no"
                                 " voltage-noise or current-noise density, so its noise is"
                                 " left out of the total", opamp.origin, (ref,))
     total = result.total_vrms
-    if total <= limit:
+    if within(total, limit):
         return
     largest = result.largest
     origin, element = _place(stage, largest.element)
@@ -90,17 +92,7 @@ def noise(view):
     yield view.finding(message, origin or where, elements=(element,), measured=total,
                        limit=limit, unit="V", suggestion=_suggest(view, result, limit, band),
                        largest=largest.name, contributions=contributions,
-                       band_low_hz=low, band_high_hz=high)
-
-
-def _band(stage) -> tuple[float, float] | None:
-    highs = [s.band_high_hz for s in stage.sources if s.band_high_hz]
-    if highs:
-        lows = [s.band_low_hz or 0.0 for s in stage.sources if s.band_high_hz]
-        return min(lows), max(highs)
-    if stage.require.bandwidth_hz:
-        return 0.0, stage.require.bandwidth_hz
-    return None
+                       band_low_hz=low, band_high_hz=high, **view.answers("noise"))
 
 
 def _place(stage, element: str):

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
+from checker.limits import above
 from checker.units import format_si
 
 
@@ -28,10 +29,14 @@ def rail_headroom(view):
         room for part-to-part spread, temperature or a supply at its low limit.
 
     How the fix is computed:
-        The rule reports the worst-case output, the usable swing between the clip
-        limits, and, by the solved DC transfer from the source, the largest input range
-        that fits; lower the gain, shift the reference, or widen the supplies to fit
-        the rest.
+        A sensor's range is what it delivers, so the fix is in the stage: where the
+        swing is wider than the room between the clip limits (less the margin each
+        side), the factor by which to lower the gain; where it would fit but sits off
+        centre, the shift of the output's level that centres it (a reference or offset
+        at the input); the supply voltages that would hold the output as it is; or a
+        part whose output swings closer to its rails. Both sides are named when the
+        output comes too close to both. For reference it also gives, by the solved DC
+        transfer, the input range that fits as built.
 
     Sources:
         Superposition of the DC solution over the sources' ranges with offset and bias
@@ -63,26 +68,72 @@ def _output(view, opamp, margin):
         return
     over_high = node.high - node.clip_high
     over_low = node.clip_low - node.low
+    sides = [(side, excess) for side, excess in (("upper", over_high), ("lower", over_low))
+             if above(excess, -margin)]
+    if not sides:
+        return
+    excess = max(over_high, over_low)
     worst_high = over_high >= over_low
     measured = node.high if worst_high else node.low
     limit = node.clip_high if worst_high else node.clip_low
-    excess = max(over_high, over_low)
-    if excess <= -margin:
-        return
     severity = Severity.ERROR if excess > 0 else Severity.WARNING
-    side = "upper" if worst_high else "lower"
-    verb = (f"clips by {format_si(excess, 'V')} at the {side} limit" if excess > 0
-            else f"comes within {format_si(-excess, 'V')} of the {side} limit")
+
+    def verb(side: str, amount: float) -> str:
+        return (f"clips by {format_si(amount, 'V')} at the {side} limit" if amount > 0
+                else f"comes within {format_si(-amount, 'V')} of the {side} limit")
+
+    verbs = " and ".join(verb(side, amount) for side, amount in sides)
     message = (f"{opamp.ref} output spans {format_si(node.low, 'V')} to"
                f" {format_si(node.high, 'V')} (offset and bias errors ±{format_si(node.error, 'V')})"
                f" against a usable swing of {format_si(node.clip_low, 'V')} to"
-               f" {format_si(node.clip_high, 'V')}: it {verb}")
-    window = _fitting_input(view, opamp.out)
-    suggestion = Suggestion(f"inputs that fit: {window}" if window else
-                            "lower the gain, shift the reference or widen the supplies")
+               f" {format_si(node.clip_high, 'V')}: it {verbs}")
     yield view.finding(message, opamp.origin, elements=(opamp.ref,), severity=severity,
-                       measured=measured, limit=limit, unit="V", suggestion=suggestion,
-                       usable_low=node.clip_low, usable_high=node.clip_high)
+                       measured=measured, limit=limit, unit="V",
+                       suggestion=_remedy(view, opamp, node, margin),
+                       usable_low=node.clip_low, usable_high=node.clip_high,
+                       sides=[side for side, _excess in sides], **view.answers("headroom"))
+
+
+def _remedy(view, opamp, node, margin) -> Suggestion:
+    """What a designer can change in this circuit: the gain, the level the output sits
+    at, the rails, or an output that reaches closer to them; the source's own range is
+    what the sensor gives and is not among them."""
+    usable = node.clip_high - node.clip_low - 2 * margin
+    span = node.high - node.low
+    rails = view.stage.rail_voltages
+    options = []
+    if span > usable > 0 and span > 2 * node.error:
+        signal = span - 2 * node.error
+        room = usable - 2 * node.error
+        if room > 0:
+            options.append(f"lower the gain by a factor {signal / room:.3g} (the signal's"
+                           f" {format_si(signal, 'V')} of swing into the"
+                           f" {format_si(room, 'V')} left inside the limits, less"
+                           f" {format_si(margin, 'V')} each side)")
+    else:
+        centre = (node.clip_high + node.clip_low) / 2
+        shift = centre - (node.high + node.low) / 2
+        options.append(f"shift the output's level by {format_si(shift, 'V')} (a reference"
+                       f" or offset at the input that moves the output's centre to"
+                       f" {format_si(centre, 'V')})")
+    headroom_high = rails[opamp.v_pos] - node.clip_high
+    headroom_low = node.clip_low - rails[opamp.v_neg]
+    needed_high = node.high + margin + headroom_high
+    needed_low = node.low - margin - headroom_low
+    rail_text = []
+    if needed_high > rails[opamp.v_pos]:
+        rail_text.append(f"{opamp.v_pos} to at least {format_si(needed_high, 'V')}")
+    if needed_low < rails[opamp.v_neg]:
+        name = opamp.v_neg if opamp.v_neg != view.stage.ground else "a negative rail"
+        rail_text.append(f"{name} to at most {format_si(needed_low, 'V')}")
+    if rail_text:
+        options.append("widen the supplies (" + ", ".join(rail_text) + ")")
+    options.append(f"or choose a part for {opamp.ref} whose output swings closer to its"
+                   " rails")
+    window = _fitting_input(view, opamp.out)
+    if window:
+        options.append(f"(for reference, the input range that fits as built: {window})")
+    return Suggestion("; ".join(options), element=opamp.ref)
 
 
 def _fitting_input(view, net) -> str | None:

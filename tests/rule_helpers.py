@@ -43,7 +43,8 @@ def run(text: str, rule_id: str, stray_capacitance_f: float = 0.0,
         ) -> tuple[dict[str, Figures], dict[str, list[Finding]]]:
     """(figures, findings) by stage name for the stage file ``text`` checked by one rule."""
     options = RunOptions(analysis=AnalysisOptions(stray_capacitance_f=stray_capacitance_f),
-                         settings={rule_id: settings} if settings else {})
+                         settings={rule_id: settings} if settings else {},
+                         judge_requirements=False)
     return check_stages(build(text), [_RULES[rule_id]], options)
 
 

@@ -262,7 +262,7 @@ CAPACITOR_COUPLED = f"""(stage coupled {rails()}
   (opamp U1 {params(open_loop_gain=1e6, gbw="1MHz")} (in+ p) (in- out) (out out)
     (v+ vcc) (v- vee))
   (capacitor C1 in p 100n)
-  (source in (range -0.1V 0.1V)) (load out (resistance 10k)))"""
+  (source in (range -0.1V 0.1V) (band 100Hz 10kHz)) (load out (resistance 10k)))"""
 
 OUTPUT_ON_SUPPLY = f"""(stage shorted {rails()}
   (opamp U1 {params(open_loop_gain=1e6, gbw="1MHz")} (in+ in) (in- vcc) (out vcc)
@@ -296,6 +296,14 @@ def test_net_with_no_dc_path_still_solves():
     # (common practice); the tie to ground only keeps the DC solve defined
     assert figures.solvable
     assert abs(figures.sources[0].gain_mid) == pytest.approx(1.0, rel=1e-3)
+
+
+def test_a_source_without_a_band_is_read_at_dc():
+    # docs/format.md: a source with no band is a DC signal, read at 0 Hz; behind a series
+    # capacitor nothing reaches the output at DC (a capacitor blocks DC: any circuits text)
+    figures = analyse_text(CAPACITOR_COUPLED.replace(" (band 100Hz 10kHz)", ""))
+    assert figures.sources[0].reference_hz == 0.0
+    assert abs(figures.sources[0].gain_from_source_mid) < 1e-6
 
 
 def test_op_amp_output_tied_to_a_supply_is_reported():

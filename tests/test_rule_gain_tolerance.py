@@ -36,7 +36,7 @@ def inverting(require: str = "(gain -10) (gain-tolerance 1.5%)", r1_tolerance: s
           (opamp U1 {OPAMP} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
           (resistor R1 in fb 10k {t1})
           (resistor R2 fb out 100k {t2})
-          (source in (range -0.1V 0.1V) (band 0Hz 10Hz) (impedance 1k))
+          (source in (range -0.1V 0.1V) (band 0Hz 10Hz))
           (load out (resistance 10k))
           (require {require}))
         """

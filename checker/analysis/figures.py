@@ -84,6 +84,19 @@ class LoopFigures:
         """True when negative feedback (Re T > 1) exists at some frequency."""
         return bool(np.any(self.loop_gain.real > 1.0))
 
+    @property
+    def negative_somewhere(self) -> bool:
+        """Negative feedback at DC, or (an integrator's loop, open at DC) above it: the
+        op-amp works closed-loop, so closed-loop figures mean something."""
+        return self.feedback == "negative" or (self.feedback == "none" and self.closes_anywhere)
+
+    @property
+    def regenerative_at_dc(self) -> bool:
+        """Positive feedback of loop gain 1 or more at DC: the output runs to a rail and
+        stays there (T <= -1; T is the negated return, so negative T is positive
+        feedback)."""
+        return self.loop_gain_dc <= -1.0
+
 
 @dataclass(frozen=True)
 class SourceFigures:
@@ -91,15 +104,15 @@ class SourceFigures:
 
     index: int
     source: Source
-    gain: np.ndarray  # V(out)/V(net) (V/V), or V(out)/I (ohms) for a current source
-    gain_from_source: np.ndarray  # V(out)/EMF (voltage) or V(out)/I (current)
+    gain: np.ndarray  # from the net: V(out)/V(net) (V/V), or V(out)/I (ohms), over the grid
+    gain_from_source: np.ndarray  # the signal's gain: V(out)/EMF, or V(out)/I
     input_impedance: np.ndarray  # looking into the stage from the source's net
-    reference_hz: float  # mid-band frequency the single-number figures are read at
-    gain_mid: complex
-    gain_from_source_mid: complex
+    reference_hz: float  # where the single-number figures are read: band centre, or 0 (DC)
+    gain_mid: complex  # from the net, at reference_hz
+    gain_from_source_mid: complex  # the signal's gain at reference_hz
     input_impedance_mid: complex
-    input_resistance_min: float  # smallest |Zin| over the band (or the whole grid)
-    bandwidth_low_hz: float | None
+    input_resistance_min: float  # smallest |Zin| over the band (DC for a DC source)
+    bandwidth_low_hz: float | None  # -3 dB edges of the signal's gain
     bandwidth_high_hz: float | None
 
     @property
@@ -192,6 +205,14 @@ class Figures:
     def __init__(self, stage: Stage, options: AnalysisOptions):
         self.stage = stage
         self.options = options
+        self._memo: dict = {}
+
+    def cached(self, key, compute):
+        """``compute()`` once per ``key`` for this stage: figures that several readers
+        (a requirement's verdict and the rule that explains it) ask for alike."""
+        if key not in self._memo:
+            self._memo[key] = compute()
+        return self._memo[key]
 
     # -- structure -----------------------------------------------------------------
     @cached_property
@@ -531,7 +552,15 @@ class Figures:
     # -- sources: gain, input impedance, bandwidth -------------------------------------
     @cached_property
     def sources(self) -> list[SourceFigures]:
-        """Per-source gain, input impedance and bandwidth at the stage output."""
+        """Per-source gain, input impedance and bandwidth at the stage output.
+
+        The signal's gain is from the source itself (its EMF, or its current) to the
+        output; the gain from the source's net is kept beside it for the loading
+        figures. Single-number figures are read at the source's reference frequency:
+        the band's geometric centre, or 0 Hz (the DC solve) for a source with no band
+        or a band from 0 Hz (docs/format.md, "source"). The input resistance is the
+        smallest |Zin| over the band, DC included when the band reaches it; a source
+        with no band is a DC signal and sees the DC input resistance."""
         X = self._ac
         frequencies = self.frequencies_hz
         s = 2j * np.pi * frequencies
@@ -546,7 +575,6 @@ class Figures:
                 current = -X[:, branch_row, self._ac_columns[0].index(column)]
                 z_in = _safe_divide(v_net, current)
                 gain = _safe_divide(v_out, v_net)
-                gain_from_source = v_out
             else:
                 shunt = np.zeros_like(s)
                 if source.impedance_ohm:
@@ -555,51 +583,82 @@ class Figures:
                     shunt = shunt + s * source.capacitance_f
                 z_in = _safe_divide(1.0, _safe_divide(1.0, v_net) - shunt)
                 gain = v_out
-                gain_from_source = v_out
-            reference = self._reference_hz(source, gain)
-            at = int(np.argmin(np.abs(frequencies - reference)))
-            # Without a declared band the source is taken as slow: up to its reference.
-            band = _band_mask(frequencies, source) if source.band_high_hz else \
-                frequencies <= frequencies[at]
-            low, high = _bandwidth(frequencies, gain, at, self._gain_function(i))
+            gain_from_source = v_out
+            reference = reference_frequency(source)
+            if reference > 0:
+                at = int(np.argmin(np.abs(frequencies - reference)))
+                reference = float(frequencies[at])
+                mids = (complex(gain[at]), complex(gain_from_source[at]), complex(z_in[at]))
+            else:
+                at = 0
+                mids = self._dc_source_figures(i)
+            band = _band_mask(frequencies, source) if source.band_high_hz else None
+            smallest = abs(mids[2])
+            if band is not None:
+                smallest = min(float(np.min(np.abs(z_in[band]))),
+                               smallest if reference == 0 else math.inf)
+            low, high = bandwidth_edges(frequencies, gain_from_source, at, self._gain_function(i))
             result.append(SourceFigures(
                 index=i, source=source, gain=gain, gain_from_source=gain_from_source,
-                input_impedance=z_in, reference_hz=float(frequencies[at]),
-                gain_mid=complex(gain[at]), gain_from_source_mid=complex(gain_from_source[at]),
-                input_impedance_mid=complex(z_in[at]),
-                input_resistance_min=float(np.min(np.abs(z_in[band]))),
-                bandwidth_low_hz=low, bandwidth_high_hz=high))
+                input_impedance=z_in, reference_hz=reference,
+                gain_mid=mids[0], gain_from_source_mid=mids[1], input_impedance_mid=mids[2],
+                input_resistance_min=smallest, bandwidth_low_hz=low, bandwidth_high_hz=high))
         return result
 
+    def _dc_source_figures(self, i: int) -> tuple[complex, complex, complex]:
+        """(gain from the net, gain from the source, input impedance) of source i at 0 Hz,
+        from the DC solve."""
+        source = self.stage.sources[i]
+        columns, X = self._dc
+        column = columns.index(("source", i))
+        circuit = self.circuit
+        out = self.dc_transfer(self.stage.output_net, ("source", i))
+        net = self.dc_transfer(source.net, ("source", i))
+        if source.kind == "voltage":
+            current = -float(X[circuit.row_of_branch(circuit.source_branch[i]), column])
+            z_in = net / current if current else math.inf
+            gain = out / net if net else (math.inf if out else 0.0)
+        else:
+            shunt = 1 / source.impedance_ohm if source.impedance_ohm else 0.0
+            conductance = (1 / net if net else math.inf) - shunt
+            z_in = 1 / conductance if conductance else math.inf
+            gain = out
+        return complex(gain), complex(out), complex(z_in)
+
     def gain_at(self, index: int, frequency_hz: float) -> complex:
-        """Source ``index``'s gain (as in SourceFigures.gain) at one frequency, from a
+        """Source ``index``'s signal gain (as in SourceFigures.gain_from_source) at one frequency, from a
         one-column solve: cheap enough for searches over many copies of a stage."""
         return complex(self._gain_function(index)(np.array([float(frequency_hz)]))[0])
 
+    def signal_response(self, weights, frequencies: np.ndarray) -> np.ndarray:
+        """The output per unit of a weighted sum of sources, ``weights`` = ((index,
+        weight), ...), at any ``frequencies`` (F,) from one solve of their columns; 0 Hz
+        entries come from the DC solve. (F,) complex."""
+        frequencies = np.asarray(frequencies, dtype=float)
+        result = np.zeros(frequencies.shape, dtype=complex)
+        dc = frequencies <= 0
+        for index, weight in weights:
+            if dc.any():
+                result[dc] += weight * self.dc_transfer(self.stage.output_net,
+                                                        ("source", index))
+        if (~dc).any():
+            names = [("source", index) for index, _weight in weights]
+            X = self._solve_ac(frequencies[~dc], only=names)
+            out = self.circuit.node(self.stage.output_net)
+            result[~dc] += sum(weight * _pick(X, out, k)
+                               for k, (_index, weight) in enumerate(weights))
+        return result
+
     def _gain_function(self, i: int):
-        """Source i's gain (as in SourceFigures.gain) at any frequencies, for refining a
-        band edge between two grid points with a small local solve."""
-        circuit = self.circuit
-        out = circuit.node(self.stage.output_net)
-        net = circuit.node(self.stage.sources[i].net)
-        voltage = self.stage.sources[i].kind == "voltage"
+        """Source i's signal gain (as in SourceFigures.gain_from_source) at any
+        frequencies, for refining a band edge between two grid points with a small local
+        solve."""
+        out = self.circuit.node(self.stage.output_net)
 
         def gain(frequencies: np.ndarray) -> np.ndarray:
-            X = self._solve_ac(frequencies, only=[("source", i)])
-            v_out = _pick(X, out, 0)
-            return _safe_divide(v_out, _pick(X, net, 0)) if voltage else v_out
+            return _pick(self._solve_ac(frequencies, only=[("source", i)]), out, 0)
 
         return gain
-
-    def _reference_hz(self, source: Source, gain: np.ndarray) -> float:
-        centre = _band_centre(source)
-        if centre:
-            return centre
-        crossovers = [loop.crossover_hz for loop in self.loops.values() if loop.crossover_hz]
-        frequencies = self.frequencies_hz
-        limit = min(crossovers) / 100 if crossovers else frequencies[-1]
-        below = frequencies <= max(limit, frequencies[0])
-        return float(frequencies[below][np.argmax(np.abs(gain[below]))])
 
     # -- output impedance ----------------------------------------------------------------
     @cached_property
@@ -864,6 +923,12 @@ def _safe_divide(a, b):
     return np.where(b == 0, np.inf, result)
 
 
+def reference_frequency(source: Source) -> float:
+    """The frequency a source's single-number figures are read at: the geometric centre
+    of its band, or 0 Hz (DC) for a source with no band or a band from 0 Hz."""
+    return _band_centre(source) or 0.0
+
+
 def _band_centre(source: Source) -> float | None:
     if source.band_high_hz and source.band_low_hz:
         return math.sqrt(source.band_low_hz * source.band_high_hz)
@@ -882,7 +947,7 @@ def _band_mask(frequencies: np.ndarray, source: Source) -> np.ndarray:
 def grid_upper_edges(frequencies: np.ndarray, gains: np.ndarray, at: int) -> np.ndarray:
     """-3 dB upper edges of many gains (V, F) above grid index ``at``, read on the grid
     alone (log-log interpolation, no local solve); NaN where the response stays up.
-    For ranking candidates; reported edges come from _bandwidth."""
+    For ranking candidates; reported edges come from bandwidth_edges."""
     if at >= frequencies.size - 1:
         return np.full(gains.shape[0], np.nan)
     magnitude = np.maximum(np.abs(gains[:, at:]), np.finfo(float).tiny)
@@ -900,7 +965,7 @@ def grid_upper_edges(frequencies: np.ndarray, gains: np.ndarray, at: int) -> np.
     return np.where(found, edge, np.nan)
 
 
-def _bandwidth(frequencies: np.ndarray, gain: np.ndarray, at: int,
+def bandwidth_edges(frequencies: np.ndarray, gain: np.ndarray, at: int,
                gain_at=None) -> tuple[float | None, float | None]:
     """-3 dB edges of |gain| around index ``at`` (None where the response stays up).
 

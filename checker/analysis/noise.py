@@ -40,6 +40,18 @@ class NoiseResult:
         return self.contributions[0] if self.contributions else None
 
 
+def noise_band(stage) -> tuple[float, float] | None:
+    """The band a stage's output noise is integrated over: the sources' lowest to highest
+    band edge, else 0 Hz to the `bandwidth` requirement; None when neither is given."""
+    highs = [s.band_high_hz for s in stage.sources if s.band_high_hz]
+    if highs:
+        lows = [s.band_low_hz or 0.0 for s in stage.sources if s.band_high_hz]
+        return min(lows), max(highs)
+    if stage.require.bandwidth_hz:
+        return 0.0, stage.require.bandwidth_hz
+    return None
+
+
 def thermal_density(resistance_ohm: float, temperature_k: float) -> float:
     """Thermal noise voltage density sqrt(4kTR) in V/sqrt(Hz) (Johnson-Nyquist)."""
     return math.sqrt(4 * BOLTZMANN * temperature_k * resistance_ohm)

@@ -19,7 +19,7 @@ import weakref
 
 import numpy as np
 
-from checker.analysis.figures import Figures, _pick, _safe_divide
+from checker.analysis.figures import Figures, _pick
 from checker.analysis.loop import Margins, return_ratio
 
 # Per Figures: the loop column and unit pair currents solved on its own grid, kept
@@ -120,7 +120,7 @@ def loop_gain_candidates(figures: Figures, ref: str, net_a: str, net_b: str,
 
 def source_gain_candidates(figures: Figures, index: int, ref: str, gains: np.ndarray,
                            frequencies: np.ndarray) -> np.ndarray:
-    """Source ``index``'s gain (as in SourceFigures.gain) at ``frequencies`` (F,) with
+    """Source ``index``'s signal gain (as SourceFigures.gain_from_source) at ``frequencies`` (F,) with
     op-amp ``ref``'s A(s) replaced by each row of ``gains`` (V, F), all from one solve of
     the source and loop columns (Sherman-Morrison): (V, F) complex."""
     circuit = figures.circuit
@@ -135,8 +135,4 @@ def source_gain_candidates(figures: Figures, index: int, ref: str, gains: np.nda
         node = circuit.node(net)
         return _pick(X, node, 0) - factor * _pick(X, node, 1)
 
-    v_out = voltage(figures.stage.output_net)
-    source = figures.stage.sources[index]
-    if source.kind == "voltage":
-        return _safe_divide(v_out, voltage(source.net))
-    return v_out
+    return voltage(figures.stage.output_net)

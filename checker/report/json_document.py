@@ -1,4 +1,4 @@
-"""The versioned JSON report document (format "ampcheck-report", version 1).
+"""The versioned JSON report document (format "ampcheck-report", version 2).
 
 Numbers are SI floats, null where a figure does not apply; findings sorted by path,
 line, column, severity, rule. Documented in docs/report-json.md.
@@ -9,12 +9,13 @@ from __future__ import annotations
 import json
 
 from checker.findings import Finding
+from checker.records import STATUSES, Verdict
 from checker.report.context import ReportContext
 from checker.report import Writer as BaseWriter
 from checker.review import FileResult
 
 FORMAT_NAME = "ampcheck-report"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
 
 
 def finding_dict(finding: Finding) -> dict:
@@ -30,6 +31,14 @@ def finding_dict(finding: Finding) -> dict:
             "baselined": finding.baselined}
 
 
+def verdict_dict(verdict: Verdict) -> dict:
+    return {"requirement": verdict.requirement, "status": verdict.status,
+            "required": verdict.required, "statement": verdict.statement,
+            "reason": verdict.reason, "measured": verdict.measured, "limit": verdict.limit,
+            "unit": verdict.unit, "line": verdict.line, "column": verdict.column,
+            "explained_by": list(verdict.explained_by)}
+
+
 def file_dict(result: FileResult) -> dict:
     stages = []
     for item in result.stages:
@@ -37,6 +46,7 @@ def file_dict(result: FileResult) -> dict:
         topology = summary.pop("topology", None)
         stages.append({"name": item.name, "line": item.line, "topology": topology,
                        "figures": summary, "amplifiers": item.amplifiers,
+                       "requirements": [verdict_dict(v) for v in item.verdicts],
                        "findings": [finding_dict(f) for f in item.findings]})
     return {"path": result.path, "problems": [finding_dict(f) for f in result.problems],
             "stages": stages}
@@ -54,6 +64,7 @@ class Writer(BaseWriter):
         super().__init__(out, context)
         self.files = self.stages = 0
         self.counts = {"error": 0, "warning": 0, "info": 0}
+        self.verdicts = dict.fromkeys(STATUSES, 0)
         tool = {"name": "ampcheck", "version": context.tool_version}
         out.write(f'{{\n  "format": "{FORMAT_NAME}",\n  "version": {FORMAT_VERSION},\n'
                   f'  "tool": {_indented(tool, 1)},\n  "files": [')
@@ -64,9 +75,13 @@ class Writer(BaseWriter):
         self.stages += len(result.stages)
         for finding in result.findings():
             self.counts[finding.severity.label] += 1
+        for stage in result.stages:
+            for verdict in stage.verdicts:
+                self.verdicts[verdict.status] += 1
 
     def close(self) -> None:
-        summary = {"files": self.files, "stages": self.stages, **self.counts}
+        summary = {"files": self.files, "stages": self.stages, **self.counts,
+                   "requirements": self.verdicts}
         self.out.write(("\n  " if self.files else "") +
                        f'],\n  "summary": {_indented(summary, 1)}\n}}\n')
 
@@ -99,11 +114,32 @@ _FINDING = {
                            "element": {"type": ["string", "null"]}}}]},
     },
 }
-STAGE_FIGURES = ("gain", "input_resistance", "output_resistance", "bandwidth", "phase_margin",
-                 "crossover", "noise_gain", "feedback_pole", "output_low", "output_high")
+STAGE_FIGURES = ("gain", "gain_from_net", "input_resistance", "output_resistance", "bandwidth",
+                 "phase_margin", "crossover", "noise_gain", "feedback_pole", "output_low",
+                 "output_high")
+_VERDICT = {
+    "type": "object",
+    "required": ["requirement", "status", "required", "statement", "reason", "measured",
+                 "limit", "unit", "line", "column", "explained_by"],
+    "additionalProperties": False,
+    "properties": {
+        "requirement": {"enum": ["gain", "gain-tolerance", "input-resistance", "bandwidth",
+                                 "phase-margin", "headroom", "dc-error", "noise", "cmrr"]},
+        "status": {"enum": list(STATUSES)},
+        "required": {"type": "string"},
+        "statement": {"type": "string"},
+        "reason": {"type": ["string", "null"]},
+        "measured": _NUMBER,
+        "limit": _NUMBER,
+        "unit": {"type": ["string", "null"]},
+        "line": {"type": "integer", "minimum": 1},
+        "column": {"type": "integer", "minimum": 1},
+        "explained_by": {"type": "array", "items": {"type": "string"}},
+    },
+}
 REPORT_SCHEMA = {
     "$schema": "https://json-schema.org/draft/2020-12/schema",
-    "title": "ampcheck report, version 1",
+    "title": "ampcheck report, version 2",
     "type": "object",
     "required": ["format", "version", "tool", "summary", "files"],
     "additionalProperties": False,
@@ -113,10 +149,16 @@ REPORT_SCHEMA = {
         "tool": {"type": "object", "required": ["name", "version"],
                  "properties": {"name": {"const": "ampcheck"}, "version": {"type": "string"}}},
         "summary": {"type": "object",
-                    "required": ["files", "stages", "error", "warning", "info"],
+                    "required": ["files", "stages", "error", "warning", "info", "requirements"],
                     "additionalProperties": False,
-                    "properties": {k: {"type": "integer", "minimum": 0}
-                                   for k in ("files", "stages", "error", "warning", "info")}},
+                    "properties": {
+                        **{k: {"type": "integer", "minimum": 0}
+                           for k in ("files", "stages", "error", "warning", "info")},
+                        "requirements": {
+                            "type": "object", "required": list(STATUSES),
+                            "additionalProperties": False,
+                            "properties": {k: {"type": "integer", "minimum": 0}
+                                           for k in STATUSES}}}},
         "files": {"type": "array", "items": {
             "type": "object", "required": ["path", "problems", "stages"],
             "additionalProperties": False,
@@ -125,7 +167,8 @@ REPORT_SCHEMA = {
                 "problems": {"type": "array", "items": _FINDING},
                 "stages": {"type": "array", "items": {
                     "type": "object",
-                    "required": ["name", "line", "topology", "figures", "amplifiers", "findings"],
+                    "required": ["name", "line", "topology", "figures", "amplifiers",
+                                 "requirements", "findings"],
                     "additionalProperties": False,
                     "properties": {
                         "name": {"type": "string"},
@@ -137,6 +180,7 @@ REPORT_SCHEMA = {
                         "amplifiers": {"type": "object", "additionalProperties": {
                             "type": "object",
                             "required": ["phase_margin", "crossover", "noise_gain"]}},
+                        "requirements": {"type": "array", "items": _VERDICT},
                         "findings": {"type": "array", "items": _FINDING},
                     }}},
             }}},

@@ -12,7 +12,7 @@ import hashlib
 import json
 import os
 
-from checker.engine import ENGINE_RULES
+from checker.engine import ENGINE_RULES, ENGINE_SEVERITIES
 from checker.findings import Finding, Severity
 from checker.report import Writer as BaseWriter
 from checker.report.context import ReportContext
@@ -45,9 +45,8 @@ def _rule_entry(rule_id: str, context: ReportContext) -> dict:
         summary = ENGINE_RULES.get(rule_id, rule_id)
         return {"id": rule_id, "shortDescription": {"text": summary},
                 "fullDescription": {"text": summary},
-                "defaultConfiguration": {"level": "error" if rule_id in (
-                    "input-invalid", "stage-unsolvable", "rule-failed", "waiver-invalid")
-                    else "note"}}
+                "defaultConfiguration": {"level": LEVEL[ENGINE_SEVERITIES.get(
+                    rule_id, Severity.ERROR)]}}
     sections = rule.sections()
     markdown = "\n\n".join(f"**{heading}**\n\n{' '.join(text.split())}"
                            for heading, text in sections.items())

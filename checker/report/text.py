@@ -10,6 +10,7 @@ from rich.console import Console
 from rich.text import Text
 
 from checker.findings import Finding, Severity
+from checker.records import MET, NOT_MET, Verdict
 from checker.report.context import ReportContext
 from checker.report import Writer as BaseWriter
 from checker.review import FileResult, StageResult, count_by_severity
@@ -99,19 +100,49 @@ def _finding(console: Console, finding: Finding) -> None:
         console.print(line)
 
 
+VERDICT_MARK = {MET: ("✓", "green"), NOT_MET: ("✗", "bold red")}
+UNCHECKED_MARK = ("?", "yellow")
+
+
+def _verdict(line: Text, verdict: Verdict) -> None:
+    """One requirement's verdict, compactly: mark, keyword, requirement, and the
+    measured figure where it is not met."""
+    mark, style = VERDICT_MARK.get(verdict.status, UNCHECKED_MARK)
+    line.append(mark, style=style)
+    line.append(f" {verdict.requirement} {verdict.required}")
+    if verdict.not_met and verdict.measured is not None:
+        line.append(f" ({_value(verdict.measured, verdict.unit)})", style=style)
+    elif verdict.unchecked:
+        line.append(" (could not check)", style="dim")
+
+
+def _verdict_line(console: Console, verdicts: list[Verdict]) -> None:
+    line = Text("      requirements: ", style="dim")
+    for i, verdict in enumerate(verdicts):
+        if i:
+            line.append(" · ")
+        _verdict(line, verdict)
+    console.print(line)
+
+
 def _stage_line(console: Console, result: FileResult) -> None:
     for item in result.stages:
         s = item.summary
         counts = count_by_severity(item.findings)
         worst = next((sev for sev in sorted(Severity, reverse=True)
                       if counts[sev.label]), None)
+        if any(v.not_met for v in item.verdicts):
+            worst = Severity.ERROR
         line = Text("  ")
         line.append(MARK[worst] if worst else "✓", style=STYLE[worst] if worst else "green")
         line.append(f" {item.name}", style="bold")
         line.append(f"  {result.path}:{item.line}", style="dim")
         parts = [s.get("topology") or "?"]
         if s.get("gain") is not None:
-            parts.append(f"gain {s['gain']:.4g}")
+            gain = f"gain {s['gain']:.4g}"
+            if s.get("gain_from_net") is not None:
+                gain += f" (from its net {s['gain_from_net']:.4g})"
+            parts.append(gain)
         if s.get("input_resistance") is not None:
             parts.append(f"Rin {format_si(s['input_resistance'], 'Ω')}")
         if s.get("bandwidth") is not None:
@@ -122,6 +153,8 @@ def _stage_line(console: Console, result: FileResult) -> None:
             parts.append(f"out {format_si(s['output_low'], 'V')} … {format_si(s['output_high'], 'V')}")
         line.append("  " + " · ".join(parts))
         console.print(line)
+        if item.verdicts:
+            _verdict_line(console, item.verdicts)
 
 
 def write(console: Console, results: list[FileResult], context: ReportContext) -> None:
@@ -180,7 +213,8 @@ class Writer(BaseWriter):
         self.stage_count += len(result.stages)
         keep_figures = self.stage_count <= STAGE_LINES_LIMIT
         stages = [StageResult(s.name, s.line, s.findings,
-                              s.summary if keep_figures else {}, {})
+                              s.summary if keep_figures else {}, {},
+                              s.verdicts if keep_figures else [])
                   for s in result.stages]
         self.kept.append(FileResult(result.path, result.problems, stages))
 
