@@ -85,7 +85,8 @@ def summarise(stage: Stage, figures: Figures) -> tuple[dict, dict]:
     The gain and bandwidth are the signal's, from the source itself (for a
     differential pair, Vout/(V1 - V2)); the gain from the source's net is kept where it
     differs. No closed-loop figure (gain, bandwidth, phase margin, crossover, noise
-    gain) is given for a stage with an op-amp whose loop has no negative feedback."""
+    gain) is given for a stage with an op-amp whose loop has no negative feedback, and no
+    output range where a loop is regenerative (the output latches at a rail)."""
     summary = dict.fromkeys(SUMMARY_KEYS)
     amplifiers: dict = {}
     try:
@@ -136,10 +137,13 @@ def summarise(stage: Stage, figures: Figures) -> tuple[dict, dict]:
                 summary["gain_from_net"] = _finite(signed_gain(signal.gain_from_net))
             summary["bandwidth"] = _finite(signal.bandwidth_high_hz)
         voltage = [s.input_resistance_min for s in figures.sources if s.source.kind == "voltage"]
-        summary["input_resistance"] = _finite(min(voltage)) if voltage else None
+        if voltage and not any(loops[o.ref].regenerative_at_dc for o in stage.opamps):
+            summary["input_resistance"] = _finite(min(voltage))
         reference = signal.reference_hz
         at = int(np.argmin(np.abs(figures.frequencies_hz - reference)))
         summary["output_resistance"] = _finite(abs(figures.output_impedance[at]))
+    if any(loops[o.ref].regenerative_at_dc for o in stage.opamps):
+        return summary, amplifiers  # the output latches at a rail: no linear range
     output = figures.output_range  # what the output does: clipped where an op-amp drives it
     summary["output_low"] = _finite(output.clipped_low)
     summary["output_high"] = _finite(output.clipped_high)

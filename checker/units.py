@@ -230,6 +230,8 @@ def format_si(value: float | None, unit: str = "", digits: int = 3) -> str:
     magnitude = abs(value)
     if magnitude == 0:
         return f"0 {unit}"
+    if magnitude >= 999.5e12 or magnitude < 0.9995e-15:  # beyond the prefixes: plain exponent
+        return f"{value:.{digits}g} {unit}"
     for factor, prefix in _FORMAT_PREFIXES:
         if magnitude >= factor * 0.9995:
             break

@@ -57,6 +57,8 @@ def gain_tolerance(view):
     required, band = stage.require.gain, stage.require.gain_tolerance
     if required is None or band is None or required == 0:
         return  # the requirement's verdict says why it cannot be checked
+    if any(not figures.loops[o.ref].negative_somewhere for o in stage.opamps):
+        return  # no closed loop, no closed-loop gain to spread: the verdict says so
     signals = [s for s in stage_signals(figures) if s.unit == "V/V"]
     if not signals:
         yield view.cannot_check("the gain tolerance", "the stage has no voltage source to"

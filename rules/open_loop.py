@@ -8,6 +8,7 @@ from checker.analysis.topology import classify
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.preferred import nearest
+from checker.rules._feedback import looks_swapped
 from checker.units import format_si
 
 
@@ -20,7 +21,10 @@ def open_loop(view):
         The solved return ratio of every op-amp: it flags an op-amp whose loop gain
         never exceeds 1 with negative sign at any frequency (no negative feedback), or
         whose loop is positive at DC (positive feedback only). An integrator, whose
-        loop closes above DC, is not flagged here.
+        loop closes above DC, is not flagged here, and neither is a regenerative loop
+        on a stage meant to be linear (the `swapped-inputs` rule reports it). The
+        finding answers the stage's closed-loop requirements, which such a stage
+        cannot meet.
 
     Why it matters:
         Without negative feedback the output is the open-loop gain times the input
@@ -46,8 +50,8 @@ def open_loop(view):
     rails = stage.rail_voltages
     for opamp in stage.opamps:
         loop = figures.loops[opamp.ref]
-        if loop.feedback == "negative" or (loop.feedback == "none" and loop.closes_anywhere):
-            continue
+        if loop.negative_somewhere or looks_swapped(stage, figures, opamp):
+            continue  # swapped inputs on a stage meant to be linear: swapped-inputs
         kind = "positive feedback only" if loop.feedback == "positive" else "no negative feedback"
         span = rails[opamp.v_pos] - rails[opamp.v_neg]
         step = settings["hysteresis_fraction"] * span
@@ -67,4 +71,5 @@ def open_loop(view):
             f" a comparator ({topology.name}); its output will sit at a rail, recover slowly,"
             " and is not a logic level",
             opamp.origin, elements=(opamp.ref,), measured=loop.loop_gain_dc, limit=1.0,
-            unit="V/V", suggestion=Suggestion(text, value=value, unit="Ω" if value else None))
+            unit="V/V", suggestion=Suggestion(text, value=value, unit="Ω" if value else None),
+            **view.answers("gain", "gain-tolerance", "bandwidth", "phase-margin", "cmrr"))

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
+from checker.limits import within
 from checker.units import format_si
 
 # Common chip and leaded resistor power ratings, in watts (common practice).
@@ -23,7 +24,9 @@ def resistor_power(view):
         voltage difference between its two nets. Its dissipation P = V^2/R is compared
         with its `power-rating` times `derating`; a resistor with no rating is taken
         at `default_rating_w` and the message says so. Above the derated rating the
-        finding is a warning; above the rating itself, an error.
+        finding is a warning; above the rating itself, an error. A stage with an op-amp
+        that has no negative feedback at DC has no linear operating point, and the rule
+        says it could not check.
 
     Why it matters:
         A resistor run near its rating runs hot: its value drifts with temperature
@@ -44,6 +47,13 @@ def resistor_power(view):
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     derating = settings["derating"]
+    unlinear = [o.ref for o in stage.opamps if figures.loops[o.ref].feedback != "negative"]
+    if unlinear and stage.resistors():
+        yield view.cannot_check("the resistors' dissipation",
+                                f"{', '.join(unlinear)} {'has' if len(unlinear) == 1 else 'have'}"
+                                " no negative feedback at DC, so the stage has no linear"
+                                " operating point to read the voltages from")
+        return
     for resistor in stage.resistors():
         across = figures.difference_range(resistor.net_a, resistor.net_b)
         volts = max(abs(across.low), abs(across.high))
@@ -51,7 +61,7 @@ def resistor_power(view):
         rated = resistor.power_rating_w is not None
         rating = resistor.power_rating_w if rated else settings["default_rating_w"]
         allowed = rating * derating
-        if power <= allowed:
+        if within(power, allowed):
             continue
         severity = Severity.ERROR if power > rating else Severity.WARNING
         written = (f"its {format_si(rating, 'W')} rating" if rated else

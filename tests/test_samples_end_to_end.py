@@ -35,6 +35,7 @@ SHOWN_BY = {
     "integrator-drift": "autosampler-flow",
     "floating-input": "hydrophone-gain",
     "common-mode-range": "groundwater-buffer",
+    "swapped-inputs": "staff-gauge-gain",
 }
 GOOD_STAGES = ("water-temp-gain", "leaf-wetness-buffer", "leaf-wetness-scale")
 
