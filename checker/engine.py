@@ -22,7 +22,8 @@ from types import ModuleType
 
 from checker.analysis import AnalysisOptions, Figures, analyse
 from checker.analysis.mna import SingularCircuit
-from checker.findings import Finding, Severity, Suggestion
+from checker.changes import apply_changes
+from checker.findings import Finding, FixCheck, Severity, Suggestion
 from checker.model import Origin, Stage
 from checker.records import Verdict
 from checker.requirements import judge_requirements
@@ -165,6 +166,7 @@ class StageView:
     settings: dict[str, float]
     siblings: dict[str, Figures] = field(default_factory=dict)  # other stages of the file
     verdicts: dict[str, Verdict] = field(default_factory=dict)  # by requirement keyword
+    fixes_wanted: bool = True  # False while the engine re-checks a fix's copy
 
     def reanalyse(self, stage: Stage, **options) -> Figures:
         """Figures of a modified copy of the stage (to verify a suggested fix), with the
@@ -178,8 +180,21 @@ class StageView:
     def finding(self, message: str, at: Origin | None = None, *, elements=(),
                 severity: Severity | None = None, measured: float | None = None,
                 limit: float | None = None, unit: str | None = None,
-                suggestion: Suggestion | None = None, **details) -> Finding:
+                suggestion=None, **details) -> Finding:
+        """A finding of this rule. ``suggestion`` is a Suggestion, a list of alternative
+        Suggestions (the engine offers the first whose re-check is clean), or a
+        function returning either, called only when fixes are wanted (a re-check of a
+        fix's copy reads the findings alone)."""
         origin = at or self.stage.origin
+        if callable(suggestion):
+            suggestion = suggestion() if self.fixes_wanted else None
+        elif not self.fixes_wanted:
+            suggestion = None
+        if isinstance(suggestion, (list, tuple)):
+            alternatives = [s for s in suggestion if s is not None]
+            suggestion = alternatives[0] if alternatives else None
+            if len(alternatives) > 1:
+                details["alternatives"] = alternatives[1:]
         return Finding(rule=self.rule.id, severity=severity or self.rule.severity,
                        message=message, path=origin.path, line=origin.line,
                        column=origin.column, stage=self.stage.name,
@@ -294,10 +309,12 @@ def _failure(stage: Stage, what: str, error: Exception) -> Finding:
 
 def check_stage(stage: Stage, figures: Figures, rules: list[Rule], options: RunOptions,
                 siblings: dict[str, Figures] | None = None,
-                catalogue: dict[str, Rule] | None = None) -> StageCheck:
+                catalogue: dict[str, Rule] | None = None, fixes: bool = True) -> StageCheck:
     """Judge the stage's requirements, run each rule, then answer every requirement that
     is not met: by the findings of the rules that name its cause, else by a finding of
-    its own. A failing rule becomes a finding, never a crash."""
+    its own. Every fix that proposes changes is then applied to a copy of the stage and
+    re-checked by every rule (``fixes`` False: no fixes, for such a re-check). A failing
+    rule becomes a finding, never a crash."""
     results = _structural_findings(stage, figures)
     ran = {item.id for item in rules}
     verdicts: list[Verdict] = []
@@ -311,7 +328,7 @@ def check_stage(stage: Stage, figures: Figures, rules: list[Rule], options: RunO
     for item in rules:
         settings = dict(item.settings)
         settings.update(options.settings.get(item.id, {}))
-        view = StageView(stage, figures, item, settings, siblings or {}, by_keyword)
+        view = StageView(stage, figures, item, settings, siblings or {}, by_keyword, fixes)
         severity = options.severities.get(item.id)
         try:
             for finding in item.check(view) or ():
@@ -326,7 +343,104 @@ def check_stage(stage: Stage, figures: Figures, rules: list[Rule], options: RunO
     verdicts, answered = _answer_verdicts(stage, verdicts, results, options)
     results = apply_waivers(stage, results + answered, ran | {f.rule for f in answered},
                             options.known_rules | ran)
+    if fixes:
+        recheck = _Recheck(stage, rules, options, siblings or {}, catalogue, results, verdicts)
+        results = [recheck.verified(finding) for finding in results]
     return StageCheck(sorted(results, key=Finding.sort_key), verdicts)
+
+
+# Engine bookkeeping that a fix's copy may show without the fix bringing in a problem.
+_BOOKKEEPING = {"waiver-stale", "waiver-invalid", "baseline-stale", REQUIREMENT_UNCHECKED}
+
+
+def _key(finding: Finding) -> tuple:
+    return (finding.rule, finding.elements)
+
+
+def _label(finding: Finding) -> str:
+    where = f" ({', '.join(finding.elements)})" if finding.elements else ""
+    return f"{finding.rule}{where}"
+
+
+class _Recheck:
+    """Each fix's changes applied to a copy of the stage and the copy checked by every
+    selected rule, its requirements judged again: what the fix clears, meets, breaks and
+    brings in."""
+
+    def __init__(self, stage, rules, options, siblings, catalogue, findings, verdicts):
+        self.stage, self.rules, self.options = stage, rules, options
+        self.siblings, self.catalogue = siblings, catalogue
+        self.before = {_key(f): f for f in findings}
+        self.verdicts = {v.requirement: v for v in verdicts}
+
+    def verified(self, finding: Finding) -> Finding:
+        if finding.suggestion is None:
+            return finding
+        alternatives = [finding.suggestion] + list(finding.details.get("alternatives", ()))
+        details = {k: v for k, v in finding.details.items() if k != "alternatives"}
+        checked = [self._checked(finding, s) for s in alternatives]
+        chosen = _choose(checked)
+        return replace(finding, suggestion=chosen, details=details)
+
+    def _checked(self, finding: Finding, suggestion: Suggestion) -> Suggestion:
+        if not suggestion.changes:
+            return suggestion
+        try:
+            copy = apply_changes(self.stage, suggestion.changes)
+            figures = analyse(copy, self.options.analysis)
+            after = check_stage(copy, figures, self.rules, self.options, self.siblings,
+                                self.catalogue, fixes=False)
+        except Exception as error:  # a fix's copy that cannot be checked is no fix
+            check = FixCheck(clears=False, introduces=(
+                f"a copy that cannot be checked ({type(error).__name__}: {error})",),
+                introduces_error=True)
+            return replace(suggestion, check=check, withheld=True)
+        check = self._compare(finding, after)
+        return replace(suggestion, check=check, withheld=check.introduces_error)
+
+    def _compare(self, finding: Finding, after: StageCheck) -> FixCheck:
+        now = {}
+        for item in after.findings:
+            if item.severity >= Severity.WARNING and item.rule not in _BOOKKEEPING:
+                now[_key(item)] = item
+        target = now.get(_key(finding))
+        clears = target is None or target.severity < finding.severity
+        introduced = [item for key, item in now.items()
+                      if key not in self.before or item.severity > self.before[key].severity]
+        cleared = [self.before[key] for key in self.before
+                   if key != _key(finding) and key not in now
+                   and self.before[key].severity >= Severity.WARNING
+                   and self.before[key].rule not in _BOOKKEEPING]
+        verdicts = {v.requirement: v for v in after.verdicts}
+        meets = tuple(k for k, v in self.verdicts.items()
+                      if not v.met and k in verdicts and verdicts[k].met)
+        breaks = tuple(k for k, v in self.verdicts.items()
+                       if v.met and k in verdicts and verdicts[k].not_met)
+        return FixCheck(
+            clears=clears,
+            introduces=tuple(f"{item.severity.label} {_label(item)}: {_short(item.message)}"
+                             for item in sorted(introduced, key=Finding.sort_key)),
+            introduces_error=any(item.severity >= Severity.ERROR for item in introduced)
+            or bool(breaks),
+            clears_also=tuple(_label(item) for item in sorted(cleared, key=Finding.sort_key)),
+            meets=meets, breaks=breaks)
+
+
+def _short(message: str, limit: int = 110) -> str:
+    return message if len(message) <= limit else message[:limit - 1].rstrip() + "…"
+
+
+def _choose(checked: list[Suggestion]) -> Suggestion:
+    """The first alternative whose re-check clears the finding and brings in nothing; else
+    the first that brings in no error; else the first (withheld, saying why)."""
+    def clean(s: Suggestion) -> bool:
+        return s.check is None or (s.check.clears and not s.check.introduces)
+
+    for test in (clean, lambda s: not s.withheld):
+        for suggestion in checked:
+            if test(suggestion):
+                return suggestion
+    return checked[0]
 
 
 def claimed(finding: Finding) -> tuple[str, ...]:

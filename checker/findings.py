@@ -26,13 +26,48 @@ class Severity(enum.IntEnum):
 
 
 @dataclass(frozen=True)
+class FixCheck:
+    """What re-checking a fix's changes with every rule found: whether the finding it
+    was proposed for is gone, and what else it changes."""
+
+    clears: bool  # the finding it was proposed for is gone
+    introduces: tuple[str, ...] = ()  # new findings: "warning bandwidth (U1): ..."
+    introduces_error: bool = False
+    clears_also: tuple[str, ...] = ()  # other findings it clears: "rule (elements)"
+    meets: tuple[str, ...] = ()  # requirements not met before and met with it
+    breaks: tuple[str, ...] = ()  # requirements met before and not with it
+
+    def summary(self) -> str:
+        """One line for a report: 're-checked with every rule: clears it; ...'."""
+        parts = ["clears it" if self.clears else "does not clear it on its own"]
+        if self.meets:
+            parts.append("meets " + ", ".join(self.meets))
+        if self.clears_also:
+            parts.append("also clears " + ", ".join(self.clears_also))
+        if self.breaks:
+            parts.append("breaks " + ", ".join(self.breaks))
+        parts.append("brings in " + "; ".join(self.introduces) if self.introduces
+                     else "brings in nothing new")
+        return "re-checked with every rule: " + "; ".join(parts)
+
+
+@dataclass(frozen=True)
 class Suggestion:
-    """A computed fix: what to change, and the value to change it to where there is one."""
+    """A computed fix: what to change, and the value to change it to where there is one.
+
+    ``changes`` are the edits it proposes, as records (checker/changes.py) the engine
+    applies to a copy of the stage and re-checks with every rule; ``check`` is what that
+    found. A fix whose re-check brings in a new error is ``withheld``: reported as
+    such, not offered as it is. Advice with no changes (choose a comparator part) is
+    not re-checked."""
 
     text: str
     value: float | None = None
     unit: str | None = None
     element: str | None = None
+    changes: tuple = ()
+    check: FixCheck | None = None
+    withheld: bool = False
 
 
 @dataclass(frozen=True)

@@ -2,11 +2,10 @@
 
 from __future__ import annotations
 
-from dataclasses import replace
-
 from checker.analysis.figures import signed_gain
 from checker.analysis.mna import SingularCircuit
 from checker.analysis.signal import stage_signals
+from checker.changes import SwapInputs, apply_changes
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.rules._feedback import CLOSED_LOOP_REQUIREMENTS, looks_swapped
@@ -57,21 +56,15 @@ def swapped_inputs(view):
             f" positive feedback), but {why}: in+ ({opamp.in_pos}) and in- ({opamp.in_neg})"
             " look swapped; the output will latch at a rail",
             opamp.origin, elements=(opamp.ref,), measured=loop.loop_gain_dc, limit=1.0,
-            unit="V/V", suggestion=_swap(view, opamp),
+            unit="V/V", suggestion=lambda: _swap(view, opamp),
             **view.answers(*CLOSED_LOOP_REQUIREMENTS))
-
-
-def swapped(stage, ref: str):
-    """The stage with op-amp ``ref``'s input pins exchanged."""
-    opamps = tuple(replace(o, in_pos=o.in_neg, in_neg=o.in_pos) if o.ref == ref else o
-                   for o in stage.opamps)
-    return replace(stage, opamps=opamps)
 
 
 def _swap(view, opamp) -> Suggestion:
     text = (f"swap {opamp.ref}'s inputs: in+ to {opamp.in_neg}, in- to {opamp.in_pos}")
+    changes = (SwapInputs(opamp.ref),)
     try:
-        result = view.reanalyse(swapped(view.stage, opamp.ref))
+        result = view.reanalyse(apply_changes(view.stage, changes))
         loop = result.loops[opamp.ref]
         if not loop.negative_somewhere:
             return Suggestion(text + "; solved, the loop still has no negative feedback:"
@@ -84,4 +77,5 @@ def _swap(view, opamp) -> Suggestion:
                 text += f" (required {view.stage.require.gain:.4g})"
     except SingularCircuit:
         text += "; the swapped stage cannot be solved: check the wiring by hand"
-    return Suggestion(text, element=opamp.ref)
+        return Suggestion(text, element=opamp.ref)
+    return Suggestion(text, element=opamp.ref, changes=changes)

@@ -250,7 +250,7 @@ def test_several_outputs_in_one_run(project, capsys):
     assert code == 0
     assert out.startswith("a.stage:5:")
     assert json.loads((project / "r.sarif").read_text())["version"] == "2.1.0"
-    assert (project / "r.csv").read_text().splitlines()[0].startswith("path,line,column")
+    assert (project / "r.csv").read_text().splitlines()[0].startswith("record,path,line,column")
     assert json.loads((project / "r.json").read_text())["format"] == "ampcheck-report"
 
 

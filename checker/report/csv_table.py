@@ -1,4 +1,9 @@
-"""Every finding as a CSV row, for spreadsheets."""
+"""Every finding and every requirement verdict as a CSV row, for spreadsheets.
+
+The first column says which a row is: ``finding`` (severity in `severity`, the rule in
+`rule`) or ``requirement`` (its status, met / not-met / could-not-check, in `severity`,
+its keyword in `rule`, what was measured in `message`).
+"""
 
 from __future__ import annotations
 
@@ -6,8 +11,13 @@ import csv
 
 from checker.report import Writer as BaseWriter
 
-COLUMNS = ["path", "line", "column", "severity", "rule", "stage", "elements", "message",
-           "measured", "limit", "unit", "suggestion", "suggested_value", "waived", "baselined"]
+COLUMNS = ["record", "path", "line", "column", "severity", "rule", "stage", "elements",
+           "message", "measured", "limit", "unit", "suggestion", "suggested_value",
+           "fix_check", "fix_withheld", "waived", "baselined"]
+
+
+def _number(value) -> str:
+    return "" if value is None else repr(value)
 
 
 class Writer(BaseWriter):
@@ -18,11 +28,19 @@ class Writer(BaseWriter):
 
     def add(self, result) -> None:
         for f in result.findings():
+            s = f.suggestion
             self.rows.writerow([
-                f.path, f.line, f.column, f.severity.label, f.rule, f.stage or "",
-                " ".join(f.elements), f.message,
-                "" if f.measured is None else repr(f.measured),
-                "" if f.limit is None else repr(f.limit), f.unit or "",
-                f.suggestion.text if f.suggestion else "",
-                "" if not f.suggestion or f.suggestion.value is None else repr(f.suggestion.value),
-                f.waiver or "", "yes" if f.baselined else ""])
+                "finding", f.path, f.line, f.column, f.severity.label, f.rule, f.stage or "",
+                " ".join(f.elements), f.message, _number(f.measured), _number(f.limit),
+                f.unit or "", s.text if s else "", _number(s.value) if s else "",
+                s.check.summary() if s and s.check else "",
+                "yes" if s and s.withheld else "", f.waiver or "",
+                "yes" if f.baselined else ""])
+        for stage in result.stages:
+            for v in stage.verdicts:
+                statement = v.statement + (f"; {v.reason}" if v.reason else "")
+                self.rows.writerow([
+                    "requirement", result.path, v.line, v.column, v.status, v.requirement,
+                    stage.name, " ".join(v.explained_by), f"{v.required}: {statement}",
+                    _number(v.measured), _number(v.limit), v.unit or "", "", "", "", "", "",
+                    ""])

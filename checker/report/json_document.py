@@ -18,11 +18,29 @@ FORMAT_NAME = "ampcheck-report"
 FORMAT_VERSION = 2
 
 
+def change_dict(change) -> dict:
+    """A proposed change as a plain object: its kind (the record's name, in kebab case)
+    and its fields."""
+    kind = "".join("-" + c.lower() if c.isupper() else c for c in type(change).__name__)
+    fields = {k: (list(v) if isinstance(v, tuple) else v) for k, v in vars(change).items()}
+    return {"kind": kind.lstrip("-"), **fields}
+
+
+def check_dict(check) -> dict | None:
+    if check is None:
+        return None
+    return {"clears": check.clears, "introduces": list(check.introduces),
+            "introduces_error": check.introduces_error, "clears_also": list(check.clears_also),
+            "meets": list(check.meets), "breaks": list(check.breaks)}
+
+
 def finding_dict(finding: Finding) -> dict:
     suggestion = None
     if finding.suggestion is not None:
-        suggestion = {"text": finding.suggestion.text, "value": finding.suggestion.value,
-                      "unit": finding.suggestion.unit, "element": finding.suggestion.element}
+        s = finding.suggestion
+        suggestion = {"text": s.text, "value": s.value, "unit": s.unit, "element": s.element,
+                      "changes": [change_dict(c) for c in s.changes],
+                      "check": check_dict(s.check), "withheld": s.withheld}
     return {"rule": finding.rule, "severity": finding.severity.label,
             "message": finding.message, "stage": finding.stage,
             "elements": list(finding.elements), "path": finding.path, "line": finding.line,
@@ -107,11 +125,27 @@ _FINDING = {
         "waived": {"type": ["string", "null"]},
         "baselined": {"type": "boolean"},
         "suggestion": {"oneOf": [{"type": "null"}, {
-            "type": "object", "required": ["text", "value", "unit", "element"],
+            "type": "object",
+            "required": ["text", "value", "unit", "element", "changes", "check", "withheld"],
             "additionalProperties": False,
             "properties": {"text": {"type": "string"}, "value": _NUMBER,
                            "unit": {"type": ["string", "null"]},
-                           "element": {"type": ["string", "null"]}}}]},
+                           "element": {"type": ["string", "null"]},
+                           "changes": {"type": "array", "items": {
+                               "type": "object", "required": ["kind"],
+                               "properties": {"kind": {"type": "string"}}}},
+                           "check": {"oneOf": [{"type": "null"}, {
+                               "type": "object",
+                               "required": ["clears", "introduces", "introduces_error",
+                                            "clears_also", "meets", "breaks"],
+                               "additionalProperties": False,
+                               "properties": {
+                                   "clears": {"type": "boolean"},
+                                   "introduces_error": {"type": "boolean"},
+                                   **{k: {"type": "array", "items": {"type": "string"}}
+                                      for k in ("introduces", "clears_also", "meets",
+                                                "breaks")}}}]},
+                           "withheld": {"type": "boolean"}}}]},
     },
 }
 STAGE_FIGURES = ("gain", "gain_from_net", "input_resistance", "output_resistance", "bandwidth",

@@ -62,7 +62,13 @@ def result_entry(finding: Finding, root: str, index: dict[str, int]) -> dict:
     uri = os.path.relpath(os.path.abspath(finding.path), root).replace(os.sep, "/")
     text = finding.message
     if finding.suggestion is not None:
-        text += f" Fix: {finding.suggestion.text}."
+        if finding.suggestion.withheld:
+            text += (f" No safe fix: the computed one ({finding.suggestion.text}) brings in an"
+                     " error when re-checked.")
+        else:
+            text += f" Fix: {finding.suggestion.text}."
+        if finding.suggestion.check is not None:
+            text += f" ({finding.suggestion.check.summary()}.)"
     item = {
         "ruleId": finding.rule, "ruleIndex": index[finding.rule],
         "level": LEVEL[finding.severity], "message": {"text": text},

@@ -95,9 +95,17 @@ def _finding(console: Console, finding: Finding) -> None:
         console.print(Text(f"      measured {_value(finding.measured, finding.unit)},"
                            f" limit {_value(finding.limit, finding.unit)}", style="dim"))
     if finding.suggestion is not None:
-        line = Text("      fix: ", style="green")
-        line.append(finding.suggestion.text)
+        suggestion = finding.suggestion
+        if suggestion.withheld:
+            line = Text("      no safe fix: ", style="yellow")
+            line.append(f"the computed one ({suggestion.text}) brings in an error when"
+                        " re-checked, so it is not offered as it is")
+        else:
+            line = Text("      fix: ", style="green")
+            line.append(suggestion.text)
         console.print(line)
+        if suggestion.check is not None:
+            console.print(Text("      " + suggestion.check.summary(), style="dim"))
 
 
 VERDICT_MARK = {MET: ("✓", "green"), NOT_MET: ("✗", "bold red")}
