@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, replace
 
-from checker.model import Passive, Stage
+from checker.model import OpAmpPart, Passive, Stage
 
 
 @dataclass(frozen=True)
@@ -45,6 +45,7 @@ class AddPassive:
     net_a: str
     net_b: str
     value: float
+    tolerance: float | None = None  # fraction; None: unstated
 
 
 @dataclass(frozen=True)
@@ -78,6 +79,14 @@ class SetPartParameter:
 
 
 @dataclass(frozen=True)
+class UsePart:
+    """An op-amp given another part (a built-in class or one from a library)."""
+
+    opamp: str
+    part: OpAmpPart
+
+
+@dataclass(frozen=True)
 class IsolateOutput:
     """A resistor between ``net`` and a new net that takes every load on ``net``; the
     feedback stays on ``net`` (taken before the resistor)."""
@@ -98,7 +107,7 @@ class SeriesAtInput:
 
 
 Change = (SetValue | SetTolerance | SetPowerRating | AddPassive | RemovePassive | SwapInputs
-          | SetLoad | SetPartParameter | IsolateOutput | SeriesAtInput)
+          | SetLoad | SetPartParameter | UsePart | IsolateOutput | SeriesAtInput)
 
 
 def isolated_net(net: str) -> str:
@@ -139,7 +148,8 @@ def _apply(stage: Stage, change) -> Stage:
                          if p.ref == change.element else p)
     if isinstance(change, AddPassive):
         added = Passive(ref=change.ref, kind=change.kind, net_a=change.net_a,
-                        net_b=change.net_b, value=change.value, origin=stage.origin)
+                        net_b=change.net_b, value=change.value, origin=stage.origin,
+                        tolerance=change.tolerance)
         return replace(stage, passives=stage.passives + (added,))
     if isinstance(change, RemovePassive):
         return replace(stage, passives=tuple(p for p in stage.passives
@@ -154,6 +164,8 @@ def _apply(stage: Stage, change) -> Stage:
     if isinstance(change, SetPartParameter):
         return _opamps(stage, change.opamp, lambda o: replace(
             o, part=replace(o.part, **{change.attribute: change.value})))
+    if isinstance(change, UsePart):
+        return _opamps(stage, change.opamp, lambda o: replace(o, part=change.part))
     if isinstance(change, IsolateOutput):
         target = isolated_net(change.net)
         loads = tuple(replace(load, net=target) if load.net == change.net else load
@@ -169,6 +181,14 @@ def _apply(stage: Stage, change) -> Stage:
                         value=change.ohms, origin=opamp.origin)
         return replace(stage, passives=stage.passives + (added,))
     raise TypeError(f"not a stage change: {change!r}")
+
+
+def like_tolerance(stage: Stage, kind: str = "resistor") -> float | None:
+    """The tolerance to give a part a fix adds: the tightest of the stage's own parts of
+    that kind (a designer buys the new one from the same reel), None where none states
+    one."""
+    stated = [p.tolerance for p in stage.passives if p.kind == kind and p.tolerance]
+    return min(stated) if stated else None
 
 
 def free_designator(stage: Stage, letter: str, taken: set[str] = frozenset()) -> str:

@@ -9,9 +9,10 @@ import numpy as np
 
 from checker.analysis.figures import grid_upper_edges
 from checker.analysis.updates import source_gain_candidates
+from checker.changes import SetPartParameter
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
-from checker.limits import below, within
+from checker.limits import below
 from checker.preferred import at_least, ladder, smallest_passing
 from checker.units import format_si
 
@@ -308,7 +309,8 @@ def _short_bandwidth(view, sf, ideal, opamp, measured, required, severity, reaso
                 text += (f"; for the gain at {format_si(source.band_high_hz, 'Hz')} within"
                          f" {format_si(_gain_error_limit(view)[0], '%')} of the ideal, at"
                          f" least {format_si(flat, 'Hz')}")
-        suggestion = Suggestion(text, value=chosen, unit="Hz", element=opamp.ref)
+        suggestion = Suggestion(text, value=chosen, unit="Hz", element=opamp.ref,
+                                changes=(SetPartParameter(opamp.ref, "gbw_hz", chosen),))
     return view.finding(message, opamp.origin, elements=(opamp.ref, source.name),
                         severity=severity, measured=measured, limit=required, unit="Hz",
                         suggestion=suggestion, **details, **view.answers("bandwidth"))
@@ -372,7 +374,8 @@ def _gain_error(view, sf, ideal, opamp):
         suggestion = Suggestion(
             f"choose a part for {opamp.ref} with a GBW of at least {format_si(chosen, 'Hz')}"
             f" (solved error with it within {format_si(limit, '%')}), or lower the noise"
-            " gain", value=chosen, unit="Hz", element=opamp.ref)
+            " gain", value=chosen, unit="Hz", element=opamp.ref,
+            changes=(SetPartParameter(opamp.ref, "gbw_hz", chosen),))
     yield view.finding(message, opamp.origin, elements=(opamp.ref, source.name),
                        measured=error, limit=limit, unit="%", suggestion=suggestion,
                        loop_gain_at_top=loop_gain, frequency_hz=top)

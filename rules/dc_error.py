@@ -2,13 +2,12 @@
 
 from __future__ import annotations
 
-from dataclasses import replace
 
 from checker.analysis.dc_error import DcErrorTerms, dc_error_terms
+from checker.changes import SeriesAtInput, apply_changes
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.limits import within
-from checker.model import Passive
 from checker.preferred import nearest, series_for_tolerance
 from checker.units import format_si
 
@@ -96,7 +95,7 @@ def dc_error(view):
     yield view.finding(message, worst.opamp.origin,
                        elements=tuple(t.opamp.ref for t in terms if t.total > 0),
                        severity=severity, measured=total, limit=limit, unit="V",
-                       suggestion=_suggest(view, worst, total, limit),
+                       suggestion=lambda: _suggest(view, worst, total, limit),
                        **{f"{t.opamp.ref}_{k}": v for t in terms for k, v in _details(t).items()},
                        **view.answers("dc-error"))
 
@@ -198,7 +197,8 @@ def _balance(view, worst: DcErrorTerms, total: float, limit: float) -> Suggestio
                                   f" only take the error to {format_si(after, 'V')}")
         text += (f", still above {format_si(limit, 'V')}: also lower the resistances or"
                  " choose a part with less offset")
-    return Suggestion(text, value=value, unit="Ω", element=ref)
+    return Suggestion(text, value=value, unit="Ω", element=ref,
+                      changes=(SeriesAtInput(opamp.ref, ref, value),))
 
 
 def _cancelling(view, opamp, ref: str, start: float, scale: float) -> float:
@@ -227,12 +227,7 @@ def _cancelling(view, opamp, ref: str, start: float, scale: float) -> float:
 def with_series_resistor(stage, opamp_ref: str, ref: str, ohms: float):
     """The stage with op-amp ``opamp_ref``'s non-inverting input moved to a new net that
     reaches its old net through a resistor of ``ohms``."""
-    opamp = next(o for o in stage.opamps if o.ref == opamp_ref)
-    pin = f"{opamp_ref}.in+"
-    opamps = tuple(replace(o, in_pos=pin) if o.ref == opamp_ref else o for o in stage.opamps)
-    added = Passive(ref=ref, kind="resistor", net_a=pin, net_b=opamp.in_pos, value=ohms,
-                    origin=opamp.origin)
-    return replace(stage, opamps=opamps, passives=stage.passives + (added,))
+    return apply_changes(stage, (SeriesAtInput(opamp_ref, ref, ohms),))
 
 
 def _free_designator(stage) -> str:

@@ -7,6 +7,7 @@ import math
 from checker.analysis.signal import stage_signals
 from checker.analysis.spread import SpreadOptions
 from checker.analysis.topology import classify
+from checker.changes import SetTolerance
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.limits import reaches
@@ -108,8 +109,8 @@ def difference_balance(view):
                     " (common practice)")
     yield view.finding(message, amp.origin, elements=(amp.ref,) + tuple(refs),
                        severity=severity, measured=_db(worst.cmrr), limit=limit_db,
-                       unit="dB", suggestion=_suggest(solver, refs, tolerances, limit,
-                                                      options),
+                       unit="dB", suggestion=lambda: _suggest(solver, refs, tolerances, limit,
+                                                              options),
                        cmrr_ratio=worst.cmrr, share_within=share,
                        exact_corners=worst.exact, assumed_tolerance=list(assumed),
                        **view.answers("cmrr"))
@@ -131,7 +132,7 @@ def _suggest(solver, refs, tolerances, limit, options) -> Suggestion:
                     f"use matched {format_si(step, '%')} resistors for {', '.join(changed)}"
                     f"{also}: the solved worst corner then rejects {_db(worst.cmrr):.1f} dB"
                     f" ({worst.cmrr:.3g}), reaching {_db(limit):.1f} dB",
-                    value=step, unit="%")
+                    value=step, unit="%", changes=(SetTolerance(tuple(changed), step),))
     nominal = ("infinite" if math.isinf(solver.nominal_cmrr)
                else f"{_db(solver.nominal_cmrr):.1f} dB")
     return Suggestion(f"even matched 0.1 % resistors do not reach {_db(limit):.1f} dB (nominal"

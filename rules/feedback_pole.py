@@ -8,6 +8,7 @@ from dataclasses import replace
 from checker.analysis.mna import SingularCircuit
 from checker.analysis.topology import classify
 from checker.analysis.updates import margins_with_admittances
+from checker.changes import AddPassive, RemovePassive, SetValue
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.limits import below, reaches
@@ -114,14 +115,25 @@ def _finding(view, opamp, margin, bare_margin, warn):
                f" {format_si(capacitance, 'F')} of capacitance there put a feedback pole at"
                f" {format_si(pole_hz, 'Hz')}, near the {format_si(figures.loops[opamp.ref].crossover_hz, 'Hz')}"
                f" crossover (without that capacitance: {bare_margin:.0f}°)")
-    suggestion = _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn)
+    def suggestion():
+        return _suggest(view, opamp, feedback_resistors, capacitance, warn)
+
     return view.finding(message, where.origin, elements=elements, severity=severity,
                         measured=margin, limit=warn, unit="°",
                         suggestion=suggestion, feedback_pole_hz=pole_hz,
                         topology=topology.name, **view.answers("phase-margin"))
 
 
-def _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn):
+def _capacitor_changes(opamp, present, ref: str, farads: float) -> tuple:
+    """Cf across the feedback path: the capacitor there raised (any second one taken
+    out), or a new one added."""
+    if present:
+        return (SetValue(present[0].ref, farads),) + tuple(RemovePassive(p.ref)
+                                                           for p in present[1:])
+    return (AddPassive(ref, "capacitor", opamp.out, opamp.in_neg, farads),)
+
+
+def _suggest(view, opamp, feedback_resistors, capacitance, warn):
     stage, settings = view.stage, view.settings
     if not feedback_resistors:
         return Suggestion("reduce the resistance at the inverting input or choose a part"
@@ -152,7 +164,8 @@ def _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn):
                 f"{_placing(stage, opamp, chosen, ref)} across {feedback_resistors[0].ref}:"
                 f" Cf >= Rg*Cin/Rf ="
                 f" {format_si(neutral, 'F')}; solved phase margin with it {margin:.0f}°",
-                value=chosen, unit="F", element=ref)
+                value=chosen, unit="F", element=ref,
+                changes=_capacitor_changes(opamp, present, ref, chosen))
     start = max(existing * 1.0001, 0.1e-12)
     values = ladder(start, 10e-6, "E12")
     target = max(settings["target_deg"], warn)
@@ -166,7 +179,7 @@ def _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn):
         f"{_placing(stage, opamp, best, ref)}:"
         f" the smallest E12 value whose solved phase margin reaches {target:.0f}°"
         f" ({margin:.0f}°; bandwidth then {format_si(bandwidth, 'Hz')})",
-        value=best, unit="F", element=ref)
+        value=best, unit="F", element=ref, changes=_capacitor_changes(opamp, present, ref, best))
 
 
 def _ground_resistance(view, opamp, feedback_resistors) -> float | None:

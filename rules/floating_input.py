@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 
+from checker.changes import AddPassive, like_tolerance
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.model import Passive
@@ -45,6 +46,9 @@ def floating_input(view):
         the coupling capacitor `corner_decades` decades below the source's band, and
         otherwise `default_bias_ohm`; rounded up to E24. The rule adds it to a copy
         of the stage and checks with the solver that the input then has a DC path.
+        A resistor that small loads the source; where the re-check with every rule
+        finds that it costs a requirement, ten or a hundred times the value is offered
+        instead (the high-pass corner only moves lower).
 
     Sources:
         Bias current needs a DC return: R. Mancini (ed.), Op Amps for Everyone,
@@ -67,6 +71,7 @@ def floating_input(view):
                 suggestion, details = _feedback_path(view, opamp)
             else:
                 suggestion, details = _suggest(view, opamp, net)
+                suggestion = [suggestion] + _larger(view, opamp, net, suggestion)
             yield view.finding(
                 f"{opamp.ref} {pin} (net {net}) has no DC path to a defined potential:"
                 f" only capacitors or op-amp inputs touch it, so its bias current charges"
@@ -99,10 +104,21 @@ def _feedback_path(view, opamp) -> tuple[Suggestion, dict]:
     text = (f"put {format_si(ohms, 'Ω')} (E24) across the feedback capacitor, from"
             f" {opamp.in_neg} to {opamp.out}: {reason}; {check}")
     details = {"bias": {added.ref: {"nets": list(added.nets), "ohms": ohms}}}
-    return Suggestion(text, value=ohms, unit="Ω", element=added.ref), details
+    return Suggestion(text, value=ohms, unit="Ω", element=added.ref,
+                      changes=(_adding(added, stage),)), details
 
 
-def _suggest(view, opamp, net: str) -> tuple[Suggestion, dict]:
+def _larger(view, opamp, net: str, first: Suggestion) -> list[Suggestion]:
+    """Bias resistors ten and a hundred times larger, for the engine to offer where the
+    first loads the source enough to cost a requirement (the corner only moves lower)."""
+    return [_suggest(view, opamp, net, at_least(first.value * factor, "E24"),
+                     f"{factor}× the smallest value that fits, so it loads the source"
+                     f" {factor}× less")[0]
+            for factor in (10, 100) if first.value * factor <= 1e9]
+
+
+def _suggest(view, opamp, net: str, chosen: float | None = None, why: str | None = None
+             ) -> tuple[Suggestion, dict]:
     stage, settings = view.stage, view.settings
     reasons = []
     candidates = []
@@ -122,7 +138,7 @@ def _suggest(view, opamp, net: str) -> tuple[Suggestion, dict]:
     if not candidates:
         candidates.append(settings["default_bias_ohm"])
         reasons.append(f"{format_si(candidates[-1], 'Ω')} (the default)")
-    ohms = at_least(max(candidates), "E24")
+    ohms = at_least(max(candidates), "E24") if chosen is None else chosen
     rails = stage.rail_voltages
     low, high = rails[opamp.v_neg], rails[opamp.v_pos]
     middle = (low + high) / 2
@@ -152,10 +168,17 @@ def _suggest(view, opamp, net: str) -> tuple[Suggestion, dict]:
     still = solved.floating_nets
     check = ("the solver then finds a DC path" if net not in still else
              "the solver still finds no DC path: look for another break")
+    because = why or f"the largest of {', '.join(reasons)}, rounded up"
     text = (f"add a bias resistor: {where}, biasing the input at {format_si(level, 'V')};"
-            f" the value is the largest of {', '.join(reasons)}, rounded up; {check}")
+            f" the value is {because}; {check}")
     details = {"bias": {p.ref: {"nets": list(p.nets), "ohms": p.value} for p in added}}
-    return Suggestion(text, value=ohms, unit="Ω", element=added[0].ref), details
+    return Suggestion(text, value=ohms, unit="Ω", element=added[0].ref,
+                      changes=tuple(_adding(p, stage) for p in added)), details
+
+
+def _adding(passive: Passive, stage) -> AddPassive:
+    return AddPassive(passive.ref, passive.kind, passive.net_a, passive.net_b, passive.value,
+                      like_tolerance(stage))
 
 
 def _resistor(ref: str, net_a: str, net_b: str, ohms: float, stage) -> Passive:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from checker.analysis.signal import stage_signals
 from checker.analysis.spread import SpreadOptions
+from checker.changes import SetTolerance
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.limits import within
@@ -89,7 +90,7 @@ def gain_tolerance(view):
                     " (common practice)")
     yield view.finding(message, stage.element(origin).origin, elements=tuple(refs),
                        measured=worst.error, limit=band, unit="%",
-                       suggestion=_suggest(spread, required, band, options),
+                       suggestion=lambda: _suggest(spread, required, band, options),
                        nominal_gain=spread.nominal, worst_gain=worst.gain,
                        share_within=share, exact_corners=worst.exact,
                        assumed_tolerance=list(spread.assumed),
@@ -118,7 +119,7 @@ def _suggest(spread, required, band, options) -> Suggestion:
                 f"use {_percent(step)} resistors for {', '.join(changed)}{also}: the solved"
                 f" worst case is then {worst.gain:.4g} ({_percent(worst.error)} from"
                 f" {required:.4g}, within ±{_percent(band)})",
-                value=step, unit="%")
+                value=step, unit="%", changes=(SetTolerance(tuple(changed), step),))
     nominal_error = abs(spread.nominal / required - 1)
     return Suggestion(f"even 0.1 % resistors do not hold the gain within ±{_percent(band)}:"
                       f" the nominal gain {spread.nominal:.4g} is already"

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from checker.analysis.figures import signed_gain
 from checker.analysis.topology import classify
+from checker.changes import AddPassive, RemovePassive, SetValue, free_designator
 from checker.engine import rule
 from checker.limits import below, within
 from checker.requirements import DEFAULT_GAIN_TOLERANCE
@@ -36,11 +37,13 @@ def input_resistance(view):
     How the fix is computed:
         For an inverting or summing input the input resistor is raised to the value
         that reaches the limit (next E96 or E24 value up, by its tolerance) and the
-        feedback resistor is scaled by the same factor to keep the gain. When that
-        feedback resistor would exceed `max_feedback_ohm`, a T-network keeps the
+        feedback resistor is scaled by the same factor to keep the gain, while that
+        feedback resistor stays within `max_feedback_ohm`. A T-network keeps the
         resistors moderate: R2 = R3 = the old feedback resistor and R4 from
-        |G| = (R2 + R3 + R2*R3/R4)/R1. Otherwise, or for other topologies, a
-        non-inverting input or a follower buffers the source.
+        |G| = (R2 + R3 + R2*R3/R4)/R1. A non-inverting input or a follower buffers the
+        source. Each is re-checked with every rule, and the first that clears the
+        finding and brings in nothing is offered (a T-network raises the noise gain,
+        which can cost bandwidth the band needs).
 
     Sources:
         Voltage divider loss 20 log10(Zin/(Zs + Zin)) and the ten-times rule: common
@@ -80,8 +83,9 @@ def input_resistance(view):
             message += f"; loading loses {loss_percent:.1f} % ({loss_db:.2f} dB) of its signal"
         yield view.finding(message, source.origin, elements=(source.name,), severity=severity,
                            measured=zin, limit=max(item[0] for item in failing), unit="Ω",
-                           suggestion=_suggest(view, source, zin,
-                                               max(item[0] for item in failing), settings),
+                           suggestion=lambda: _suggest(view, source, zin,
+                                                       max(item[0] for item in failing),
+                                                       settings),
                            loss_db=loss_db, loss_percent=loss_percent, **answers)
 
 
@@ -97,8 +101,13 @@ def _loading_costs_the_gain(view, sf) -> bool:
     return within(abs(from_net / stage.require.gain - 1), band)
 
 
-def _suggest(view, source, zin, limit, settings) -> Suggestion:
+def _suggest(view, source, zin, limit, settings) -> list[Suggestion]:
+    """Alternatives, most direct first (the engine offers the first whose re-check with
+    every rule is clean): the input and feedback resistors raised together, a
+    T-network where the feedback resistor would grow too large, a buffer."""
     stage = view.stage
+    buffer = Suggestion(f"buffer {source.name} with a follower, or take it into a"
+                        " non-inverting input, whose input resistance is the op-amp's own")
     for opamp in stage.opamps:
         topology = classify(stage, opamp)
         if topology.name not in ("inverting", "summing", "T-network inverting"):
@@ -112,23 +121,41 @@ def _suggest(view, source, zin, limit, settings) -> Suggestion:
         r1, rf = inputs[0], feedback[0]
         series = series_for_tolerance(r1.tolerance)
         new_r1 = at_least(r1.value * limit / zin * 1.0001, series)
-        gain = rf.value / r1.value
-        new_rf = nearest(rf.value * new_r1 / r1.value, series_for_tolerance(rf.tolerance))
+        # The gain to keep, from the source's side: the stated one, else the drawn ratio
+        # Rf/R1. With the source's impedance Rs in series with R1, an inverting input
+        # gives |G| = Rf/(R1 + Rs) (ideal op-amp; the re-check solves it exactly).
+        wanted = abs(stage.require.gain) if stage.require.gain else rf.value / r1.value
+        rs = source.impedance_ohm or 0.0
+        gain = wanted * (new_r1 + rs) / new_r1
+        new_rf = nearest(wanted * (new_r1 + rs), series_for_tolerance(rf.tolerance))
+        found = []
         if new_rf <= settings["max_feedback_ohm"]:
-            return Suggestion(f"raise {r1.ref} to {format_si(new_r1, 'Ω')} and {rf.ref} to"
-                              f" {format_si(new_rf, 'Ω')} ({series}); gain stays"
-                              f" {-new_rf / new_r1:.3g}", value=new_r1, unit="Ω",
-                              element=r1.ref)
+            found.append(Suggestion(
+                f"raise {r1.ref} to {format_si(new_r1, 'Ω')} and {rf.ref} to"
+                f" {format_si(new_rf, 'Ω')} ({series}); the gain from the source is then"
+                f" about {-new_rf / (new_r1 + rs):.3g}",
+                value=new_r1, unit="Ω", element=r1.ref,
+                changes=(SetValue(r1.ref, new_r1), SetValue(rf.ref, new_rf))))
         r = rf.value
         denominator = gain * new_r1 - 2 * r
-        if denominator > 0:
+        if denominator > 0 and not topology.tee_elements:
             r4 = nearest(r * r / denominator, "E96")
-            return Suggestion(
+            tee = f"{opamp.in_neg}.tee"
+            refs = []
+            for _ in range(3):
+                refs.append(free_designator(stage, "R", set(refs) - {rf.ref}))
+            refs = [rf.ref] + refs[:2]  # the feedback resistor becomes the tee's first arm
+            found.append(Suggestion(
                 f"raise {r1.ref} to {format_si(new_r1, 'Ω')} and replace {rf.ref} by a"
-                f" T-network: {format_si(r, 'Ω')} from {opamp.in_neg} to a tee,"
-                f" {format_si(r, 'Ω')} from the tee to {opamp.out}, {format_si(r4, 'Ω')} from"
-                f" the tee to ground (gain {-(2 * r + r * r / r4) / new_r1:.3g})",
-                value=new_r1, unit="Ω", element=r1.ref)
-    return Suggestion(f"buffer {source.name} with a follower, or take it into a"
-                      " non-inverting input, whose input resistance is the op-amp's own")
-
+                f" T-network: {rf.ref} {format_si(r, 'Ω')} from {opamp.in_neg} to a tee,"
+                f" {refs[1]} {format_si(r, 'Ω')} from the tee to {opamp.out}, {refs[2]}"
+                f" {format_si(r4, 'Ω')} from the tee to {stage.ground} (gain from the"
+                f" source about {-(2 * r + r * r / r4) / (new_r1 + rs):.3g})",
+                value=new_r1, unit="Ω", element=r1.ref,
+                changes=(SetValue(r1.ref, new_r1), RemovePassive(rf.ref),
+                         AddPassive(rf.ref, "resistor", opamp.in_neg, tee, r, rf.tolerance),
+                         AddPassive(refs[1], "resistor", tee, opamp.out, r, rf.tolerance),
+                         AddPassive(refs[2], "resistor", tee, stage.ground, r4,
+                                    rf.tolerance))))
+        return found + [buffer]
+    return [buffer]

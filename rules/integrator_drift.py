@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 
+from checker.changes import AddPassive, like_tolerance
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.model import Passive
@@ -95,7 +96,7 @@ def _report(view, opamp, capacitors):
                  f" {format_si(rin, 'Ω')}), half the supply span in"
                  f" {format_si(seconds, 's')}")
     yield view.finding(text, where, elements=elements, measured=rate,
-                       unit="V/s", suggestion=_shunt(view, opamp, farads, rin),
+                       unit="V/s", suggestion=lambda: _shunt(view, opamp, farads, rin),
                        input_resistance_ohm=rin, seconds_to_half_span=seconds)
 
 
@@ -131,7 +132,9 @@ def _shunt(view, opamp, farads: float, rin: float) -> Suggestion:
         f" {opamp.out}: corner {format_si(corner, 'Hz')}{note}; solved, the loop then has"
         f" negative feedback at DC and the output spans {format_si(node.low, 'V')} to"
         f" {format_si(node.high, 'V')}, offset and bias errors included",
-        value=chosen, unit="Ω", element=ref)
+        value=chosen, unit="Ω", element=ref,
+        changes=(AddPassive(ref, "resistor", opamp.in_neg, opamp.out, chosen,
+                            like_tolerance(stage)),))
 
 
 def _fits(view, opamp, ref: str, ohms: float):

@@ -9,6 +9,7 @@ import numpy as np
 from checker.analysis.loop import grid_phase_margins
 from checker.analysis.topology import reached_nets
 from checker.analysis.updates import loop_gain_candidates, margins_with_admittances
+from checker.changes import IsolateOutput, SetValue, free_designator
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.limits import below, reaches, within
@@ -161,7 +162,7 @@ def _capacitive_loads(view):
             f" (without the load capacitance {bare_margin:.0f}°)",
             load.origin, elements=(opamp.ref, f"load {load.net}"), severity=severity,
             measured=margin, limit=warn, unit="°",
-            suggestion=_isolation(view, opamp, load, series, warn), load_pole_hz=pole,
+            suggestion=lambda: _isolation(view, opamp, load, series, warn), load_pole_hz=pole,
             **view.answers("phase-margin"))
 
 
@@ -186,7 +187,7 @@ def _isolation(view, opamp, load, series, warn) -> Suggestion:
         return _NO_ISOLATION
     # One copy of the stage with the resistor at the first value; every other value is a
     # rank-one change of it (updates.margins_with_admittances), solved exactly.
-    ref = series.ref if series else "Riso"
+    ref = series.ref if series else free_designator(stage, "R")
     base_stage = (with_resistance(stage, series.ref, values[0]) if series else
                   with_isolation_resistor(stage, opamp.out, values[0], ref))
     base = view.margins_of(base_stage)
@@ -207,13 +208,16 @@ def _isolation(view, opamp, load, series, warn) -> Suggestion:
     if best is None:
         return _NO_ISOLATION
     where = (f"raise {series.ref} to {format_si(best, 'Ω')} (E24)" if series else
-             f"put {format_si(best, 'Ω')} (E24) in series between {opamp.out} and the load")
+             f"put {format_si(best, 'Ω')} ({ref}, E24) in series between {opamp.out} and the"
+             " load")
     text = f"{where}, feedback taken before it: solved phase margin {margin(best):.0f}°"
     if load.resistance_ohm:
         error = best / (best + load.resistance_ohm)
         text += (f"; into the {format_si(load.resistance_ohm, 'Ω')} load it costs"
                  f" {error * 100:.2g} % of DC accuracy")
-    return Suggestion(text, value=best, unit="Ω", element=ref)
+    changes = (SetValue(series.ref, best),) if series else \
+        (IsolateOutput(opamp.out, ref, best),)
+    return Suggestion(text, value=best, unit="Ω", element=ref, changes=changes)
 
 
 def _predicted(figures, resistor, values: list[float], opamp_ref: str,

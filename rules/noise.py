@@ -6,6 +6,7 @@ import math
 from dataclasses import replace
 
 from checker.analysis.noise import noise_band, output_noise
+from checker.changes import SetValue, UsePart
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.limits import within
@@ -90,7 +91,8 @@ def noise(view):
         message += f" (at least: {', '.join(result.missing)} not counted)"
     contributions = {c.name: c.vrms for c in result.contributions[:6]}
     yield view.finding(message, origin or where, elements=(element,), measured=total,
-                       limit=limit, unit="V", suggestion=_suggest(view, result, limit, band),
+                       limit=limit, unit="V",
+                       suggestion=lambda: _suggest(view, result, limit, band),
                        largest=largest.name, contributions=contributions,
                        band_low_hz=low, band_high_hz=high, **view.answers("noise"))
 
@@ -179,7 +181,8 @@ def _smaller_network(view, resistor, factor: float, limit: float, band) -> Sugge
             return Suggestion(f"lower {refs} by a factor {1 / scale:.3g} ({listing}, E96/E24"
                               f" by tolerance, every gain kept): solved noise then"
                               f" {format_si(total, 'V')} rms", value=values[resistor.ref],
-                              unit="Ω", element=resistor.ref)
+                              unit="Ω", element=resistor.ref,
+                              changes=tuple(SetValue(ref, v) for ref, v in values.items()))
     return Suggestion(f"lowering {refs} does not bring the solved noise under"
                       f" {format_si(limit, 'V')}: the noise is set by a capacitor (kT/C) or"
                       " by the gain; narrow the band or move the filter pole",
@@ -209,7 +212,7 @@ def _quieter_part(view, opamp, attribute: str, ratio: float, limit: float,
                               f" {format_si(getattr(part, attribute), unit)} and runs from"
                               f" {format_si(span, 'V')}; solved noise with it"
                               f" {format_si(total, 'V')} rms", value=needed, unit=unit,
-                              element=opamp.ref)
+                              element=opamp.ref, changes=(UsePart(opamp.ref, part),))
     return Suggestion(f"{opamp.ref} needs a {what}-noise density of at most"
                       f" {format_si(needed, unit)} (now {format_si(present, unit)}); no"
                       " built-in class that runs from these supplies meets it: choose a"

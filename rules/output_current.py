@@ -7,6 +7,7 @@ from dataclasses import replace
 import numpy as np
 
 from checker.analysis.topology import classify
+from checker.changes import SetLoad, SetValue
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.preferred import at_least, ladder, smallest_passing
@@ -83,7 +84,8 @@ def output_current(view):
                         f" output at the top of the band")
         yield view.finding(message, opamp.origin, elements=(opamp.ref,), measured=total,
                            limit=limit, unit="A",
-                           suggestion=_suggest(view, opamp, total, capacitive, limit),
+                           suggestion=lambda: _suggest(view, opamp, total, capacitive,
+                                                       limit),
                            resistive_a=resistive, capacitive_a=capacitive)
 
 
@@ -160,7 +162,8 @@ def _suggest(view, opamp, total, capacitive, limit) -> Suggestion:
             return Suggestion(
                 f"{opamp.ref} can drive no less than {format_si(best, 'Ω')} (E24) on"
                 f" {load.net}: raise the load to that, or buffer it with a stage rated for"
-                f" {format_si(total, 'A')}", value=best, unit="Ω", element=f"load {load.net}")
+                f" {format_si(total, 'A')}", value=best, unit="Ω", element=f"load {load.net}",
+                changes=(SetLoad(load.net, best),))
     network = _network(stage, opamp)
     if network:
         feedback, scaled = network
@@ -181,7 +184,9 @@ def _suggest(view, opamp, total, capacitive, limit) -> Suggestion:
             return Suggestion(
                 f"the feedback network draws the current: raise {feedback.ref} to"
                 f" {format_si(best, 'Ω')} (E24){also}", value=best, unit="Ω",
-                element=feedback.ref)
+                element=feedback.ref,
+                changes=tuple(SetValue(p.ref, p.value * best / feedback.value)
+                              for p in stage.passives if p.ref in scaled))
     return buffer
 
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 import math
 
 from checker.analysis.figures import signed_gain
+from checker.changes import SetTolerance, SetValue
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.preferred import nearest, series_for_tolerance
@@ -41,7 +42,9 @@ def preferred_values(view):
         The nearest member (on a log scale) of the accepted series. For a resistor at
         an op-amp input or in its feedback network the rule puts that value into a
         copy of the stage, solves it again and states the gain the stage then has
-        beside the present one.
+        beside the present one. Where that value costs a stated requirement (a gain
+        moved out of its tolerance), the nearest E96 value in a 1 % part is offered
+        instead when the re-check with every rule finds it clean.
 
     Sources:
         IEC 60063, preferred number series for resistors and capacitors (E12, E24,
@@ -74,16 +77,38 @@ def preferred_values(view):
                    f" {passive.kind} without one")
         message = (f"{passive.ref} is {format_si(passive.value, unit, 4)} {why}; the nearest"
                    f" is {format_si(closest, unit, 4)}")
-        text = f"use {format_si(closest, unit, 4)} for {passive.ref}"
-        if passive.kind == "resistor" and set(passive.nets) & inputs:
-            before, after = _gains(view, passive.ref, closest)
-            if before is not None and abs(after - before) > 1e-6 * abs(before):
-                text += f": the solved gain is then {after:.4g} (now {before:.4g})"
         yield view.finding(message, passive.origin, elements=(passive.ref,),
                            measured=passive.value, limit=closest, unit=unit,
-                           suggestion=Suggestion(text, value=closest, unit=unit,
-                                                 element=passive.ref),
+                           suggestion=lambda passive=passive, closest=closest, unit=unit:
+                           _alternatives(view, passive, closest, unit, inputs),
                            series=series)
+
+
+def _alternatives(view, passive, closest: float, unit: str, inputs) -> list[Suggestion]:
+    """The nearest value of its own series, then (for a 5 % resistor that sets a gain)
+    the nearest E96 value in a 1 % part, which keeps the gain closer: the engine offers
+    the first whose re-check is clean."""
+    found = [_use(view, passive, closest, unit, inputs, None)]
+    if passive.kind == "resistor" and set(passive.nets) & inputs and \
+            (passive.tolerance is None or passive.tolerance > 0.01):
+        precise = nearest(passive.value, "E96")
+        if abs(precise / passive.value - 1) < abs(closest / passive.value - 1):
+            found.append(_use(view, passive, precise, unit, inputs, 0.01))
+    return found
+
+
+def _use(view, passive, value: float, unit: str, inputs, tolerance) -> Suggestion:
+    part = f"a 1 % part of {format_si(value, unit, 4)} (E96)" if tolerance else \
+        format_si(value, unit, 4)
+    text = f"use {part} for {passive.ref}"
+    if passive.kind == "resistor" and set(passive.nets) & inputs:
+        before, after = _gains(view, passive.ref, value)
+        if before is not None and abs(after - before) > 1e-6 * abs(before):
+            text += f": the solved gain is then {after:.4g} (now {before:.4g})"
+    changes = (SetValue(passive.ref, value),)
+    if tolerance:
+        changes += (SetTolerance((passive.ref,), tolerance),)
+    return Suggestion(text, value=value, unit=unit, element=passive.ref, changes=changes)
 
 
 def _gains(view, ref: str, ohms: float) -> tuple[float | None, float | None]:
@@ -91,4 +116,5 @@ def _gains(view, ref: str, ohms: float) -> tuple[float | None, float | None]:
     if not view.stage.sources or not view.figures.solvable:
         return None, None
     changed = view.reanalyse(with_resistance(view.stage, ref, ohms))
-    return signed_gain(view.figures.sources[0].gain_mid), signed_gain(changed.sources[0].gain_mid)
+    return (signed_gain(view.figures.sources[0].gain_from_source_mid),
+            signed_gain(changed.sources[0].gain_from_source_mid))

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from checker.changes import SetPowerRating
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.limits import within
@@ -87,7 +88,8 @@ def _suggest(resistor, power: float, derating: float) -> Suggestion:
                 f"use a {format_si(rating, 'W')} resistor for {resistor.ref}: it must be"
                 f" rated for at least {format_si(needed, 'W')}"
                 f" ({format_si(power, 'W')} / {derating:g})",
-                value=rating, unit="W", element=resistor.ref)
+                value=rating, unit="W", element=resistor.ref,
+                changes=(SetPowerRating(resistor.ref, rating),))
     return Suggestion(
         f"{resistor.ref} needs a {format_si(needed, 'W')} rating, beyond"
         f" {format_si(RATINGS_W[-1], 'W')}: raise its resistance, or share the dissipation"

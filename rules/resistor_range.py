@@ -6,6 +6,7 @@ from __future__ import annotations
 import math
 
 from checker.analysis.noise import thermal_density
+from checker.changes import SetValue
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.rules._resistor_networks import best_factor, gain_kept, network_of, scaled
@@ -158,7 +159,8 @@ def _finding(view, network, resistor, side, limit, fix):
     suggestion, values = fix
     if values and resistor.ref in values:
         suggestion = Suggestion(suggestion.text, value=values[resistor.ref], unit="Ω",
-                                element=resistor.ref)
+                                element=resistor.ref,
+                                changes=tuple(SetValue(ref, ohms) for ref, ohms in values.items()))
     return view.finding(message, resistor.origin, elements=(resistor.ref, opamp.ref),
                         measured=resistor.value, limit=bound, unit="Ω",
                         suggestion=suggestion, side=side, kind=kind,
@@ -173,7 +175,8 @@ def _scale(view, network, limits, flagged) -> tuple[Suggestion, dict[str, float]
         resistor = pulls[0]
         low = limits[resistor.ref][0]
         return Suggestion(f"raise {resistor.ref} to at least {format_si(low, 'Ω')}",
-                          value=low, unit="Ω", element=resistor.ref), None
+                          value=low, unit="Ω", element=resistor.ref,
+                          changes=(SetValue(resistor.ref, low),)), None
     members = network.scalable
     k_min = max(limits[r.ref][0] / r.value for r in members)
     k_max = min(limits[r.ref][1] / r.value for r in members)

@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 
+from checker.changes import SetPartParameter
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.preferred import at_least
@@ -80,7 +81,8 @@ def slew_rate(view):
             f"choose a part for {opamp.ref} with a slew rate of at least"
             f" {_per_us(target)}, or keep the output under"
             f" {format_si(largest_peak, 'V')} peak at {format_si(frequency, 'Hz')}",
-            value=target, unit="V/s", element=opamp.ref)
+            value=target, unit="V/s", element=opamp.ref,
+            changes=(SetPartParameter(opamp.ref, "slew_rate_v_per_s", target),))
         yield view.finding(message, opamp.origin, elements=(opamp.ref, source.name),
                            measured=needed, limit=limit, unit="V/s", suggestion=suggestion,
                            output_peak_v=peak, frequency_hz=frequency,

@@ -8,6 +8,7 @@ from dataclasses import replace
 import numpy as np
 
 from checker.analysis.topology import classify
+from checker.changes import AddPassive, like_tolerance
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.limits import below, reaches
@@ -189,5 +190,9 @@ def _suggest(view, opamp, topology, minimum: float) -> tuple[Suggestion, dict]:
         f"raise the noise gain at high frequency: {format_si(ohms, 'Ω')} ({refs[0]}, E24) in"
         f" series with {format_si(farads, 'F')} ({refs[1]}, E12) from {opamp.in_neg} to"
         f" {opamp.in_pos}; solved noise gain at crossover then {gain:.3g}{margin_text};"
-        f" {unity}", value=ohms, unit="Ω", element=refs[0]), \
+        f" {unity}", value=ohms, unit="Ω", element=refs[0],
+        changes=(AddPassive(refs[0], "resistor", opamp.in_neg, f"{opamp.in_neg}.shaping", ohms,
+                            like_tolerance(stage)),
+                 AddPassive(refs[1], "capacitor", f"{opamp.in_neg}.shaping", opamp.in_pos,
+                            farads))), \
         {"shaping_resistor_ohm": ohms, "shaping_capacitor_f": farads}

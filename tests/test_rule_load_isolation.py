@@ -111,7 +111,7 @@ def test_suggested_isolation_resistor_restores_the_margin_by_python_control():
     finding = only(line_driver(10e-9), RULE)
     riso = finding.suggestion.value
     assert finding.suggestion.unit == "Ω"
-    assert finding.suggestion.element == "Riso"
+    assert finding.suggestion.element == "R1"  # the first free designator
     # The rule aims at 60 deg; the suggested value must get there on the hand-written loop.
     assert follower_margin_deg(10e-9, riso) >= 60 - PHASE_TOLERANCE_DEG
     # It states what Riso costs into the resistive load: Riso/(Riso + RL).
