@@ -12,7 +12,7 @@ from checker.analysis.updates import source_gain_candidates
 from checker.changes import SetPartParameter
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
-from checker.limits import below
+from checker.limits import below, reaches, within
 from checker.preferred import at_least, ladder, smallest_passing
 from checker.units import format_si
 
@@ -250,9 +250,9 @@ def _short_bandwidth(view, sf, ideal, opamp, measured, required, severity, reaso
         else math.inf
     message = (f"{source.name} reaches the output with a -3 dB bandwidth of"
                f" {format_si(measured, 'Hz')}, below {reason} ({format_si(required, 'Hz')})")
-    if ideal_bw < required and not view.stage.require.bandwidth_hz:
+    if below(ideal_bw, required) and not view.stage.require.bandwidth_hz:
         return None  # the network shapes the band on purpose (a filter, an integrator)
-    if ideal_bw < required:
+    if below(ideal_bw, required):
         message += (f"; with ideal op-amps it would still be {format_si(ideal_bw, 'Hz')},"
                     " so the network sets it")
         suggestion = Suggestion("the feedback network or the source's RC limits the band:"
@@ -270,7 +270,7 @@ def _short_bandwidth(view, sf, ideal, opamp, measured, required, severity, reaso
 
     def passes(result):
         edge = result.sources[sf.index].bandwidth_high_hz
-        return edge is None or edge >= required
+        return edge is None or reaches(edge, required)
 
     frequencies = view.figures.frequencies_hz
     at = int(np.argmin(np.abs(frequencies - sf.reference_hz)))
@@ -358,7 +358,7 @@ def _gain_error(view, sf, ideal, opamp):
     top = source.band_high_hz
     error = _error_at_top(figures, ideal, sf.index, top)
     limit, reason = _gain_error_limit(view)
-    if error <= limit:
+    if within(error, limit):
         return
     loop = figures.loops[opamp.ref]
     loop_gain = float(abs(_at(figures.frequencies_hz, loop.loop_gain, top)))

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from checker.engine import rule
 from checker.findings import Suggestion
+from checker.limits import reaches, within
 from checker.units import format_si
 
 
@@ -62,7 +63,7 @@ def common_mode_range(view):
         closed = figures.loops[opamp.ref].feedback == "negative"
         for pin, net in pins:
             node = figures.node_range(net)
-            if node.high <= allowed_high and node.low >= allowed_low:
+            if within(node.high, allowed_high) and reaches(node.low, allowed_low):
                 continue
             if pin == "in-" and closed and reported:
                 continue  # feedback holds in- at in+: the same fault, reported once

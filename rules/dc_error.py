@@ -190,7 +190,7 @@ def _balance(view, worst: DcErrorTerms, total: float, limit: float) -> Suggestio
             f" {format_si(exact, 'Ω')} the two bias currents' solved effects at the output"
             f" cancel, and with {format_si(value, 'Ω')} the worst-case error falls from"
             f" {format_si(total, 'V')} to {format_si(after, 'V')}")
-    if after > limit:
+    if not within(after, limit):
         if after > 0.95 * total:
             return _better_offset(view, worst, total - worst.total, limit,
                                   f"a balancing resistor ({format_si(value, 'Ω')}) would"

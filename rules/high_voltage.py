@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from checker.engine import rule
+from checker.limits import above
 from checker.units import format_si
 
 
@@ -36,7 +37,7 @@ def high_voltage(view):
     caution = ("hazardous voltage: this tool does not assess electrical safety; follow the"
                " applicable safety standard, local electrical codes and licensed practice"
                " for insulation, spacing, earthing and enclosure")
-    if span > settings["dc_limit_v"]:
+    if above(span, settings["dc_limit_v"]):
         yield view.finding(
             f"the supplies span {format_si(span, 'V')}, beyond the"
             f" {format_si(settings['dc_limit_v'], 'V')} DC extra-low-voltage limit: {caution}",
@@ -47,7 +48,7 @@ def high_voltage(view):
         peak = max(abs(source.low), abs(source.high))
         alternating = source.amplitude is not None
         limit = settings["ac_peak_limit_v"] if alternating else settings["dc_limit_v"]
-        if peak > limit:
+        if above(peak, limit):
             yield view.finding(
                 f"{source.name} reaches {format_si(peak, 'V')}, beyond the"
                 f" {format_si(limit, 'V')} {'AC peak' if alternating else 'DC'}"

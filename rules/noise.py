@@ -175,7 +175,7 @@ def _smaller_network(view, resistor, factor: float, limit: float, band) -> Sugge
         passives = tuple(replace(p, value=values[p.ref]) if p.ref in values else p
                          for p in stage.passives)
         total, solved = _noise_of(view, replace(stage, passives=passives), band)
-        if total <= limit and gain_kept(view.figures, solved, tolerance):
+        if within(total, limit) and gain_kept(view.figures, solved, tolerance):
             listing = ", ".join(f"{ref} {format_si(v, 'Ω')}" for ref, v in values.items())
             scale = values[resistor.ref] / resistor.value
             return Suggestion(f"lower {refs} by a factor {1 / scale:.3g} ({listing}, E96/E24"
@@ -205,7 +205,7 @@ def _quieter_part(view, opamp, attribute: str, ratio: float, limit: float,
     for part in classes[:MAX_TRIES]:
         opamps = tuple(replace(o, part=part) if o.ref == opamp.ref else o for o in stage.opamps)
         total, _solved = _noise_of(view, replace(stage, opamps=opamps), band)
-        if total <= limit:
+        if within(total, limit):
             return Suggestion(f"{opamp.ref} needs a {what}-noise density of at most"
                               f" {format_si(needed, unit)} (now {format_si(present, unit)}):"
                               f" the built-in class {part.name} has"

@@ -10,6 +10,7 @@ from checker.analysis.topology import classify
 from checker.changes import SetLoad, SetValue
 from checker.engine import rule
 from checker.findings import Suggestion
+from checker.limits import within
 from checker.preferred import at_least, ladder, smallest_passing
 from checker.units import format_si
 
@@ -74,7 +75,7 @@ def output_current(view):
         resistive, capacitive = _drawn(figures, opamp)
         total = resistive + capacitive
         limit = part.output_current_a
-        if total <= limit:
+        if within(total, limit):
             continue
         message = (f"{opamp.ref} must deliver {format_si(total, 'A')} but its part is"
                    f" limited to {format_si(limit, 'A')}: {format_si(resistive, 'A')} into"

@@ -8,6 +8,7 @@ from checker.analysis.figures import signed_gain
 from checker.changes import SetTolerance, SetValue
 from checker.engine import rule
 from checker.findings import Suggestion
+from checker.limits import within
 from checker.preferred import nearest, series_for_tolerance
 from checker.units import format_si
 from checker.variants import with_resistance
@@ -64,7 +65,7 @@ def preferred_values(view):
         accepted = ACCEPTED[series]
         closest = min((nearest(passive.value, s) for s in accepted),
                       key=lambda v: abs(math.log(v / passive.value)))
-        if abs(closest / passive.value - 1) <= settings["match_tolerance"]:
+        if within(abs(closest / passive.value - 1), settings["match_tolerance"]):
             continue
         unit = UNITS[passive.kind]
         names = " or ".join(accepted[:2]) if series == "E96" else series

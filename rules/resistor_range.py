@@ -9,6 +9,7 @@ from checker.analysis.noise import thermal_density
 from checker.changes import SetValue
 from checker.engine import rule
 from checker.findings import Suggestion
+from checker.limits import above, below
 from checker.rules._resistor_networks import best_factor, gain_kept, network_of, scaled
 from checker.units import format_si
 
@@ -102,9 +103,9 @@ def _check(view, opamp):
     flagged = []
     for resistor in members:
         low, high, low_reason, kind = limits[resistor.ref]
-        if resistor.value < low:
+        if below(resistor.value, low):
             flagged.append((resistor, "low"))
-        elif resistor.value > high:
+        elif above(resistor.value, high):
             if part.bias_current_a is None and resistor.value <= settings["max_fet_ohm"]:
                 yield view.cannot_check(
                     f"whether {resistor.ref} ({format_si(resistor.value, 'Ω')}) is too high"

@@ -9,6 +9,7 @@ import numpy as np
 from checker.changes import SetPartParameter
 from checker.engine import rule
 from checker.findings import Suggestion
+from checker.limits import within
 from checker.preferred import at_least
 from checker.units import format_si
 
@@ -65,7 +66,7 @@ def slew_rate(view):
             continue
         needed = sum(rate for rate, _f, _v, _source in demands)
         limit = part.slew_rate_v_per_s
-        if needed * settings["min_ratio"] <= limit:
+        if within(needed * settings["min_ratio"], limit):
             continue
         rate, frequency, peak, source = max(demands, key=lambda d: d[0])
         largest_peak = limit / (2 * math.pi * frequency)

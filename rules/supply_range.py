@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
+from checker.limits import above, below
 from checker.units import format_si
 
 
@@ -41,7 +42,7 @@ def supply_range(view):
         where = f"{opamp.ref}'s supply pins ({opamp.v_pos} to {opamp.v_neg})"
         high_limit = part.supply_max_v if part.supply_max_v is not None \
             else part.supply_abs_max_v
-        if part.supply_abs_max_v is not None and span > part.supply_abs_max_v:
+        if part.supply_abs_max_v is not None and above(span, part.supply_abs_max_v):
             allowed = part.supply_max_v if part.supply_max_v is not None \
                 else part.supply_abs_max_v
             yield view.finding(
@@ -50,7 +51,7 @@ def supply_range(view):
                 " damaged", opamp.origin, elements=(opamp.ref,), severity=Severity.ERROR,
                 measured=span, limit=part.supply_abs_max_v, unit="V",
                 suggestion=_suggestion(opamp, span, allowed, "at most"))
-        elif part.supply_max_v is not None and span > part.supply_max_v:
+        elif part.supply_max_v is not None and above(span, part.supply_max_v):
             yield view.finding(
                 f"{where} span {format_si(span, 'V')}, above the operating maximum of part"
                 f" {part.name} ({format_si(part.supply_max_v, 'V')}); its data no longer"
@@ -65,7 +66,7 @@ def supply_range(view):
             yield view.cannot_check(f"the lowest supply span of {opamp.ref}",
                                     f"part {part.name} gives no supply minimum",
                                     opamp.origin, (opamp.ref,))
-        elif span < part.supply_min_v:
+        elif below(span, part.supply_min_v):
             yield view.finding(
                 f"{where} span only {format_si(span, 'V')}, below the operating minimum of"
                 f" part {part.name} ({format_si(part.supply_min_v, 'V')}): it may not start"

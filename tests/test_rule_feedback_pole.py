@@ -239,3 +239,19 @@ def test_transimpedance_suggested_cf_clears_the_finding():
     cf = finding.suggestion.value
     assert cf is not None and cf > 0
     assert findings(transimpedance(extra=f"(capacitor C1 in out {cf!r})"), RULE) == []
+
+
+def test_neutralising_capacitor_uses_rg_itself_not_a_resistance_with_the_output_in_it():
+    # Cf = Rg*Cin/Rf (R. Mancini (ed.), Op Amps for Everyone, stability chapter, the
+    # feedback-pole compensation), with Rg = 100 kOhm, Rf = 1 MOhm, Cin = 8 pF: 0.8 pF,
+    # 820 fF in E12 (IEC 60063). A part with 1 kOhm of output resistance into 1 kOhm of
+    # load must not change it: the path through Rf and the output stage is no part of Rg.
+    opamp = params(open_loop_gain=A0, gbw=GBW, input_capacitance_cm=CCM,
+                   input_capacitance_diff=CDIFF, output_resistance=1e3)
+    text = inverting(100e3, 1e6).replace(OPAMP, opamp).replace(
+        "(resistance 10k)", "(resistance 1k)")
+    finding = only(text, RULE)
+    neutral = 100e3 * CIN / 1e6
+    assert "Rg*Cin/Rf = 800 fF" in finding.suggestion.text
+    assert finding.suggestion.value == pytest.approx(at_least(neutral, "E12"))
+    assert finding.suggestion.value == pytest.approx(820e-15)
