@@ -19,11 +19,18 @@ FORMAT_VERSION = 2
 
 
 def change_dict(change) -> dict:
-    """A proposed change as a plain object: its kind (the record's name, in kebab case)
-    and its fields."""
-    kind = "".join("-" + c.lower() if c.isupper() else c for c in type(change).__name__)
-    fields = {k: (list(v) if isinstance(v, tuple) else v) for k, v in vars(change).items()}
-    return {"kind": kind.lstrip("-"), **fields}
+    """A proposed change as a plain object: ``change``, the record's name in kebab case
+    (``set-value``, ``add-passive``, ``swap-inputs``, ...), then its fields; a part
+    given by ``use-part`` appears by name."""
+    name = "".join("-" + c.lower() if c.isupper() else c for c in type(change).__name__)
+    fields = {}
+    for key, value in vars(change).items():
+        if isinstance(value, tuple):
+            value = list(value)
+        elif hasattr(value, "gbw_hz"):  # an OpAmpPart
+            value = value.name
+        fields[key] = value
+    return {"change": name.lstrip("-"), **fields}
 
 
 def check_dict(check) -> dict | None:
@@ -132,8 +139,8 @@ _FINDING = {
                            "unit": {"type": ["string", "null"]},
                            "element": {"type": ["string", "null"]},
                            "changes": {"type": "array", "items": {
-                               "type": "object", "required": ["kind"],
-                               "properties": {"kind": {"type": "string"}}}},
+                               "type": "object", "required": ["change"],
+                               "properties": {"change": {"type": "string"}}}},
                            "check": {"oneOf": [{"type": "null"}, {
                                "type": "object",
                                "required": ["clears", "introduces", "introduces_error",
