@@ -166,7 +166,7 @@ def _gain(c: _Context) -> Verdict:
             statement += f" (from its net {_gain_text(from_net, signal.unit)})"
     met = within(error, band)
     if not met:
-        reason = (f"{format_si(error, '%')} from the required {required:.4g}, beyond"
+        reason = (f"{format_si(error, '%', 4)} from the required {required:.4g}, beyond"
                   f" ±{format_si(band, '%')}")
         if signal.gain_from_net is not None and within(
                 abs(signed_gain(signal.gain_from_net) / required - 1), band):
@@ -216,7 +216,7 @@ def _gain_tolerance(c: _Context) -> Verdict:
     statement = (f"gain from {worst.signal.label} {worst.worst.gain:.4g} {how} of the"
                  f" resistors' tolerances (nominal {worst.nominal:.4g})")
     met = within(worst.worst.error, r.gain_tolerance)
-    reason = None if met else (f"{format_si(worst.worst.error, '%')} from the required"
+    reason = None if met else (f"{format_si(worst.worst.error, '%', 4)} from the required"
                                f" {r.gain:.4g}")
     return c.verdict("gain-tolerance", MET if met else NOT_MET, text, statement,
                      measured=worst.worst.error, limit=r.gain_tolerance, unit="%",

@@ -183,3 +183,32 @@ def test_opamp_with_a_floating_input_has_no_operating_point_to_check():
           (load out (resistance 10k)))
         """
     assert findings(text, RULE) == []
+
+
+BOTH_SIDES = """
+    (version 1)
+    (stage both (ground gnd) (supply vcc 12V) (supply vee -12V)
+      (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+      (resistor R1 in fb 10k (tolerance 1%))
+      (resistor R2 fb out 1M (tolerance 1%))
+      (source in (range -0.2V 0.2V))
+      (load out (resistance 10k)))
+    """
+
+
+def test_clipping_at_both_rails_names_both_sides():
+    # gain -100 on +-0.2 V asks for +-20 V (by hand) of a +-10.5 V swing (rails less the
+    # part's 1.5 V headroom): both sides clip
+    finding = only(BOTH_SIDES, RULE)
+    assert finding.details["sides"] == ["upper", "lower"]
+    assert "at the upper limit and clips by" in finding.message
+    assert "at the lower limit" in finding.message
+
+
+def test_the_fix_changes_the_stage_not_the_sensor():
+    # the usable 21 V less 0.1 V margin each side, less the errors, against the signal's
+    # 40 V: the gain must fall by about 2 (by hand); the source's range is given only
+    # for reference
+    text = only(BOTH_SIDES, RULE).suggestion.text
+    assert text.startswith("lower the gain by a factor 1.98")
+    assert "widen the supplies" in text and "for reference" in text

@@ -71,6 +71,8 @@ def _value(value: float | None, unit: str | None) -> str:
         return f"{value:.1f}°"
     if unit == "dB":
         return f"{value:.2f} dB"
+    if unit == "V/V":  # a gain: a plain number
+        return f"{value:.4g}"
     if unit == "V/s":  # the trade quotes slew rates in V/µs
         return f"{value / 1e6:.3g} V/µs"
     return format_si(value, unit or "")
