@@ -340,6 +340,7 @@ def check_stage(stage: Stage, figures: Figures, rules: list[Rule], options: RunO
             continue  # already reported once as stage-unsolvable
         except Exception as error:  # a rule's bug must not stop the run
             results.append(_failure(stage, f"rule {item.id}", error))
+    results = _one_finding_per_loop(results)
     verdicts, answered = _answer_verdicts(stage, verdicts, results, options)
     results = apply_waivers(stage, results + answered, ran | {f.rule for f in answered},
                             options.known_rules | ran)
@@ -441,6 +442,18 @@ def _choose(checked: list[Suggestion]) -> Suggestion:
             if test(suggestion):
                 return suggestion
     return checked[0]
+
+
+LOOP_RULE = "loop-margin"
+
+
+def _one_finding_per_loop(findings: list[Finding]) -> list[Finding]:
+    """A loop is reported once: where a rule for a cause of its small margin (it names
+    the loop in its details) reports it, the general loop-margin finding is dropped."""
+    explained = {f.details["loop"] for f in findings
+                 if f.rule != LOOP_RULE and f.details.get("loop") and not f.details.get("unchecked")}
+    return [f for f in findings
+            if not (f.rule == LOOP_RULE and f.details.get("loop") in explained)]
 
 
 def claimed(finding: Finding) -> tuple[str, ...]:

@@ -18,6 +18,7 @@ from checker.analysis.dc_error import dc_error_terms
 from checker.analysis.figures import signed_gain
 from checker.analysis.mna import SingularCircuit
 from checker.analysis.noise import noise_band, output_noise
+from checker.analysis.poles import stage_poles
 from checker.analysis.signal import SignalFigures, stage_signals
 from checker.analysis.spread import GainSpread, SpreadOptions, resistor_tolerances
 from checker.limits import reaches, within
@@ -57,7 +58,18 @@ class _Context:
                     else "no negative feedback")
             found.append(f"{opamp.ref} has {kind} (loop gain at DC {loop.loop_gain_dc:.3g}),"
                          " so the stage has no closed-loop figure")
+        if not found:
+            found.extend(self.unstable())
         return found
+
+    def unstable(self) -> list[str]:
+        """Why no closed-loop figure holds on a stage whose natural frequencies grow."""
+        poles = stage_poles(self.figures)
+        if poles.stable:
+            return []
+        frequency = poles.oscillation_hz()
+        return [f"the stage oscillates near {format_si(frequency, 'Hz')}" if frequency
+                else "the stage runs away (a growing real natural frequency)"]
 
     def spread_options(self, keyword: str) -> SpreadOptions:
         settings = self.settings_of(SPREAD_RULES[keyword])
@@ -310,6 +322,8 @@ def _phase_margin(c: _Context) -> Verdict:
         if not reaches(margin, required):
             failing.append((margin, f"{opamp.ref} has {margin:.1f}°"))
     statement = ", ".join(f"{ref} {margin:.1f}°" for margin, ref in margins) or "no margin read"
+    for reason in c.unstable():
+        failing.append((-math.inf, reason))
     worst = min((m for m, _ref in margins), default=None)
     if failing:
         measured = min(m for m, _text in failing)

@@ -11,6 +11,7 @@ import numpy as np
 from checker.analysis import Figures
 from checker.analysis.figures import signed_gain
 from checker.analysis.mna import SingularCircuit
+from checker.analysis.poles import stage_poles
 from checker.analysis.signal import stage_signals
 from checker.analysis.topology import classify
 from checker.engine import Rule, RunOptions, check_file_stages
@@ -76,7 +77,8 @@ def _finite(value) -> float | None:
 
 SUMMARY_KEYS = ("topology", "gain", "gain_from_net", "input_resistance", "output_resistance",
                 "bandwidth", "phase_margin", "crossover", "noise_gain", "feedback_pole",
-                "output_low", "output_high")
+                "output_low", "output_high", "stable", "pole_frequency", "pole_damping",
+                "pole_q", "step_overshoot", "peaking_db", "oscillation_frequency")
 
 
 def summarise(stage: Stage, figures: Figures) -> tuple[dict, dict]:
@@ -122,7 +124,9 @@ def summarise(stage: Stage, figures: Figures) -> tuple[dict, dict]:
             "output_current_sunk": _finite(current.most_sunk_a),
         }
     summary["topology"] = names[0] if len(set(names)) == 1 else " + ".join(names)
-    open_loop = any(not loops[o.ref].negative_somewhere for o in stage.opamps)
+    summary.update(_pole_figures(figures))
+    open_loop = any(not loops[o.ref].negative_somewhere for o in stage.opamps) \
+        or not stage_poles(figures).stable  # an oscillating stage has no closed-loop gain
     worst = figures.worst_phase_margin
     ref = worst[0] if worst else stage.opamps[-1].ref
     if not open_loop:
@@ -148,6 +152,20 @@ def summarise(stage: Stage, figures: Figures) -> tuple[dict, dict]:
     summary["output_low"] = _finite(output.clipped_low)
     summary["output_high"] = _finite(output.clipped_high)
     return summary, amplifiers
+
+
+def _pole_figures(figures: Figures) -> dict:
+    """The stage's natural frequencies in a few numbers: stable or not, the dominant
+    complex pair's frequency, damping, Q, step overshoot and peaking, and where it is
+    unstable the frequency it oscillates at (0 for a runaway)."""
+    poles = stage_poles(figures)
+    pair = poles.dominant_pair
+    result = {"stable": poles.stable, "oscillation_frequency": _finite(poles.oscillation_hz())}
+    if pair is not None:
+        result.update(pole_frequency=_finite(pair.frequency_hz),
+                      pole_damping=_finite(pair.damping), pole_q=_finite(pair.q),
+                      step_overshoot=_finite(pair.overshoot), peaking_db=_finite(pair.peaking_db))
+    return result
 
 
 def count_by_severity(findings: list[Finding]) -> dict[str, int]:

@@ -66,6 +66,35 @@ def inverting_input_capacitance_removed(stage: Stage, ref: str, stray_f: float,
     return changes
 
 
+def load_capacitance_removed(stage: Stage, frequencies: np.ndarray) -> list[tuple]:
+    """Admittance changes that take every load's capacitance out (as
+    without_load_capacitance does), for updates.margins_with_admittances."""
+    s = 2j * np.pi * np.asarray(frequencies)
+    return [(load.net, stage.ground, -s * load.capacitance_f)
+            for load in stage.loads if load.capacitance_f]
+
+
+def without_second_pole(stage: Stage, ref: str) -> Stage:
+    """The stage with op-amp ``ref``'s second pole taken out of its part."""
+    return replace(stage, opamps=tuple(replace(o, part=replace(o.part, second_pole_hz=None))
+                                       if o.ref == ref else o for o in stage.opamps))
+
+
+def with_ideal_opamp(stage: Stage, ref: str, gain: float = 1e9) -> Stage:
+    """The stage with op-amp ``ref`` made ideal: a flat, very large gain, no poles, no
+    input capacitance, no output resistance."""
+    def ideal(o):
+        return replace(o, part=replace(o.part, open_loop_gain=gain, gbw_hz=None,
+                                       second_pole_hz=None, input_capacitance_cm_f=None,
+                                       input_capacitance_diff_f=None,
+                                       output_resistance_ohm=None))
+    return replace(stage, opamps=tuple(ideal(o) if o.ref == ref else o for o in stage.opamps))
+
+
+def without_passive(stage: Stage, ref: str) -> Stage:
+    return replace(stage, passives=tuple(p for p in stage.passives if p.ref != ref))
+
+
 def without_load_capacitance(stage: Stage) -> Stage:
     """The stage with every load's capacitance removed."""
     return replace(stage, loads=tuple(replace(load, capacitance_f=None) for load in stage.loads))

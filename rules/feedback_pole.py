@@ -6,13 +6,14 @@ import math
 from dataclasses import replace
 
 from checker.analysis.mna import SingularCircuit
+from checker.analysis.search import capacitor, element_search
 from checker.analysis.topology import classify
 from checker.analysis.updates import margins_with_admittances
 from checker.changes import AddPassive, RemovePassive, SetValue
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.limits import below, reaches
-from checker.preferred import at_least, ladder, smallest_passing
+from checker.preferred import at_least, ladder
 from checker.units import format_si
 from checker.variants import inverting_input_capacitance_removed, with_capacitor
 
@@ -48,8 +49,12 @@ def feedback_pole(view):
         adds it to a copy of the stage, solves again and reports the margin it
         restores. Where the neutralising value would cut the bandwidth below the
         requirement or the source's band (a transimpedance stage with a very large
-        Rg), it instead searches the E12 values for the smallest Cf whose solved
-        margin reaches `target_deg`.
+        Rg), it instead searches every E12 value from 0.1 pF to 10 µF, all predicted
+        at once from one solve (a capacitor is a rank-one change: Sherman-Morrison
+        identity) and the smallest predicted to reach `target_deg` confirmed exactly;
+        the margin falls again at large values, so no value is skipped on the
+        assumption that a larger one does better. Where none reaches the target, the
+        best reachable margin and its value are given.
 
     Sources:
         R. Mancini (ed.), Op Amps for Everyone, chapter on stability (feedback pole
@@ -60,7 +65,7 @@ def feedback_pole(view):
     for opamp in stage.opamps:
         part = opamp.part
         loop = figures.loops[opamp.ref]
-        if loop.feedback != "negative":
+        if not loop.negative_somewhere:  # integrators included: their loop closes above DC
             continue
         unknown_cin = (part.input_capacitance_cm_f is None
                        and part.input_capacitance_diff_f is None)
@@ -121,7 +126,7 @@ def _finding(view, opamp, margin, bare_margin, warn):
     return view.finding(message, where.origin, elements=elements, severity=severity,
                         measured=margin, limit=warn, unit="°",
                         suggestion=suggestion, feedback_pole_hz=pole_hz,
-                        topology=topology.name, **view.answers("phase-margin"))
+                        topology=topology.name, loop=opamp.ref, **view.answers("phase-margin"))
 
 
 def _capacitor_changes(opamp, present, ref: str, farads: float) -> tuple:
@@ -169,17 +174,26 @@ def _suggest(view, opamp, feedback_resistors, capacitance, warn):
     start = max(existing * 1.0001, 0.1e-12)
     values = ladder(start, 10e-6, "E12")
     target = max(settings["target_deg"], warn)
-    best = smallest_passing(values, lambda c: (solved(c)[0] or 0.0) >= target)
-    if best is None:
-        return Suggestion("no feedback capacitor up to 10 µF restores the margin: lower the"
-                          " feedback resistance or choose a slower part")
-    margin, result = solved(best)
+    found = element_search(view.figures, opamp.ref, opamp.out, opamp.in_neg, values,
+                           lambda value, s: capacitor(value - existing, s), target)
+    if found is None:
+        return Suggestion("no feedback capacitor closes the loop: lower the feedback"
+                          " resistance or choose a slower part")
+    margin, result = solved(found.value)
     bandwidth = result.sources[0].bandwidth_high_hz if result.sources else None
+    cost = f"; bandwidth then {format_si(bandwidth, 'Hz')}" if bandwidth else ""
+    changes = _capacitor_changes(opamp, present, ref, found.value)
+    if found.reaches:
+        return Suggestion(
+            f"{_placing(stage, opamp, found.value, ref)}: the smallest E12 value whose solved"
+            f" phase margin reaches {target:.0f}° ({margin:.0f}°{cost})",
+            value=found.value, unit="F", element=ref, changes=changes)
     return Suggestion(
-        f"{_placing(stage, opamp, best, ref)}:"
-        f" the smallest E12 value whose solved phase margin reaches {target:.0f}°"
-        f" ({margin:.0f}°; bandwidth then {format_si(bandwidth, 'Hz')})",
-        value=best, unit="F", element=ref, changes=_capacitor_changes(opamp, present, ref, best))
+        f"no feedback capacitor reaches {target:.0f}°; the best is to"
+        f" {_placing(stage, opamp, found.value, ref)}, for {margin:.0f}°{cost}: the rest of"
+        " the margin is lost elsewhere (the load, the part's second pole); lower the feedback"
+        " resistance or choose a slower part",
+        value=found.value, unit="F", element=ref, changes=changes)
 
 
 def _ground_resistance(view, opamp, feedback_resistors) -> float | None:

@@ -6,23 +6,21 @@ import math
 
 import numpy as np
 
-from checker.analysis.loop import grid_phase_margins
 from checker.analysis.topology import reached_nets
-from checker.analysis.updates import loop_gain_candidates, margins_with_admittances
-from checker.changes import IsolateOutput, SetValue, free_designator
+from checker.analysis.updates import margins_with_admittances
 from checker.engine import rule
+from checker.rules._isolation import driven_loads, isolation
 from checker.findings import Severity, Suggestion
 from checker.limits import below, reaches, within
-from checker.preferred import ladder, smallest_passing
 from checker.units import format_si
-from checker.variants import with_isolation_resistor, with_resistance, without_loads
+from checker.variants import (load_capacitance_removed, without_loads)
 
 
 @rule("load-isolation", "warning",
       "A load the output cannot drive without isolation: an unbuffered source, a"
       " capacitive load, or a heavy next stage.",
       max_loss_db=0.83, warn_below_deg=45.0, error_below_deg=30.0, target_deg=60.0,
-      max_interstage_loss_db=0.1)
+      max_interstage_loss_db=0.1, dominant_loss_deg=15.0)
 def load_isolation(view):
     """
     What it checks:
@@ -33,7 +31,9 @@ def load_isolation(view):
         with the open-loop output resistance it adds a pole to the loop; the rule flags
         a solved phase margin under the stage's `phase-margin` requirement, or without
         one under `warn_below_deg` (error under `error_below_deg`), that the load
-        capacitance causes (without it the margin would pass). (3) A load that feeds the next stage
+        capacitance causes: without it the margin would pass, or it would rise by at
+        least `dominant_loss_deg` (the load's share is the largest; the rest of the loss
+        is named in the fix). (3) A load that feeds the next stage
         of the file: the divider of this stage's closed-loop output impedance and the
         next stage's input impedance must lose less than `max_interstage_loss_db`.
 
@@ -55,7 +55,9 @@ def load_isolation(view):
         starts at the first that passes there and confirms it and its neighbour with
         margins refined at the crossover, exact to rounding. The margin need not
         rise with Riso all the way (isolating a resistive load raises the crossover),
-        so a window of good values is found even when 10 kohm fails.
+        so every value is predicted and the smallest that reaches the target is
+        confirmed; where none does, the best reachable margin and the value that gives
+        it are stated, with what else holds the margin down.
         (3) Raise the next stage's input resistance or buffer between the stages.
 
     Sources:
@@ -109,22 +111,6 @@ def _response(figures, net: str, index: int, frequency: float) -> float:
     return float(abs(response[at]))
 
 
-def _driven_loads(stage, opamp) -> list[tuple]:
-    """(load, series resistor or None) for each capacitive load on this op-amp's output or
-    behind one resistor from it."""
-    found = []
-    for load in stage.loads:
-        if not load.capacitance_f:
-            continue
-        if load.net == opamp.out:
-            found.append((load, None))
-            continue
-        series = [p for p in stage.resistors() if set(p.nets) == {opamp.out, load.net}]
-        if series:
-            found.append((load, series[0]))
-    return found
-
-
 def _capacitive_loads(view):
     stage, figures, settings = view.stage, view.figures, view.settings
     if not any(load.capacitance_f for load in stage.loads):
@@ -132,12 +118,12 @@ def _capacitive_loads(view):
     warn = stage.require.phase_margin_deg if stage.require.phase_margin_deg is not None \
         else settings["warn_below_deg"]
     for opamp in stage.opamps:
-        driven = _driven_loads(stage, opamp)
+        driven = driven_loads(stage, opamp)
         if not driven:
             continue
         loop = figures.loops[opamp.ref]
         margin = loop.phase_margin_deg
-        if loop.feedback != "negative" or margin is None or reaches(margin, warn):
+        if not loop.negative_somewhere or margin is None or reaches(margin, warn):
             continue
         if opamp.part.output_resistance_ohm is None:
             yield view.cannot_check(f"the capacitive load on {opamp.ref}",
@@ -145,9 +131,10 @@ def _capacitive_loads(view):
                                     driven[0][0].origin, (opamp.ref,))
             continue
         bare_margin = margins_with_admittances(
-            figures, opamp.ref, lambda f: _load_capacitances_removed(stage, f)).phase_margin_deg
-        if bare_margin is not None and below(bare_margin, warn):
-            continue
+            figures, opamp.ref, lambda f: load_capacitance_removed(stage, f)).phase_margin_deg
+        shared = bare_margin is not None and below(bare_margin, warn)
+        if shared and bare_margin - margin < settings["dominant_loss_deg"]:
+            continue  # the load is not what eats the margin: loop-margin names the cause
         load, series = driven[0]
         pole = 1 / (2 * math.pi * opamp.part.output_resistance_ohm * load.capacitance_f) \
             if opamp.part.output_resistance_ohm else None
@@ -162,76 +149,23 @@ def _capacitive_loads(view):
             f" (without the load capacitance {bare_margin:.0f}°)",
             load.origin, elements=(opamp.ref, f"load {load.net}"), severity=severity,
             measured=margin, limit=warn, unit="°",
-            suggestion=lambda: _isolation(view, opamp, load, series, warn), load_pole_hz=pole,
+            suggestion=lambda: _isolation(view, opamp, load, series, warn,
+                                          bare_margin if shared else None),
+            load_pole_hz=pole,
+            loop=opamp.ref,
             **view.answers("phase-margin"))
 
 
-def _load_capacitances_removed(stage, frequencies: np.ndarray) -> list[tuple]:
-    """Admittance changes that take every load's capacitance out (as
-    variants.without_load_capacitance does), for updates.margins_with_admittances."""
-    s = 2j * np.pi * frequencies
-    return [(load.net, stage.ground, -s * load.capacitance_f)
-            for load in stage.loads if load.capacitance_f]
-
-
-_NO_ISOLATION = Suggestion("no isolation resistor up to 10 kΩ restores the margin: reduce"
+_NO_ISOLATION = Suggestion("no isolation resistor up to 10 kΩ closes the loop: reduce"
                            " the load capacitance or choose a part made for capacitive loads")
 
 
-def _isolation(view, opamp, load, series, warn) -> Suggestion:
-    stage, settings = view.stage, view.settings
-    target = max(settings["target_deg"], warn)
-    start = series.value * 1.0001 if series else 1.0
-    values = ladder(start, 10e3, "E24")
-    if not values:
-        return _NO_ISOLATION
-    # One copy of the stage with the resistor at the first value; every other value is a
-    # rank-one change of it (updates.margins_with_admittances), solved exactly.
-    ref = series.ref if series else free_designator(stage, "R")
-    base_stage = (with_resistance(stage, series.ref, values[0]) if series else
-                  with_isolation_resistor(stage, opamp.out, values[0], ref))
-    base = view.margins_of(base_stage)
-    resistor = base_stage.element(ref)
-    tried: dict[float, float] = {}
-
-    def margin(ohms: float) -> float:
-        if ohms not in tried:
-            change = 1 / ohms - 1 / resistor.value
-            tried[ohms] = margins_with_admittances(
-                base, opamp.ref,
-                lambda f: [(resistor.net_a, resistor.net_b, np.full(f.size, change))]
-            ).phase_margin_deg or 0.0
-        return tried[ohms]
-
-    guess = _predicted(base, resistor, values, opamp.ref, target)
-    best = smallest_passing(values, lambda r: margin(r) >= target, start=guess)
-    if best is None:
-        return _NO_ISOLATION
-    where = (f"raise {series.ref} to {format_si(best, 'Ω')} (E24)" if series else
-             f"put {format_si(best, 'Ω')} ({ref}, E24) in series between {opamp.out} and the"
-             " load")
-    text = f"{where}, feedback taken before it: solved phase margin {margin(best):.0f}°"
-    if load.resistance_ohm:
-        error = best / (best + load.resistance_ohm)
-        text += (f"; into the {format_si(load.resistance_ohm, 'Ω')} load it costs"
-                 f" {error * 100:.2g} % of DC accuracy")
-    changes = (SetValue(series.ref, best),) if series else \
-        (IsolateOutput(opamp.out, ref, best),)
-    return Suggestion(text, value=best, unit="Ω", element=ref, changes=changes)
-
-
-def _predicted(figures, resistor, values: list[float], opamp_ref: str,
-               target: float) -> int:
-    """Index of the first of ``values`` for ``resistor`` whose grid phase margin reaches
-    ``target``, every value at once from one solve of ``figures`` (rank-one updates:
-    updates.loop_gain_candidates); the last index when none does. Only a start for
-    the search, which solves it and its neighbour exactly."""
-    added = np.subtract.outer(1 / np.asarray(values), 1 / resistor.value)
-    added = np.broadcast_to(added[:, None], (len(values), figures.frequencies_hz.size))
-    loop_gain = loop_gain_candidates(figures, opamp_ref, resistor.net_a, resistor.net_b,
-                                     added)
-    passing = np.nonzero(grid_phase_margins(figures.frequencies_hz, loop_gain) >= target)[0]
-    return int(passing[0]) if passing.size else len(values) - 1
+def _isolation(view, opamp, load, series, warn, bare_margin=None) -> Suggestion:
+    target = max(view.settings["target_deg"], warn)
+    limited = None if bare_margin is None else \
+        f"without any load capacitance the loop has only {bare_margin:.0f}°: the rest of" \
+        " the lag is elsewhere in the loop"
+    return isolation(view, opamp, load, series, target, limited) or _NO_ISOLATION
 
 
 def _next_stage(view):

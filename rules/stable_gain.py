@@ -93,7 +93,7 @@ def stable_gain(view):
             f" noise gain of {minimum:.3g} or more, but its noise gain where the loop"
             f" crosses over ({format_si(crossover, 'Hz')}) is {noise_gain:.3g}{at_dc}",
             opamp.origin, elements=(opamp.ref,), measured=noise_gain, limit=minimum,
-            unit="V/V", suggestion=suggestion, crossover_hz=crossover,
+            unit="V/V", suggestion=suggestion, crossover_hz=crossover, loop=opamp.ref,
             topology=topology.name, **shaping)
 
 

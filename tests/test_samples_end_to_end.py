@@ -36,6 +36,8 @@ SHOWN_BY = {
     "floating-input": "hydrophone-gain",
     "common-mode-range": "groundwater-buffer",
     "swapped-inputs": "staff-gauge-gain",
+    "loop-margin": "river-stage-composite",
+    "unstable-stage": "siren-buffer",
 }
 GOOD_STAGES = ("water-temp-gain", "leaf-wetness-buffer", "leaf-wetness-scale")
 

@@ -507,9 +507,10 @@ class Figures:
         gives the loop on the local grid (default: this stage's loop column solved)."""
         magnitude = np.abs(T)
         phase = unwrapped_phase_deg(T)
+        # The crossover is where |T| falls through 1; a loop open at DC (an integrator
+        # with nothing across its capacitor) rises through 1 first, and its crossover is
+        # the fall that follows.
         i = crossing_index(magnitude, 1.0)
-        if i is not None and magnitude[0] < 1.0:
-            i = None
         j = crossing_index(phase, -180.0)
         wanted = [index for index in (i, j if refine_gain_margin else None)
                   if index is not None]

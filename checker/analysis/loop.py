@@ -60,13 +60,13 @@ def unwrapped_phase_deg(T: np.ndarray) -> np.ndarray:
 def grid_phase_margins(frequencies: np.ndarray, T: np.ndarray) -> np.ndarray:
     """Phase margins of many loop gains T (V, F) read on the grid alone (no local
     refinement): 180 deg + arg T at the first downward crossing of |T| = 1, with log|T|
-    and the unwrapped phase interpolated linearly in log f. NaN where |T| starts below 1
-    or never crosses. Cheap and a little coarse: for ranking candidates, not reporting."""
+    and the unwrapped phase interpolated linearly in log f. NaN where |T| never falls
+    through 1. Cheap and a little coarse: for ranking candidates, not reporting."""
     magnitude = np.abs(T)
     phase = unwrapped_phase_deg(T)
     above = magnitude >= 1.0
     falls = above[:, :-1] & ~above[:, 1:]
-    found = falls.any(axis=1) & above[:, 0]
+    found = falls.any(axis=1)
     i = np.argmax(falls, axis=1)
     rows = np.arange(T.shape[0])
     log_mag = np.log10(np.maximum(magnitude, np.finfo(float).tiny))

@@ -2,7 +2,8 @@
 
 No rule takes a number from here; the numbers come from the solver. Names: inverting,
 non-inverting, follower, T-network inverting, difference, summing, integrator,
-transimpedance, open loop, positive feedback.
+transimpedance, composite (a loop closed through other op-amps), open loop, positive
+feedback.
 """
 
 from __future__ import annotations
@@ -91,7 +92,9 @@ def classify(stage: Stage, opamp: OpAmp, feedback: str = "negative") -> Topology
         return result("follower")
     kinds = {stage.element(ref).kind for ref in feedback_parts}
     if not feedback_parts and not tee:
-        return result("open loop")
+        # no part from its own output to in-: open, unless the solved loop closes
+        # through the network and other op-amps (a composite stage)
+        return result("composite" if feedback == "negative" else "open loop")
     if current_at_neg:
         return result("transimpedance")
     if kinds == {"capacitor"} and not tee:

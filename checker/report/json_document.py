@@ -157,7 +157,8 @@ _FINDING = {
 }
 STAGE_FIGURES = ("gain", "gain_from_net", "input_resistance", "output_resistance", "bandwidth",
                  "phase_margin", "crossover", "noise_gain", "feedback_pole", "output_low",
-                 "output_high")
+                 "output_high", "pole_frequency", "pole_damping", "pole_q", "step_overshoot",
+                 "peaking_db", "oscillation_frequency")
 _VERDICT = {
     "type": "object",
     "required": ["requirement", "status", "required", "statement", "reason", "measured",
@@ -215,9 +216,11 @@ REPORT_SCHEMA = {
                         "name": {"type": "string"},
                         "line": {"type": "integer"},
                         "topology": {"type": ["string", "null"]},
-                        "figures": {"type": "object", "required": list(STAGE_FIGURES),
+                        "figures": {"type": "object",
+                                    "required": list(STAGE_FIGURES) + ["stable"],
                                     "additionalProperties": False,
-                                    "properties": {k: _NUMBER for k in STAGE_FIGURES}},
+                                    "properties": {**{k: _NUMBER for k in STAGE_FIGURES},
+                                                   "stable": {"type": ["boolean", "null"]}}},
                         "amplifiers": {"type": "object", "additionalProperties": {
                             "type": "object",
                             "required": ["phase_margin", "crossover", "noise_gain"]}},

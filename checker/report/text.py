@@ -159,6 +159,11 @@ def _stage_line(console: Console, result: FileResult) -> None:
             parts.append(f"BW {format_si(s['bandwidth'], 'Hz')}")
         if s.get("phase_margin") is not None:
             parts.append(f"PM {s['phase_margin']:.0f}°")
+        if s.get("stable") is False:
+            parts.append("UNSTABLE" + (f" at {format_si(s['oscillation_frequency'], 'Hz')}"
+                                       if s.get("oscillation_frequency") else ""))
+        elif s.get("pole_damping") is not None:
+            parts.append(f"ζ {s['pole_damping']:.2f} at {format_si(s['pole_frequency'], 'Hz')}")
         if s.get("output_low") is not None:
             parts.append(f"out {format_si(s['output_low'], 'V')} … {format_si(s['output_high'], 'V')}")
         line.append("  " + " · ".join(parts))
