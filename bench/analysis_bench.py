@@ -16,6 +16,7 @@ import numpy as np
 
 from checker.analysis import AnalysisOptions, analyse
 from checker.analysis.mna import assemble, system_stack, without_rails
+from checker.analysis.poles import stage_poles
 from checker.build import build_stages
 from checker.io.load import parse_text
 from checker.parts.library import load_library
@@ -111,6 +112,14 @@ def main() -> None:
     three_ms = median_ms(lambda: all_figures(three))
     print(f"three-op-amp stage ({len(three.nets)} nets): {three_ms:.3f} ms,"
           f" {three_ms / one_ms:.2f}x the one-op-amp stage (target < 3x)")
+    for name, stage in (("one-op-amp", one), ("three-op-amp", three)):
+        def poles():
+            stage_poles(analyse(stage, AnalysisOptions(points=default)))
+        def build():
+            analyse(stage, AnalysisOptions(points=default)).ac_matrices
+        cost = median_ms(poles) - median_ms(build)
+        print(f"natural frequencies of the {name} stage (pencil + eigenvalues): {cost:.3f} ms"
+              f" per stage, {cost / default_ms * 100:.0f} % of its default-grid analysis")
 
 
 if __name__ == "__main__":
