@@ -34,6 +34,7 @@ class Request:
     rules_dirs: tuple[str, ...] = ()
     use_config: bool = True
     figures_wanted: bool = True  # False when no report shows stage figures
+    plots_wanted: str = ""  # the HTML review's plots: "all", "findings" or "" (none)
 
 
 @lru_cache(maxsize=64)
@@ -100,7 +101,7 @@ def setup_for(path: str, request: Request) -> FileSetup:
 def check_file(path: str, request: Request) -> FileResult:
     setup = setup_for(path, request)
     return review_file(path, setup.library, setup.rules, setup.options,
-                       request.figures_wanted, setup.all_rules)
+                       request.figures_wanted, setup.all_rules, request.plots_wanted)
 
 
 def _worker(task: tuple[str, Request]) -> FileResult:

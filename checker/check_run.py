@@ -5,13 +5,14 @@ into an exit code; nothing here exits."""
 from __future__ import annotations
 
 import os
+import shutil
 import sys
 import tempfile
 from collections import Counter
 
 from checker import audit
 from checker import baseline as baselines
-from checker.report import writer
+from checker.report import writer, writes_folder
 from checker.report.context import ReportContext
 from checker.review import FileResult
 
@@ -53,6 +54,61 @@ class Sink:
             if os.path.exists(self.temporary):
                 os.unlink(self.temporary)
             self.path = None
+
+
+class FolderSink:
+    """A report that is a folder (the HTML review of an audit): written into a new
+    hidden folder beside its path, which takes the path's place when the run ends. An
+    existing folder there is replaced only when an earlier review wrote it."""
+
+    def __init__(self, name: str, path: str, context: ReportContext, inputs: list[str]):
+        from checker.report.html_page import is_review_folder
+
+        self.path = path
+        target = os.path.realpath(path)
+        if os.path.exists(target):
+            if not os.path.isdir(target):
+                raise RunError(f"refusing to write the {name} review folder over the file"
+                               f" {path}")
+            if os.listdir(target) and not is_review_folder(target):
+                raise RunError(f"refusing to replace the folder {path}: it is not an"
+                               f" earlier {name} review (no index.html of ours)")
+        inside = [p for p in inputs
+                  if os.path.realpath(p).startswith(target.rstrip(os.sep) + os.sep)]
+        if inside:
+            raise RunError(f"refusing to write a review folder over the input {inside[0]}")
+        parent = os.path.dirname(target) or "."
+        if not os.path.isdir(parent):
+            raise RunError(f"cannot write {path}: no folder {os.path.dirname(path) or '.'}")
+        self.temporary = tempfile.mkdtemp(dir=parent, prefix=".ampcheck-", suffix=".tmp")
+        self.writer = writer(name, None, context, folder=self.temporary)
+
+    def close(self) -> None:
+        self.writer.close()
+        if self.path is None:
+            return
+        target = os.path.realpath(self.path)
+        old = None
+        if os.path.exists(target):
+            old = tempfile.mkdtemp(dir=os.path.dirname(target), prefix=".ampcheck-old-")
+            os.rmdir(old)
+            os.rename(target, old)
+        os.rename(self.temporary, target)
+        if old is not None:
+            shutil.rmtree(old, ignore_errors=True)
+        self.path = None
+
+    def abandon(self) -> None:
+        if self.path is not None:
+            shutil.rmtree(self.temporary, ignore_errors=True)
+            self.path = None
+
+
+def sink_for(name: str, path: str | None, context: ReportContext, inputs: list[str]):
+    """The sink of one report: a folder where the format writes one, else a stream."""
+    if writes_folder(name, path):
+        return FolderSink(name, path, context, inputs)
+    return Sink(name, path, context, inputs)
 
 
 class CheckRun:

@@ -14,8 +14,9 @@ import sys
 from checker import __version__
 
 EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
-FORMAT_NAMES = ["text", "json", "sarif", "compact", "csv"]
-FIGURE_FORMATS = {"text", "json"}  # the reports that show each stage's figures
+FORMAT_NAMES = ["text", "json", "sarif", "compact", "csv", "html"]
+FIGURE_FORMATS = {"text", "json", "html"}  # the reports that show each stage's figures
+HTML_MODULES = ("matplotlib", "jinja2")  # the `html` extra
 
 
 class UsageError(Exception):
@@ -162,7 +163,39 @@ def _request(args):
     return Request(config_file=config_file, select=ids(args.select), ignore=ids(args.ignore),
                    stray_capacitance_f=stray, parts=tuple(args.parts),
                    rules_dirs=tuple(args.rules_dir), use_config=not args.no_config,
-                   figures_wanted=bool(formats & FIGURE_FORMATS))
+                   figures_wanted=bool(formats & FIGURE_FORMATS),
+                   plots_wanted=_plots_wanted(args))
+
+
+def _plots_wanted(args) -> str:
+    """What the HTML review draws: every stage in full when one HTML file is written,
+    only what bears on findings when it is only a folder (an audit), else nothing."""
+    from checker.report import writes_folder
+
+    html = ([None] if args.format == "html" else []) + [
+        path for name, _, path in (item.partition(":") for item in args.output)
+        if name == "html"]
+    if not html:
+        return ""
+    if any(not writes_folder("html", path) for path in html):
+        return "all"
+    return "findings"
+
+
+def _check_html_extra(args) -> None:
+    """A clear message, naming the install command, when HTML is asked for without the
+    `html` extra (matplotlib and jinja2); nothing is imported here."""
+    import importlib.util
+
+    if args.format != "html" and not any(item.partition(":")[0] == "html"
+                                         for item in args.output):
+        return
+    missing = [name for name in HTML_MODULES if importlib.util.find_spec(name) is None]
+    if missing:
+        raise UsageError(f"the HTML review needs {' and '.join(missing)}, which are not"
+                         " installed: install the html extra with"
+                         " pip install 'ampcheck[html]' (from a checkout: pip install"
+                         " '.[html]')")
 
 
 def _outputs(args) -> list[tuple[str, str]]:
@@ -183,7 +216,7 @@ def _progress_wanted(args) -> bool:
 
 def cmd_check(args) -> int:
     from checker import audit, baseline as baselines
-    from checker.check_run import CheckRun, RunError, Sink
+    from checker.check_run import CheckRun, RunError, sink_for
     from checker.config import ConfigError
     from checker.engine import RuleError
     from checker.files import discover
@@ -193,6 +226,7 @@ def cmd_check(args) -> int:
     audit.forget()
     request = _request(args)
     outputs = _outputs(args)
+    _check_html_extra(args)
     if args.prune_baseline and not args.baseline:
         raise UsageError("--prune-baseline goes with --baseline FILE")
     paths, missing = discover(args.paths)
@@ -215,8 +249,8 @@ def cmd_check(args) -> int:
 
     context = ReportContext(__version__, fail_on, rules)
     try:
-        sinks = [Sink(args.format, None, context, paths)]
-        sinks += [Sink(name, path, context, paths) for name, path in outputs]
+        sinks = [sink_for(args.format, None, context, paths)]
+        sinks += [sink_for(name, path, context, paths) for name, path in outputs]
         run = CheckRun(context, sinks, baseline, args.prune_baseline, args.write_baseline)
         failing = run.run(paths, missing, request, jobs, _progress(args, len(paths)))
     except RunError as error:

@@ -45,3 +45,38 @@ class Verdict:
     @property
     def unchecked(self) -> bool:
         return self.status == UNCHECKED
+
+
+@dataclass(frozen=True)
+class Plot:
+    """One drawn figure of a stage, for the HTML review: an SVG text and its words.
+
+    ``key`` is unique within the stage ("loop-U1", "response-1", ...), ``alt`` the text
+    alternative: what the plot shows, with its numbers."""
+
+    kind: str  # "loop" | "response" | "range" | "noise" | "spread" | "poles"
+    key: str
+    title: str
+    alt: str
+    svg: str
+
+
+@dataclass(frozen=True)
+class ElementRow:
+    """One element of a stage as the review lists it: designator, kind, nets, value."""
+
+    ref: str
+    kind: str  # "op-amp", "resistor", "capacitor", "inductor", "source", "load", "supply"
+    nets: str  # "in → fb", or the op-amp's pins
+    value: str  # "100 kΩ ±1 %", the part's name, a source's range and band
+    line: int
+
+
+@dataclass(frozen=True)
+class StageSheet:
+    """What the HTML review shows of a stage beyond findings and verdicts: its element
+    list, its plots, and a note for each plot that was not drawn (and why)."""
+
+    elements: tuple[ElementRow, ...] = ()
+    plots: tuple[Plot, ...] = ()
+    notes: tuple[str, ...] = ()

@@ -18,7 +18,7 @@ from checker.engine import Rule, RunOptions, check_file_stages
 from checker.files import load_file
 from checker.findings import Finding, Severity
 from checker.model import OpAmpPart, Stage
-from checker.records import Verdict
+from checker.records import StageSheet, Verdict
 
 
 @dataclass
@@ -32,6 +32,7 @@ class StageResult:
     summary: dict = field(default_factory=dict)  # key figures, SI floats or None
     amplifiers: dict = field(default_factory=dict)  # per op-amp figures
     verdicts: list[Verdict] = field(default_factory=list)  # one per stated requirement
+    sheet: StageSheet | None = None  # element list and plots, for the HTML review only
 
 
 @dataclass
@@ -49,11 +50,13 @@ class FileResult:
 
 def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
                 options: RunOptions, figures_wanted: bool = True,
-                catalogue: dict[str, Rule] | None = None) -> FileResult:
+                catalogue: dict[str, Rule] | None = None,
+                plots_wanted: str = "") -> FileResult:
     """Read, build, analyse and check one file; ``figures_wanted`` false skips the
     per-stage summary figures (for reports that show findings only). ``catalogue`` is
     every loaded rule (the verdicts read the settings of rules that may not be
-    selected)."""
+    selected). ``plots_wanted`` "all" or "findings" draws each stage's sheet for the
+    HTML review (checker/report/plots.py) while its figures are alive."""
     loaded = load_file(path, library)
     result = FileResult(path, problems=loaded.problems)
     if not loaded.ok:
@@ -64,8 +67,20 @@ def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
         summary, amplifiers = summarise(stage, stage_figures) if figures_wanted else ({}, {})
         check = checks[stage.name]
         result.stages.append(StageResult(stage.name, stage.origin.line, check.findings,
-                                         summary, amplifiers, check.verdicts))
+                                         summary, amplifiers, check.verdicts,
+                                         _sheet(stage, stage_figures, check, options,
+                                                catalogue, plots_wanted)))
     return result
+
+
+def _sheet(stage, figures, check, options, catalogue, plots_wanted) -> StageSheet | None:
+    """The stage's element list and plots for the HTML review (None when not wanted)."""
+    if not plots_wanted:
+        return None
+    from checker.report.plots import stage_sheet  # matplotlib: only for an HTML review
+
+    return stage_sheet(stage, figures, check.findings, check.verdicts,
+                       lambda rule_id: options.settings_of(rule_id, catalogue), plots_wanted)
 
 
 def _finite(value) -> float | None:

@@ -57,15 +57,36 @@ def thermal_density(resistance_ohm: float, temperature_k: float) -> float:
     return math.sqrt(4 * BOLTZMANN * temperature_k * resistance_ohm)
 
 
-def output_noise(figures, band_low_hz: float, band_high_hz: float,
-                 temperature_k: float = 300.0, net: str | None = None,
-                 points: int = 200) -> NoiseResult:
-    """Integrated noise at ``net`` (default the stage output) over the band."""
+@dataclass(frozen=True)
+class NoiseDensity:
+    """Output noise density over a frequency grid, in total and per noise source."""
+
+    frequencies_hz: np.ndarray  # (F,)
+    names: tuple[tuple[str, str], ...]  # per source: (name, element), as in NoiseContribution
+    power: np.ndarray  # (F, m) V^2/Hz at the net from each source
+    missing: tuple[str, ...]  # op-amps whose part gives no en or in
+
+    @property
+    def total_v_per_rthz(self) -> np.ndarray:
+        """The output's total density sqrt(sum of powers) in V/sqrt(Hz), (F,): the
+        sources are uncorrelated, so their powers add."""
+        return np.sqrt(np.sum(self.power, axis=1)) if self.names else \
+            np.zeros(self.frequencies_hz.shape)
+
+    def density_of(self, k: int) -> np.ndarray:
+        """Source k's density at the net in V/sqrt(Hz), (F,)."""
+        return np.sqrt(self.power[:, k])
+
+
+def noise_density(figures, frequencies_hz: np.ndarray, temperature_k: float = 300.0,
+                  net: str | None = None) -> NoiseDensity:
+    """Noise density at ``net`` (default the stage output) at ``frequencies_hz`` (F,,
+    all above 0 Hz): each source's transfer solved in one batched call, times its
+    density (module docstring)."""
     circuit = figures.circuit
     stage = figures.stage
     node = circuit.node(net or stage.output_net)
-    start = max(band_low_hz, band_high_hz * 1e-4)
-    frequencies = np.geomspace(start, band_high_hz, points)
+    frequencies = np.asarray(frequencies_hz, dtype=float)
     n = circuit.size
     names: list[tuple[str, str]] = []
     densities: list[float] = []
@@ -106,15 +127,28 @@ def output_noise(figures, band_low_hz: float, band_high_hz: float,
                 add(f"{block.ref} current noise ({pin})", block.ref,
                     part.current_noise_a_per_rthz ** 2, column)
     if not columns or node == 0:
-        return NoiseResult(band_low_hz, band_high_hz, 0.0, (), tuple(missing))
+        return NoiseDensity(frequencies, (), np.zeros((frequencies.size, 0)), tuple(missing))
     B = np.stack(columns, axis=2)  # (F, n, m)
     X = figures.solve_columns(frequencies, B)
     transfer_sq = np.abs(X[:, node - 1, :]) ** 2  # (F, m)
     power = transfer_sq * np.asarray(densities)[None, :]  # V^2/Hz per source
+    return NoiseDensity(frequencies, tuple(names), power, tuple(missing))
+
+
+def output_noise(figures, band_low_hz: float, band_high_hz: float,
+                 temperature_k: float = 300.0, net: str | None = None,
+                 points: int = 200) -> NoiseResult:
+    """Integrated noise at ``net`` (default the stage output) over the band."""
+    start = max(band_low_hz, band_high_hz * 1e-4)
+    frequencies = np.geomspace(start, band_high_hz, points)
+    density = noise_density(figures, frequencies, temperature_k, net)
+    if not density.names:
+        return NoiseResult(band_low_hz, band_high_hz, 0.0, (), density.missing)
+    power = density.power
     integrated = _trapezoid(power, frequencies, axis=0) + power[0] * (start - band_low_hz)
     contributions = sorted(
         (NoiseContribution(name, element, float(math.sqrt(max(value, 0.0))))
-         for (name, element), value in zip(names, integrated)),
+         for (name, element), value in zip(density.names, integrated)),
         key=lambda c: -c.vrms)
     total = float(math.sqrt(max(float(np.sum(integrated)), 0.0)))
-    return NoiseResult(band_low_hz, band_high_hz, total, tuple(contributions), tuple(missing))
+    return NoiseResult(band_low_hz, band_high_hz, total, tuple(contributions), density.missing)

@@ -17,7 +17,17 @@ FORMATS = {
     "sarif": "checker.report.sarif",
     "compact": "checker.report.compact",
     "csv": "checker.report.csv_table",
+    "html": "checker.report.html_page",
 }
+# Formats whose --output path may name a folder (checker/report/html_page.py): any path
+# that does not end in one of these is a folder.
+FOLDER_FORMATS = {"html": (".html", ".htm")}
+
+
+def writes_folder(name: str, path: str | None) -> bool:
+    """True when format ``name`` written to ``path`` is a folder rather than a file."""
+    return name in FOLDER_FORMATS and path is not None and \
+        not path.lower().endswith(FOLDER_FORMATS[name])
 
 
 class Writer:
@@ -34,9 +44,10 @@ class Writer:
         """Finish the output (the base writes nothing more)."""
 
 
-def writer(name: str, out, context) -> Writer:
-    """A writer of format ``name`` to the text stream ``out``."""
-    return importlib.import_module(FORMATS[name]).Writer(out, context)
+def writer(name: str, out, context, **options) -> Writer:
+    """A writer of format ``name`` to the text stream ``out`` (``folder=`` for a format
+    that writes a folder)."""
+    return importlib.import_module(FORMATS[name]).Writer(out, context, **options)
 
 
 def render(name: str, results, context) -> str:
