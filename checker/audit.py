@@ -34,7 +34,7 @@ class Request:
     rules_dirs: tuple[str, ...] = ()
     use_config: bool = True
     figures_wanted: bool = True  # False when no report shows stage figures
-    plots_wanted: str = ""  # the HTML review's plots: "all", "findings" or "" (none)
+    plots_wanted: str = ""  # the HTML review's plots: "all", "failing" or "" (none)
 
 
 @lru_cache(maxsize=64)

@@ -179,7 +179,7 @@ def _plots_wanted(args) -> str:
         return ""
     if any(not writes_folder("html", path) for path in html):
         return "all"
-    return "findings"
+    return "failing"
 
 
 def _check_html_extra(args) -> None:

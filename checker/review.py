@@ -55,7 +55,7 @@ def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
     """Read, build, analyse and check one file; ``figures_wanted`` false skips the
     per-stage summary figures (for reports that show findings only). ``catalogue`` is
     every loaded rule (the verdicts read the settings of rules that may not be
-    selected). ``plots_wanted`` "all" or "findings" draws each stage's sheet for the
+    selected). ``plots_wanted`` "all" or "failing" draws each stage's sheet for the
     HTML review (checker/report/plots.py) while its figures are alive."""
     loaded = load_file(path, library)
     result = FileResult(path, problems=loaded.problems)

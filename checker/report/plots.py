@@ -67,7 +67,7 @@ RC = {
 }
 KINDS = ("loop", "response", "range", "noise", "spread", "poles")
 # Which plots bear on a finding or an unmet requirement, for reviews that plot only what
-# has findings (an audit written to a folder).
+# fails (an audit written to a folder): its errors and its requirements not met.
 RULE_KINDS = {
     "loop": views.STABILITY_RULES,
     "poles": frozenset({"unstable-stage", "loop-margin"}),
@@ -83,13 +83,14 @@ REQUIREMENT_KINDS = {"gain": ("response",), "bandwidth": ("response",),
                      "gain-tolerance": ("spread",), "cmrr": ("spread",)}
 
 
-def kinds_bearing_on(findings, verdicts) -> tuple[str, ...]:
-    """The plots that bear on the stage's findings at warning or above (not waived) and
-    its requirements that are not met, in the review's order."""
+def kinds_bearing_on(findings, verdicts, at_least: Severity = Severity.ERROR
+                     ) -> tuple[str, ...]:
+    """The plots that bear on the stage's findings at ``at_least`` or above (not waived)
+    and its requirements that are not met, in the review's order."""
     wanted: set[str] = set()
     keywords = {v.requirement for v in verdicts if v.not_met}
     for finding in findings:
-        if finding.severity < Severity.WARNING or finding.waiver is not None:
+        if finding.severity < at_least or finding.waiver is not None:
             continue
         wanted.update(kind for kind, rules in RULE_KINDS.items() if finding.rule in rules)
         if finding.details.get("loop"):
@@ -103,7 +104,8 @@ def kinds_bearing_on(findings, verdicts) -> tuple[str, ...]:
 
 def stage_sheet(stage, figures, findings, verdicts, settings_of, scope: str) -> StageSheet:
     """The element list and the plots of one checked stage. ``scope`` "all" draws every
-    plot that applies; "findings" only those bearing on its findings. A plot that
+    plot that applies; "failing" only those bearing on its errors and its requirements
+    not met (kinds_bearing_on). A plot that
     cannot be drawn becomes a note, never an error of the run."""
     elements = views.element_rows(stage)
     if not figures.solvable:
@@ -177,9 +179,25 @@ _PREAMBLE = re.compile(r"^.*?(?=<svg)", re.S)
 _METADATA = re.compile(r"<metadata>.*?</metadata>\s*", re.S)
 
 
+def _place_labels(figure) -> None:
+    """Pin every axis label to the figure's edge (2 pt in): matplotlib then need not
+    measure the tick labels to keep the label clear of them, a third of a plot's cost.
+    The margins are wide enough for the tick labels."""
+    width, height = figure.get_figwidth() * 72, figure.get_figheight() * 72
+    for ax in figure.axes:
+        box = ax.get_position()
+        if ax.get_xlabel():
+            ax.xaxis.set_label_coords(0.5, -(box.y0 - 2 / height) / box.height)
+            ax.xaxis.label.set_verticalalignment("bottom")
+        if ax.get_ylabel():
+            ax.yaxis.set_label_coords(-(box.x0 - 2 / width) / box.width, 0.5)
+            ax.yaxis.label.set_verticalalignment("top")
+
+
 def _svg(canvas, salt: str, key: str, title: str, alt: str) -> str:
     """The figure as an inline SVG element: no XML preamble or metadata, a title and a
     description for assistive technology, ids salted by stage and plot."""
+    _place_labels(canvas.figure)
     out = StringIO()
     with matplotlib.rc_context({**RC, "svg.hashsalt": f"{salt}\x00{key}"}):
         canvas.print_svg(out, metadata={"Date": None, "Creator": None, "Format": None,
@@ -198,7 +216,7 @@ def _heading(figure, ax, title: str, detail: str) -> None:
     height = figure.get_figheight()
     figure.text(0.012, 1 - 0.06 / height, title, fontsize=9.5, fontweight="bold", va="top",
                 ha="left")
-    ax.set_title(detail, fontsize=8, fontweight="normal", loc="left", pad=4)
+    ax.set_title(detail, fontsize=8, fontweight="normal", loc="left", pad=4, y=1.0)
 
 
 def _top(figure) -> float:
@@ -440,7 +458,6 @@ def draw_range(view: views.RangeView, salt: str) -> Plot:
         _heading(figure, ax, title, "; ".join(
             f"{r.label} {format_si(r.low, 'V')} to {format_si(r.high, 'V')}"
             for r in view.rows))
-        ax.set_xlabel("DC voltage")
         height = figure.get_figheight()
         ax.legend(loc="lower center", bbox_to_anchor=(0.5, 0.0), ncol=4,
                   bbox_transform=figure.transFigure)
