@@ -248,12 +248,16 @@ def cmd_check(args) -> int:
         raise UsageError("--jobs takes a whole number of at least 1")
 
     context = ReportContext(__version__, fail_on, rules)
+    sinks = []
     try:
-        sinks = [sink_for(args.format, None, context, paths)]
-        sinks += [sink_for(name, path, context, paths) for name, path in outputs]
+        sinks.append(sink_for(args.format, None, context, paths))
+        for name, path in outputs:
+            sinks.append(sink_for(name, path, context, paths))
         run = CheckRun(context, sinks, baseline, args.prune_baseline, args.write_baseline)
         failing = run.run(paths, missing, request, jobs, _progress(args, len(paths)))
     except RunError as error:
+        for sink in sinks:  # reports opened before the one that could not be
+            sink.abandon()
         raise UsageError(str(error)) from None
     return EXIT_FINDINGS if failing else EXIT_OK
 

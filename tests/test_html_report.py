@@ -318,3 +318,12 @@ def test_text_run_imports_neither_plotting_nor_templating():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                          check=True, cwd=ROOT).stdout
     assert out.strip().splitlines()[-1] == "[]"
+
+
+def test_a_review_folder_is_dropped_when_a_later_report_cannot_be_opened(tmp_path, capsys):
+    stage = tmp_path / "conductivity.stage"
+    stage.write_text((SAMPLES / "conductivity.stage").read_text())
+    assert main(["check", str(stage), "--format", "compact", "--output",
+                 f"html:{tmp_path / 'review'}", "--output", f"json:{stage}"]) == 2
+    assert "refusing to write over the input file" in capsys.readouterr().err
+    assert sorted(os.listdir(tmp_path)) == ["conductivity.stage"]
