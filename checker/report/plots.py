@@ -25,7 +25,7 @@ from markupsafe import escape
 from matplotlib.backends.backend_svg import FigureCanvasSVG
 from matplotlib.figure import Figure
 from matplotlib.ticker import (EngFormatter, LogLocator, MaxNLocator, MultipleLocator,
-                               NullFormatter, NullLocator, SymmetricalLogLocator)
+                               NullFormatter, NullLocator, FixedLocator)
 
 from checker.analysis.loop import unwrapped_phase_deg
 from checker.analysis.mna import SingularCircuit
@@ -210,12 +210,22 @@ def _svg(canvas, salt: str, key: str, title: str, alt: str) -> str:
             + text[opening:])
 
 
+TITLE_CHARACTERS = 84  # what fits across the figure in the title's size
+DETAIL_CHARACTERS = 110
+
+
+def _fit(text: str, characters: int) -> str:
+    """``text`` shortened to ``characters`` (the caption keeps it whole)."""
+    return text if len(text) <= characters else text[:characters - 1].rstrip() + "…"
+
+
 def _heading(figure, ax, title: str, detail: str) -> None:
     """The plot's title (bold, at the figure's top left) and its figures in a line
     below it, over the axes."""
     height = figure.get_figheight()
-    figure.text(0.012, 1 - 0.06 / height, title, fontsize=9.5, fontweight="bold", va="top",
-                ha="left")
+    figure.text(0.012, 1 - 0.06 / height, _fit(title, TITLE_CHARACTERS), fontsize=9.5,
+                fontweight="bold", va="top", ha="left")
+    detail = _fit(detail, DETAIL_CHARACTERS)
     ax.set_title(detail, fontsize=8, fontweight="normal", loc="left", pad=4, y=1.0)
 
 
@@ -591,14 +601,16 @@ def draw_poles(view: views.PoleView, salt: str) -> Plot:
         magnitudes = np.abs(view.poles) / (2 * math.pi)
         smallest = float(np.min(magnitudes[magnitudes > 0])) if np.any(magnitudes > 0) else 1.0
         largest = float(np.max(magnitudes)) if magnitudes.size else 1.0
-        threshold = 10 ** math.floor(math.log10(smallest / 3))
-        reach = 10 ** math.ceil(math.log10(largest * 1.5))
+        low = math.floor(math.log10(smallest / 3))
+        high = math.ceil(math.log10(largest * 1.5))
+        threshold, reach = 10.0 ** low, 10.0 ** high
+        stride = max(1, math.ceil((high - low) / 3))  # at most four decades marked a side
+        decades = [10.0 ** k for k in range(high, low, -stride)]
+        ticks = [-d for d in decades] + [0.0] + decades[::-1]
         for axis in ("x", "y"):
             getattr(ax, f"set_{axis}scale")("symlog", linthresh=threshold, linscale=0.5)
             axis_obj = getattr(ax, f"{axis}axis")
-            locator = SymmetricalLogLocator(linthresh=threshold, base=10, subs=[1.0])
-            locator.set_params(numticks=9)
-            axis_obj.set_major_locator(locator)
+            axis_obj.set_major_locator(FixedLocator(ticks))
             axis_obj.set_minor_locator(NullLocator())
             axis_obj.set_major_formatter(EngFormatter(unit="Hz", sep=" "))
         ax.set_xlim(-reach, reach)
@@ -609,6 +621,7 @@ def draw_poles(view: views.PoleView, salt: str) -> Plot:
         ax.axhline(0, color="#444444", linewidth=0.6)
         ax.plot(sigma, omega, linestyle="none", marker="x", markersize=6, markeredgewidth=1.4,
                 color=SERIES[0], label="natural frequency")
+        ax.legend(loc="lower right")  # on the right half-plane, where stable poles are not
         state = "stable" if view.stable else "UNSTABLE"
         text = state
         if view.dominant is not None:
@@ -617,7 +630,6 @@ def draw_poles(view: views.PoleView, salt: str) -> Plot:
         _heading(figure, ax, title, text)
         ax.set_xlabel("σ/2π (real part)")
         ax.set_ylabel("ω/2π (imaginary part)")
-        ax.legend(loc="upper left")
         figure.subplots_adjust(left=0.13, right=0.96, top=_top(figure), bottom=0.15)
         listed = ", ".join(f"{format_si(s, 'Hz')} {'+' if w >= 0 else '−'} j{format_si(abs(w), 'Hz')}"
                            for s, w in zip(sigma[:12], omega[:12]))
