@@ -44,10 +44,12 @@ class FileResult:
 
 
 def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
-                options: RunOptions, figures_wanted: bool = True) -> FileResult:
+                options: RunOptions, figures_wanted: bool = True,
+                netlist_map=None) -> FileResult:
     """Read, build, analyse and check one file; ``figures_wanted`` false skips the
-    per-stage summary figures (for reports that show findings only)."""
-    loaded = load_file(path, library)
+    per-stage summary figures (for reports that show findings only); ``netlist_map``
+    is what a netlist file is cut into stages with."""
+    loaded = load_file(path, library, netlist_map)
     result = FileResult(path, problems=loaded.problems)
     if not loaded.ok:
         return result
