@@ -206,6 +206,13 @@ class _Board:
     def is_ground(self, net: str) -> bool:
         return net == GROUND
 
+    def declared(self, card_name: str):
+        """The map's (stage-of REF ...) for an op-amp, by its netlist name (XU1) or its
+        designator without the X (U1)."""
+        stages = self.scope.stages
+        return stages.get(key(card_name)) or (
+            stages.get(key(card_name[1:])) if card_name[:1] in "Xx" else None)
+
     # -- reading the cards ------------------------------------------------------------
     def read_cards(self) -> None:
         title = self.netlist.title
@@ -477,11 +484,13 @@ class _Board:
             if driven:
                 owner_of_bridge[j] = driven[0]
         refs = {key(o.ref): o.index for o in self.opamps}
-        for ref, declaration in self.scope.stages.items():
-            if ref in refs:
-                for other in declaration.join:
-                    if key(other) in refs:
-                        groups.union(refs[ref], refs[key(other)])
+        refs.update({key(o.ref[1:]): o.index for o in self.opamps
+                     if o.ref[:1] in "Xx" and key(o.ref[1:]) not in refs})
+        for opamp in self.opamps:
+            declaration = self.declared(opamp.ref)
+            for other in declaration.join if declaration else ():
+                if key(other) in refs:
+                    groups.union(opamp.index, refs[key(other)])
         # drives[a] = op-amps whose inputs a's output reaches (through an island they read
         # or straight onto the pin)
         drives: dict[int, set[int]] = {o.index: set() for o in self.opamps}
@@ -514,8 +523,9 @@ class _Board:
         for item in orphans:
             refs_text = ", ".join(p.ref for p in item.passives[:6])
             more = f" and {len(item.passives) - 6} more" if len(item.passives) > 6 else ""
+            verb = "connects" if len(item.passives) == 1 else "connect"
             self.note(NOT_ANALYSED, item.passives[0].card, f"not analysed: {refs_text}{more}"
-                      " connect to no op-amp that the netlist map names",
+                      f" {verb} to no op-amp that the netlist map names",
                       item.nets, tuple(p.ref for p in item.passives))
         return list(ordered.values()), {"islands": owned, "bridges": bridge_owner,
                                         "outputs": outputs, "terminal": terminal}, orphans
@@ -727,10 +737,10 @@ class _StageTrees:
     def names(self) -> list[str]:
         used: set[str] = set()
         names = []
-        declared = self.board.scope.stages
         for group in self.groups:
-            name = next((declared[key(o.ref)].name for o in group
-                         if key(o.ref) in declared and declared[key(o.ref)].name), None)
+            name = next((self.board.declared(o.ref).name for o in group
+                         if self.board.declared(o.ref) and self.board.declared(o.ref).name),
+                        None)
             if name is None:
                 name = "-".join(self.writer.ref(o.ref, opamp=True).lower() for o in group)
             base, n = name, 2
@@ -759,8 +769,8 @@ class _StageTrees:
         name = self.stage_names[n]
         first = opamps[0].card
         writer.positions[at] = _at(first)
-        declaration = next((board.scope.stages[key(o.ref)] for o in opamps
-                            if key(o.ref) in board.scope.stages), None)
+        declaration = next((board.declared(o.ref) for o in opamps if board.declared(o.ref)),
+                           None)
         stage: dict = {"name": name,
                        "note": (declaration.note if declaration and declaration.note else
                                 f"Extracted from {board.file}."),
