@@ -532,6 +532,10 @@ class _Board:
 
     def interlock(self, groups: _UnionFind, drives: dict[int, set[int]]) -> None:
         """Join groups in a drives cycle, and differential receivers with their pair."""
+        driven_by: dict[int, set[int]] = {}
+        for driver, targets in drives.items():
+            for target in targets:
+                driven_by.setdefault(target, set()).add(driver)
         for _ in range(len(self.opamps) + 1):
             changed = False
             graph: dict[int, set[int]] = {}
@@ -549,8 +553,8 @@ class _Board:
             for opamp in self.opamps:
                 mine = groups.find(opamp.index)
                 by_group: dict[int, set[int]] = {}
-                for driver, targets in drives.items():
-                    if opamp.index in targets and groups.find(driver) != mine:
+                for driver in driven_by.get(opamp.index, ()):
+                    if groups.find(driver) != mine:
                         by_group.setdefault(groups.find(driver), set()).add(driver)
                 for group, drivers in by_group.items():
                     if len(drivers) >= 2:
@@ -726,8 +730,12 @@ class _StageTrees:
         notes: dict[str, list[ReaderNote]] = {name: [] for name in self.stage_names}
         for n, tree in enumerate(stages):
             notes[self.stage_names[n]].extend(tree.pop("_notes"))
+        stage_of_net: dict[str, int] = {}
+        for n, nets in enumerate(stage_nets):
+            for net in nets:
+                stage_of_net.setdefault(net, n)
         for note, nets in self.board.notes:
-            target = next((n for n, s in enumerate(stage_nets) if nets & s), 0)
+            target = min((stage_of_net[net] for net in nets if net in stage_of_net), default=0)
             notes[self.stage_names[target]].append(note)
         tree = {"version": 1, "stages": stages}
         links = [(stage, self.writer.name(net), upstream)
