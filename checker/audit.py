@@ -34,6 +34,7 @@ class Request:
     rules_dirs: tuple[str, ...] = ()
     use_config: bool = True
     figures_wanted: bool = True  # False when no report shows stage figures
+    netlist_map: str | None = None  # --netlist-map: the map for every netlist
 
 
 @lru_cache(maxsize=64)
@@ -69,6 +70,26 @@ class FileSetup:
     options: RunOptions
     library: dict
     all_rules: dict = field(default_factory=dict)
+    netlist_map: object = None  # checker.netlist.mapping.NetlistMap, for netlist files
+
+
+def netlist_map_path(path: str, request: Request) -> str | None:
+    """The netlist map that governs ``path``: --netlist-map, else the configuration's."""
+    return request.netlist_map or config_for(path, request).get("netlist-map")
+
+
+@lru_cache(maxsize=32)
+def _netlist_map(path: str, library_key: tuple[str, ...]):
+    from checker.io.positions import InputErrors
+    from checker.netlist.mapping import check_parts, load_map
+
+    try:
+        netlist_map = load_map(path)
+        check_parts(netlist_map, _library(library_key))
+    except InputErrors as errors:
+        raise ConfigError("cannot load netlist map:\n  " +
+                          "\n  ".join(str(p) for p in errors.problems)) from None
+    return netlist_map
 
 
 def setup_for(path: str, request: Request) -> FileSetup:
@@ -93,14 +114,17 @@ def setup_for(path: str, request: Request) -> FileSetup:
     options = RunOptions(analysis=AnalysisOptions(stray_capacitance_f=stray), select=select,
                          ignore=frozenset(ignore), settings=settings, severities=severities,
                          known_rules=frozenset(rules))
-    library = _library(tuple(config.get("parts", [])) + request.parts)
-    return FileSetup(selected(rules, options), options, library, rules)
+    library_key = tuple(config.get("parts", [])) + request.parts
+    library = _library(library_key)
+    map_path = request.netlist_map or config.get("netlist-map")
+    netlist_map = _netlist_map(map_path, library_key) if map_path else None
+    return FileSetup(selected(rules, options), options, library, rules, netlist_map)
 
 
 def check_file(path: str, request: Request) -> FileResult:
     setup = setup_for(path, request)
     return review_file(path, setup.library, setup.rules, setup.options,
-                       request.figures_wanted, setup.all_rules)
+                       request.figures_wanted, setup.all_rules, setup.netlist_map)
 
 
 def _worker(task: tuple[str, Request]) -> FileResult:
@@ -126,7 +150,9 @@ def check_files(paths: list[str], request: Request, jobs: int = 1) -> Iterator[F
 def forget() -> None:
     """Drop cached configurations and libraries (files may have changed since the last
     run in this process)."""
-    for cached in (config_at, rules_for, _library, find_config_file):
+    from checker.netlist.mapping import load_map
+
+    for cached in (config_at, rules_for, _library, find_config_file, _netlist_map, load_map):
         cached.cache_clear()
 
 

@@ -32,7 +32,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     check = commands.add_parser("check", help="read, analyse and review stage files")
     check.add_argument("paths", nargs="+", metavar="PATH",
-                       help="stage files or directories (searched for *.stage, *.stage.json)")
+                       help="stage files, netlists or directories (searched for *.stage,"
+                            " *.stage.json, and netlists where a netlist map governs them)")
     check.add_argument("--format", choices=FORMAT_NAMES, default="text",
                        help="report format on standard output (default text)")
     check.add_argument("--output", action="append", default=[], metavar="FORMAT:PATH",
@@ -46,6 +47,8 @@ def build_parser() -> argparse.ArgumentParser:
                        help="also load rules from this folder (repeatable)")
     check.add_argument("--parts", action="append", default=[], metavar="FILE",
                        help="a part library file (repeatable); its parts override built-ins")
+    check.add_argument("--netlist-map", metavar="FILE",
+                       help="the netlist map for netlist files (see docs/netlist.md)")
     check.add_argument("--stray-capacitance", metavar="VALUE",
                        help="stray capacitance added at every inverting input (default 1p)")
     check.add_argument("--config", metavar="FILE",
@@ -83,6 +86,19 @@ def build_parser() -> argparse.ArgumentParser:
     convert.add_argument("--to", choices=["json", "sexp"], required=True)
     convert.add_argument("-o", "--output", metavar="PATH",
                          help="write to a new file (never the input) instead of stdout")
+
+    extract = commands.add_parser("extract", help="write netlists' stages as stage files")
+    extract.add_argument("paths", nargs="+", metavar="NETLIST",
+                         help="netlist files or directories (searched for netlist endings)")
+    extract.add_argument("--into", required=True, metavar="DIR",
+                         help="a new folder to write the stage files to (must not exist)")
+    extract.add_argument("--netlist-map", metavar="FILE",
+                         help="the netlist map (else the configuration's netlist-map)")
+    extract.add_argument("--parts", action="append", default=[], metavar="FILE",
+                         help="a part library file (repeatable)")
+    extract.add_argument("--config", metavar="FILE",
+                         help="use this configuration file for every path")
+    extract.add_argument("--no-config", action="store_true", help="ignore configuration files")
 
     parts = commands.add_parser("parts", help="list the op-amp parts in the library")
     parts.add_argument("--parts", action="append", default=[], metavar="FILE",
@@ -162,7 +178,8 @@ def _request(args):
     return Request(config_file=config_file, select=ids(args.select), ignore=ids(args.ignore),
                    stray_capacitance_f=stray, parts=tuple(args.parts),
                    rules_dirs=tuple(args.rules_dir), use_config=not args.no_config,
-                   figures_wanted=bool(formats & FIGURE_FORMATS))
+                   figures_wanted=bool(formats & FIGURE_FORMATS),
+                   netlist_map=args.netlist_map)
 
 
 def _outputs(args) -> list[tuple[str, str]]:
@@ -195,7 +212,11 @@ def cmd_check(args) -> int:
     outputs = _outputs(args)
     if args.prune_baseline and not args.baseline:
         raise UsageError("--prune-baseline goes with --baseline FILE")
-    paths, missing = discover(args.paths)
+    try:
+        paths, missing = discover(args.paths,
+                                  lambda path: audit.netlist_map_path(path, request) is not None)
+    except ConfigError as error:
+        raise UsageError(str(error)) from None
     if not paths and not missing:
         raise UsageError("no stage files (*.stage, *.stage.json) found in "
                          + ", ".join(args.paths))
@@ -255,7 +276,8 @@ def cmd_config(args) -> int:
         args.path if os.path.isdir(args.path) else os.path.dirname(os.path.abspath(args.path)))
     print(f"configuration for {args.path}: {source or 'none found (defaults)'}")
     defaults = {"fail-on": "error", "select": "all rules", "ignore": "none",
-                "rules-dirs": "none", "parts": "none", "stray-capacitance": "1p", "jobs": "CPU count"}
+                "rules-dirs": "none", "parts": "none", "netlist-map": "none",
+                "stray-capacitance": "1p", "jobs": "CPU count"}
     for key, default in defaults.items():
         item = config.values.get(key)
         value = default if item is None else item.value
@@ -353,6 +375,25 @@ def cmd_convert(args) -> int:
     return EXIT_OK
 
 
+def cmd_extract(args) -> int:
+    from checker.netlist.extract_command import ExtractError, extract_into
+
+    try:
+        failed = extract_into(args.paths, args.into, _extract_request(args))
+    except ExtractError as error:
+        raise UsageError(str(error)) from None
+    return EXIT_FINDINGS if failed else EXIT_OK
+
+
+def _extract_request(args):
+    from checker.audit import Request
+
+    if args.config and not os.path.isfile(args.config):
+        raise UsageError(f"--config: no such file {args.config}")
+    return Request(config_file=args.config, parts=tuple(args.parts),
+                   use_config=not args.no_config, netlist_map=args.netlist_map)
+
+
 def cmd_parts(args) -> int:
     from checker.report.summary import print_parts
 
@@ -362,4 +403,4 @@ def cmd_parts(args) -> int:
 
 COMMANDS = {"check": cmd_check, "schema": cmd_schema, "convert": cmd_convert,
             "parts": cmd_parts, "rules": cmd_rules, "explain": cmd_explain,
-            "config": cmd_config}
+            "config": cmd_config, "extract": cmd_extract}

@@ -9,6 +9,7 @@ Keys (top level):
     select, ignore     lists of rule ids
     rules-dirs         folders of user rules (relative to the configuration file)
     parts              part-library files (relative to the configuration file)
+    netlist-map        the netlist map for netlists (relative to the configuration file)
     stray-capacitance  a capacitance ("1p") added at every inverting input
     jobs               worker processes for `check` (0: one per CPU)
     [rules.RULE-ID]    severity = "error" | "warning" | "info", and the rule's settings
@@ -35,7 +36,7 @@ from checker.units import UnitError, parse_value
 
 CONFIG_FILE = "ampcheck.toml"
 TOP_KEYS = {"fail-on", "select", "ignore", "rules-dirs", "parts", "stray-capacitance", "jobs",
-            "rules", "overrides"}
+            "rules", "overrides", "netlist-map"}
 OVERRIDE_KEYS = {"paths", "select", "ignore", "stray-capacitance", "rules"}
 FAIL_ON = ("error", "warning", "info", "never")
 
@@ -206,6 +207,10 @@ def _values(table: dict, keys: tuple, where, fail, base: str, known_rules, top: 
             if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
                 fail(keys + (key,), f"{key} is a list of paths")
             value = [os.path.normpath(os.path.join(base, v)) for v in value]
+        elif key == "netlist-map":
+            if not isinstance(value, str) or not value:
+                fail(keys + (key,), "netlist-map is the path of one netlist map file")
+            value = os.path.normpath(os.path.join(base, value))
         elif key == "stray-capacitance":
             try:
                 value = parse_value(value, "capacitance")

@@ -226,6 +226,17 @@ class Waiver:
 
 
 @dataclass(frozen=True)
+class ReaderNote:
+    """What the reader of a foreign file (a netlist) left out or assumed for a stage, for
+    the rules that report it (``not-analysed``, ``boundary-assumed``)."""
+
+    kind: str  # "not-analysed" | "assumed"
+    message: str
+    origin: Origin
+    elements: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
 class Stage:
     name: str
     origin: Origin
@@ -238,6 +249,7 @@ class Stage:
     require: Requirements = field(default_factory=Requirements)
     note: str | None = None
     waivers: tuple[Waiver, ...] = ()
+    reader_notes: tuple[ReaderNote, ...] = ()  # set for stages extracted from a netlist
 
     @property
     def path(self) -> str:

@@ -49,12 +49,12 @@ class FileResult:
 
 def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
                 options: RunOptions, figures_wanted: bool = True,
-                catalogue: dict[str, Rule] | None = None) -> FileResult:
+                catalogue: dict[str, Rule] | None = None, netlist_map=None) -> FileResult:
     """Read, build, analyse and check one file; ``figures_wanted`` false skips the
     per-stage summary figures (for reports that show findings only). ``catalogue`` is
     every loaded rule (the verdicts read the settings of rules that may not be
-    selected)."""
-    loaded = load_file(path, library)
+    selected); ``netlist_map`` is what a netlist file is cut into stages with."""
+    loaded = load_file(path, library, netlist_map)
     result = FileResult(path, problems=loaded.problems)
     if not loaded.ok:
         return result
