@@ -15,10 +15,10 @@ def rail_headroom(view):
     """
     What it checks:
         For every op-amp with negative feedback, the DC extremes of its output over the
-        sources' declared ranges (a source that moves the output but gives no range
-        leaves its extremes unknown: the rule says it could not check), (an AC
-        amplitude counts at its peak gain over the
-        band), widened by the worst case of input offset voltage and bias currents.
+        sources' declared ranges (an AC amplitude counts at its peak gain over the
+        band), widened by the worst case of input offset voltage and bias currents; a
+        source that moves the output but gives no range leaves its extremes unknown,
+        and the rule says it could not check.
         The output may swing to each rail less the part's output headroom: beyond that
         it clips (error); within `margin_v` (or the stage's `headroom` requirement) of
         it, it is warned. The inputs' common-mode range is the `common-mode-range`
