@@ -137,6 +137,7 @@ class Supply:
     net: str
     voltage_v: float
     origin: Origin
+    mains: str | None = None  # "isolated" | "not-isolated": declared derived from the mains
 
 
 @dataclass(frozen=True)
@@ -238,6 +239,7 @@ class Stage:
     require: Requirements = field(default_factory=Requirements)
     note: str | None = None
     waivers: tuple[Waiver, ...] = ()
+    mains: str | None = None  # "isolated" | "not-isolated": the stage declared on the mains
 
     @property
     def path(self) -> str:

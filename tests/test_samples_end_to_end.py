@@ -19,7 +19,6 @@ SHOWN_BY = {
     "rail-headroom": "level-gain",
     "open-loop": "flood-alarm",
     "load-isolation": "logger-line-driver",
-    "high-voltage": "piezo-driver",
     "bandwidth": "rain-impact-preamp",
     "slew-rate": "scour-probe-drive",
     "output-current": "scour-probe-drive",
