@@ -310,9 +310,9 @@ def test_a_user_rule_cannot_take_a_cautions_id(project, capsys):
 
 
 # -- acknowledged by a waiver, and still printed -------------------------------------------------
-ACKNOWLEDGED = PIEZO.replace(
-    "(load out (resistance 10k)))",
-    '(load out (resistance 10k))\n  (waive high-voltage "reviewed by the safety engineer, enclosure drawing E-4"))')
+REASON = "reviewed by the safety engineer, enclosure drawing E-4"
+ACKNOWLEDGED = PIEZO.replace("(load out (resistance 10k)))",
+                             f'(load out (resistance 10k))\n  (waive high-voltage "{REASON}"))')
 
 
 def test_a_waiver_acknowledges_the_caution_and_it_stays_in_every_format(project, capsys):
