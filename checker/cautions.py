@@ -192,10 +192,11 @@ def _source_caution(stage: Stage, source: Source) -> Caution | None:
     elif basis == "dc":
         what = (f"{source.name} reaches {format_si(peak, 'V')}: {format_si(dc_v, 'V')} DC"
                 f" with a ripple of {format_si(ac_peak_v, 'V')} peak")
+    elif dc_v == 0:
+        what = f"{source.name} reaches {format_si(peak, 'V')} peak AC"
     else:
         what = (f"{source.name} reaches {format_si(peak, 'V')} peak"
-                f" ({format_si(ac_peak_v, 'V')} AC peak"
-                + (f" on {format_si(dc_v, 'V')} DC" if dc_v else "") + ")")
+                f" ({format_si(ac_peak_v, 'V')} AC peak on {format_si(dc_v, 'V')} DC)")
     kind = "DC" if basis == "dc" else "AC peak"
     return Caution(
         HIGH_VOLTAGE, f"{what}, beyond the {format_si(limit, 'V')} {kind} extra-low-voltage"
