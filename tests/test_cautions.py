@@ -442,3 +442,14 @@ def test_explain_and_rules_list_the_cautions(capsys):
     assert code == 0 and "a safety caution" in out and "What it checks:" in out
     code, out, _ = run(capsys, "rules")
     assert code == 0 and "high-voltage" in out and "mains-derived" in out
+
+
+def test_a_waiver_on_a_source_acknowledges_that_sources_caution_only(project, capsys):
+    # Two cautions: the 150 V supply span and the 55 V peak AC source; the source's own
+    # waiver acknowledges its caution and leaves the supplies' one as it is.
+    (project / "piezo.stage").write_text(PIEZO.replace(
+        "(source in (amplitude 2.9V)",
+        '(source in (waive high-voltage "probe behind the guard") (amplitude 55V)'))
+    _, out, _ = run(capsys, "check", "piezo.stage", "--format", "json")
+    found = {(tuple(c["elements"]), c["acknowledged"]) for c in document_cautions(out)}
+    assert found == {(("source at in",), "probe behind the guard"), ((), None)}
