@@ -14,6 +14,8 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 
 from checker.analysis import AnalysisOptions
+from checker.cautions import KINDS as CAUTION_KINDS
+from checker.cautions import not_a_rule
 from checker.config import Config, ConfigError, find_config_file, parse_config
 from checker.engine import ENGINE_RULES, RuleError, RunOptions, load_rules, selected
 from checker.findings import Severity
@@ -101,6 +103,9 @@ def setup_for(path: str, request: Request) -> FileSetup:
     select = request.select if request.select is not None else config.get("select")
     ignore = request.ignore if request.ignore is not None else config.get("ignore", frozenset())
     for ids in (select or (), ignore):
+        cautions = sorted(set(ids) & set(CAUTION_KINDS))
+        if cautions:
+            raise RuleError(not_a_rule(cautions[0]))
         unknown = sorted(set(ids) - set(rules) - set(ENGINE_RULES))
         if unknown:
             raise RuleError(f"unknown rule id {', '.join(unknown)}; `ampcheck rules` lists them")

@@ -193,6 +193,15 @@ def _outputs(args) -> list[tuple[str, str]]:
     return outputs
 
 
+def _caution_notice_wanted(args) -> bool:
+    """Cautions go to standard error as well, unless the text report is read at a
+    terminal (its Cautions heading shows them): always under a commit hook, which
+    shows a passing hook's output only when verbose."""
+    if os.environ.get("PRE_COMMIT"):
+        return True
+    return not (args.format == "text" and sys.stdout.isatty())
+
+
 def _progress_wanted(args) -> bool:
     return (not args.no_progress and sys.stderr.isatty() and not os.environ.get("PRE_COMMIT")
             and not os.environ.get("CI"))
@@ -238,7 +247,8 @@ def cmd_check(args) -> int:
     try:
         sinks = [Sink(args.format, None, context, paths)]
         sinks += [Sink(name, path, context, paths) for name, path in outputs]
-        run = CheckRun(context, sinks, baseline, args.prune_baseline, args.write_baseline)
+        run = CheckRun(context, sinks, baseline, args.prune_baseline, args.write_baseline,
+                       caution_notice=_caution_notice_wanted(args))
         failing = run.run(paths, missing, request, jobs, _progress(args, len(paths)))
     except RunError as error:
         raise UsageError(str(error)) from None
@@ -300,6 +310,7 @@ def cmd_config(args) -> int:
 def cmd_rules(args) -> int:
     from rich.table import Table
 
+    from checker.cautions import KINDS as CAUTION_KINDS
     from checker.engine import ENGINE_RULES, ENGINE_SEVERITIES
     from checker.report.summary import console
 
@@ -316,13 +327,23 @@ def cmd_rules(args) -> int:
         table.add_row(rule.id, rule.severity.label, rule.summary)
     for rid, summary in ENGINE_RULES.items():
         table.add_row(rid, ENGINE_SEVERITIES[rid].label, summary + " (built into the engine)")
+    for kind in CAUTION_KINDS.values():
+        table.add_row(kind.id, "caution", kind.summary + " (a safety caution: always"
+                      " reported, never selected, ignored or configured)")
     console().print(table)
     return EXIT_OK
 
 
 def cmd_explain(args) -> int:
+    from checker.cautions import KINDS as CAUTION_KINDS
     from checker.engine import ENGINE_RULES, ENGINE_SEVERITIES
 
+    if args.rule in CAUTION_KINDS:
+        kind = CAUTION_KINDS[args.rule]
+        print(f"{kind.id} (a safety caution: always reported; not a rule, so it cannot be"
+              f" selected, ignored, configured or given a severity)\n{kind.summary}\n")
+        print(kind.doc.rstrip())
+        return EXIT_OK
     rules = _rules(args.rules_dir)
     if args.rule in ENGINE_RULES:
         print(f"{args.rule} ({ENGINE_SEVERITIES[args.rule].label}, built into the engine)"
@@ -331,7 +352,7 @@ def cmd_explain(args) -> int:
     if args.rule not in rules:
         import difflib
 
-        close = difflib.get_close_matches(args.rule, list(rules), n=1)
+        close = difflib.get_close_matches(args.rule, list(rules) + list(CAUTION_KINDS), n=1)
         hint = f"; did you mean {close[0]}?" if close else "; `ampcheck rules` lists them"
         raise UsageError(f"no rule {args.rule!r}{hint}")
     rule = rules[args.rule]

@@ -31,6 +31,8 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
+from checker.cautions import KINDS as CAUTION_KINDS
+from checker.cautions import not_a_rule
 from checker.findings import Severity
 from checker.units import UnitError, parse_value
 
@@ -199,6 +201,9 @@ def _values(table: dict, keys: tuple, where, fail, base: str, known_rules, top: 
         elif key in ("select", "ignore"):
             if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
                 fail(keys + (key,), f"{key} is a list of rule ids")
+            cautions = [v for v in value if v in CAUTION_KINDS]
+            if cautions:
+                fail(keys + (key,), not_a_rule(cautions[0]))
             unknown = [v for v in value if v not in known_rules]
             if unknown:
                 fail(keys + (key,), f"unknown rule id {', '.join(unknown)} in {key}")
@@ -230,6 +235,8 @@ def _rule_tables(table: dict, keys: tuple, where, fail, known_rules) -> dict:
         fail(keys, "rules is a table of [rules.RULE-ID] tables")
     result: dict[str, dict[str, Valued]] = {}
     for rule_id, settings in table.items():
+        if rule_id in CAUTION_KINDS:
+            fail(keys + (rule_id,), not_a_rule(rule_id))
         if rule_id not in known_rules:
             fail(keys + (rule_id,), _unknown(rule_id, known_rules).replace("key", "rule id"))
         if not isinstance(settings, dict):

@@ -137,6 +137,7 @@ class Supply:
     net: str
     voltage_v: float
     origin: Origin
+    mains: str | None = None  # "isolated" | "not-isolated": declared derived from the mains
 
 
 @dataclass(frozen=True)
@@ -250,6 +251,7 @@ class Stage:
     note: str | None = None
     waivers: tuple[Waiver, ...] = ()
     reader_notes: tuple[ReaderNote, ...] = ()  # set for stages extracted from a netlist
+    mains: str | None = None  # "isolated" | "not-isolated": the stage declared on the mains
 
     @property
     def path(self) -> str:

@@ -18,7 +18,7 @@ from checker.engine import Rule, RunOptions, check_file_stages
 from checker.files import load_file
 from checker.findings import Finding, Severity
 from checker.model import OpAmpPart, Stage
-from checker.records import Verdict
+from checker.records import Caution, Verdict
 
 
 @dataclass
@@ -32,6 +32,7 @@ class StageResult:
     summary: dict = field(default_factory=dict)  # key figures, SI floats or None
     amplifiers: dict = field(default_factory=dict)  # per op-amp figures
     verdicts: list[Verdict] = field(default_factory=list)  # one per stated requirement
+    cautions: list[Caution] = field(default_factory=list)  # safety cautions, always
 
 
 @dataclass
@@ -45,6 +46,11 @@ class FileResult:
         for result in self.stages:
             found.extend(result.findings)
         return sorted(found, key=Finding.sort_key)
+
+    def cautions(self) -> list[Caution]:
+        """Every stage's safety cautions, in file order."""
+        found = [caution for result in self.stages for caution in result.cautions]
+        return sorted(found, key=Caution.sort_key)
 
 
 def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
@@ -64,7 +70,8 @@ def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
         summary, amplifiers = summarise(stage, stage_figures) if figures_wanted else ({}, {})
         check = checks[stage.name]
         result.stages.append(StageResult(stage.name, stage.origin.line, check.findings,
-                                         summary, amplifiers, check.verdicts))
+                                         summary, amplifiers, check.verdicts,
+                                         check.cautions))
     return result
 
 

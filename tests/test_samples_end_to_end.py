@@ -19,7 +19,6 @@ SHOWN_BY = {
     "rail-headroom": "level-gain",
     "open-loop": "flood-alarm",
     "load-isolation": "logger-line-driver",
-    "high-voltage": "piezo-driver",
     "bandwidth": "rain-impact-preamp",
     "slew-rate": "scour-probe-drive",
     "output-current": "scour-probe-drive",
@@ -130,3 +129,12 @@ def test_text_report_has_no_traceback(capsys, monkeypatch):
     assert "conductivity-gain" in captured.out
     assert "Traceback" not in captured.out + captured.err
     assert "internal error" not in captured.out + captured.err
+
+
+def test_the_high_voltage_sample_carries_its_safety_caution(report):
+    _code, document = report
+    stage = stages(document)["piezo-driver"]
+    assert [c["caution"] for c in stage["cautions"]] == ["high-voltage"]
+    # +-75 V rails span 150 V, beyond the 60 V DC limit of IEC 62368-1 class ES1
+    assert stage["cautions"][0]["measured"] == 150.0
+    assert [c["stage"] for c in document["cautions"]] == ["piezo-driver"]
