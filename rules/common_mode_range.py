@@ -40,8 +40,8 @@ def common_mode_range(view):
     Sources:
         Superposition of the DC solution over the sources' ranges with offset and bias
         currents as sources (linear circuit theory). Common-mode input range as a
-        limit on the inputs: any op-amp data sheet convention, e.g. R. Mancini (ed.),
-        Op Amps for Everyone, chapter on op-amp parameters.
+        limit on the inputs: R. Mancini (ed.), Op Amps for Everyone, 2nd ed. (Newnes,
+        2003), chapter on op-amp parameters.
     """
     stage, figures = view.stage, view.figures
     rails = stage.rail_voltages
