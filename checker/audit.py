@@ -14,6 +14,8 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 
 from checker.analysis import AnalysisOptions
+from checker.cautions import KINDS as CAUTION_KINDS
+from checker.cautions import not_a_rule
 from checker.config import Config, ConfigError, find_config_file, parse_config
 from checker.engine import ENGINE_RULES, RuleError, RunOptions, load_rules, selected
 from checker.findings import Severity
@@ -34,6 +36,7 @@ class Request:
     rules_dirs: tuple[str, ...] = ()
     use_config: bool = True
     figures_wanted: bool = True  # False when no report shows stage figures
+    netlist_map: str | None = None  # --netlist-map: the map for every netlist
     plots_wanted: str = ""  # the HTML review's plots: "all", "failing" or "" (none)
 
 
@@ -70,6 +73,26 @@ class FileSetup:
     options: RunOptions
     library: dict
     all_rules: dict = field(default_factory=dict)
+    netlist_map: object = None  # checker.netlist.mapping.NetlistMap, for netlist files
+
+
+def netlist_map_path(path: str, request: Request) -> str | None:
+    """The netlist map that governs ``path``: --netlist-map, else the configuration's."""
+    return request.netlist_map or config_for(path, request).get("netlist-map")
+
+
+@lru_cache(maxsize=32)
+def _netlist_map(path: str, library_key: tuple[str, ...]):
+    from checker.io.positions import InputErrors
+    from checker.netlist.mapping import check_parts, load_map
+
+    try:
+        netlist_map = load_map(path)
+        check_parts(netlist_map, _library(library_key))
+    except InputErrors as errors:
+        raise ConfigError("cannot load netlist map:\n  " +
+                          "\n  ".join(str(p) for p in errors.problems)) from None
+    return netlist_map
 
 
 def setup_for(path: str, request: Request) -> FileSetup:
@@ -81,6 +104,9 @@ def setup_for(path: str, request: Request) -> FileSetup:
     select = request.select if request.select is not None else config.get("select")
     ignore = request.ignore if request.ignore is not None else config.get("ignore", frozenset())
     for ids in (select or (), ignore):
+        cautions = sorted(set(ids) & set(CAUTION_KINDS))
+        if cautions:
+            raise RuleError(not_a_rule(cautions[0]))
         unknown = sorted(set(ids) - set(rules) - set(ENGINE_RULES))
         if unknown:
             raise RuleError(f"unknown rule id {', '.join(unknown)}; `ampcheck rules` lists them")
@@ -94,14 +120,18 @@ def setup_for(path: str, request: Request) -> FileSetup:
     options = RunOptions(analysis=AnalysisOptions(stray_capacitance_f=stray), select=select,
                          ignore=frozenset(ignore), settings=settings, severities=severities,
                          known_rules=frozenset(rules))
-    library = _library(tuple(config.get("parts", [])) + request.parts)
-    return FileSetup(selected(rules, options), options, library, rules)
+    library_key = tuple(config.get("parts", [])) + request.parts
+    library = _library(library_key)
+    map_path = request.netlist_map or config.get("netlist-map")
+    netlist_map = _netlist_map(map_path, library_key) if map_path else None
+    return FileSetup(selected(rules, options), options, library, rules, netlist_map)
 
 
 def check_file(path: str, request: Request) -> FileResult:
     setup = setup_for(path, request)
     return review_file(path, setup.library, setup.rules, setup.options,
-                       request.figures_wanted, setup.all_rules, request.plots_wanted)
+                       request.figures_wanted, setup.all_rules, setup.netlist_map,
+                       request.plots_wanted)
 
 
 def _worker(task: tuple[str, Request]) -> FileResult:
@@ -127,7 +157,9 @@ def check_files(paths: list[str], request: Request, jobs: int = 1) -> Iterator[F
 def forget() -> None:
     """Drop cached configurations and libraries (files may have changed since the last
     run in this process)."""
-    for cached in (config_at, rules_for, _library, find_config_file):
+    from checker.netlist.mapping import load_map
+
+    for cached in (config_at, rules_for, _library, find_config_file, _netlist_map, load_map):
         cached.cache_clear()
 
 

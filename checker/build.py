@@ -87,7 +87,8 @@ class _Builder:
                 self.fail(item_path, f"supply {item['net']} is the ground net of {where};"
                                      " the ground is 0 V by definition")
             elif voltage is not None:
-                supplies.append(Supply(item["net"], voltage, self.origin(item_path)))
+                supplies.append(Supply(item["net"], voltage, self.origin(item_path),
+                                       mains=item.get("mains")))
         opamps = [self.opamp(item, path + ("opamps", i), parts)
                   for i, item in enumerate(node.get("opamps", []))]
         passives = []
@@ -103,7 +104,7 @@ class _Builder:
         stage = Stage(name=name, origin=self.origin(path), ground=ground,
                       supplies=tuple(supplies), opamps=tuple(opamps),
                       passives=tuple(passives), sources=tuple(sources), loads=tuple(loads),
-                      require=require, note=node.get("note"),
+                      require=require, note=node.get("note"), mains=node.get("mains"),
                       waivers=tuple(self.waivers(node, path, opamps, passives, sources, loads)))
         self.check_references(stage, node, path)
         return stage

@@ -12,6 +12,7 @@ from collections import Counter
 
 from checker import audit
 from checker import baseline as baselines
+from checker.records import DEFERRAL, Caution
 from checker.report import writer, writes_folder
 from checker.report.context import ReportContext
 from checker.review import FileResult
@@ -111,12 +112,24 @@ def sink_for(name: str, path: str | None, context: ReportContext, inputs: list[s
     return Sink(name, path, context, inputs)
 
 
+def caution_line(caution: Caution) -> str:
+    """One caution as a line for standard error."""
+    line = (f"ampcheck: caution {caution.caution}: {caution.path}:{caution.line}:"
+            f"{caution.column} (stage {caution.stage}): {caution.statement}")
+    if caution.acknowledged is not None:
+        line += f" [acknowledged: {caution.acknowledged}]"
+    return line
+
+
 class CheckRun:
-    """Streams results to sinks; remembers only counters (failing, baseline keys)."""
+    """Streams results to sinks; remembers only counters (failing, baseline keys) and
+    the lines of the run's safety cautions when they go to standard error as well
+    (``caution_notice``: under a commit hook, or where the report is not read at a
+    terminal)."""
 
     def __init__(self, context: ReportContext, sinks: list[Sink],
                  baseline: baselines.Baseline | None = None, prune: bool = False,
-                 write_baseline: str | None = None):
+                 write_baseline: str | None = None, caution_notice: bool = False):
         self.context = context
         self.sinks = sinks
         self.baseline = baseline
@@ -125,6 +138,8 @@ class CheckRun:
         self.matched: Counter = Counter()  # baseline entries used so far
         self.recorded: Counter = Counter()  # this run's keys, for --write-baseline
         self.failing = False
+        self.caution_notice = caution_notice
+        self.caution_lines: list[str] = []
 
     def deliver(self, result: FileResult) -> None:
         if self.baseline is not None:
@@ -133,6 +148,10 @@ class CheckRun:
                                                           self.matched)
         for sink in self.sinks:
             sink.writer.add(result)
+        for caution in result.cautions():
+            self.failing = self.failing or self.context.caution_fails(caution)
+            if self.caution_notice:
+                self.caution_lines.append(caution_line(caution))
         folder = os.path.dirname(os.path.abspath(self.write_baseline or "."))
         for finding in result.findings():
             self.failing = self.failing or self.context.fails(finding)
@@ -155,6 +174,7 @@ class CheckRun:
             self._finish_baseline(paths)
             for sink in self.sinks:
                 sink.close()
+            self._notify_cautions()
             if self.write_baseline:
                 baselines.write_counts(self.write_baseline, self.recorded, paths)
                 print(f"wrote {len(self.recorded)} entries to {self.write_baseline}",
@@ -169,6 +189,15 @@ class CheckRun:
             self._abandon(progress)
             raise
         return self.failing
+
+    def _notify_cautions(self) -> None:
+        if not self.caution_lines:
+            return
+        count = len(self.caution_lines)
+        for line in self.caution_lines:
+            print(line, file=sys.stderr)
+        print(f"ampcheck: {count} safety caution{'' if count == 1 else 's'}: {DEFERRAL}",
+              file=sys.stderr)
 
     def _finish_baseline(self, paths: list[str]) -> None:
         if self.baseline is None:

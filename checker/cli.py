@@ -33,7 +33,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     check = commands.add_parser("check", help="read, analyse and review stage files")
     check.add_argument("paths", nargs="+", metavar="PATH",
-                       help="stage files or directories (searched for *.stage, *.stage.json)")
+                       help="stage files, netlists or directories (searched for *.stage,"
+                            " *.stage.json, and netlists where a netlist map governs them)")
     check.add_argument("--format", choices=FORMAT_NAMES, default="text",
                        help="report format on standard output (default text)")
     check.add_argument("--output", action="append", default=[], metavar="FORMAT:PATH",
@@ -47,6 +48,8 @@ def build_parser() -> argparse.ArgumentParser:
                        help="also load rules from this folder (repeatable)")
     check.add_argument("--parts", action="append", default=[], metavar="FILE",
                        help="a part library file (repeatable); its parts override built-ins")
+    check.add_argument("--netlist-map", metavar="FILE",
+                       help="the netlist map for netlist files (see docs/netlist.md)")
     check.add_argument("--stray-capacitance", metavar="VALUE",
                        help="stray capacitance added at every inverting input (default 1p)")
     check.add_argument("--config", metavar="FILE",
@@ -84,6 +87,19 @@ def build_parser() -> argparse.ArgumentParser:
     convert.add_argument("--to", choices=["json", "sexp"], required=True)
     convert.add_argument("-o", "--output", metavar="PATH",
                          help="write to a new file (never the input) instead of stdout")
+
+    extract = commands.add_parser("extract", help="write netlists' stages as stage files")
+    extract.add_argument("paths", nargs="+", metavar="NETLIST",
+                         help="netlist files or directories (searched for netlist endings)")
+    extract.add_argument("--into", required=True, metavar="DIR",
+                         help="a new folder to write the stage files to (must not exist)")
+    extract.add_argument("--netlist-map", metavar="FILE",
+                         help="the netlist map (else the configuration's netlist-map)")
+    extract.add_argument("--parts", action="append", default=[], metavar="FILE",
+                         help="a part library file (repeatable)")
+    extract.add_argument("--config", metavar="FILE",
+                         help="use this configuration file for every path")
+    extract.add_argument("--no-config", action="store_true", help="ignore configuration files")
 
     parts = commands.add_parser("parts", help="list the op-amp parts in the library")
     parts.add_argument("--parts", action="append", default=[], metavar="FILE",
@@ -164,6 +180,7 @@ def _request(args):
                    stray_capacitance_f=stray, parts=tuple(args.parts),
                    rules_dirs=tuple(args.rules_dir), use_config=not args.no_config,
                    figures_wanted=bool(formats & FIGURE_FORMATS),
+                   netlist_map=args.netlist_map,
                    plots_wanted=_plots_wanted(args))
 
 
@@ -209,6 +226,15 @@ def _outputs(args) -> list[tuple[str, str]]:
     return outputs
 
 
+def _caution_notice_wanted(args) -> bool:
+    """Cautions go to standard error as well, unless the text report is read at a
+    terminal (its Cautions heading shows them): always under a commit hook, which
+    shows a passing hook's output only when verbose."""
+    if os.environ.get("PRE_COMMIT"):
+        return True
+    return not (args.format == "text" and sys.stdout.isatty())
+
+
 def _progress_wanted(args) -> bool:
     return (not args.no_progress and sys.stderr.isatty() and not os.environ.get("PRE_COMMIT")
             and not os.environ.get("CI"))
@@ -229,7 +255,11 @@ def cmd_check(args) -> int:
     _check_html_extra(args)
     if args.prune_baseline and not args.baseline:
         raise UsageError("--prune-baseline goes with --baseline FILE")
-    paths, missing = discover(args.paths)
+    try:
+        paths, missing = discover(args.paths,
+                                  lambda path: audit.netlist_map_path(path, request) is not None)
+    except ConfigError as error:
+        raise UsageError(str(error)) from None
     if not paths and not missing:
         raise UsageError("no stage files (*.stage, *.stage.json) found in "
                          + ", ".join(args.paths))
@@ -253,7 +283,8 @@ def cmd_check(args) -> int:
         sinks.append(sink_for(args.format, None, context, paths))
         for name, path in outputs:
             sinks.append(sink_for(name, path, context, paths))
-        run = CheckRun(context, sinks, baseline, args.prune_baseline, args.write_baseline)
+        run = CheckRun(context, sinks, baseline, args.prune_baseline, args.write_baseline,
+                       caution_notice=_caution_notice_wanted(args))
         failing = run.run(paths, missing, request, jobs, _progress(args, len(paths)))
     except RunError as error:
         for sink in sinks:  # reports opened before the one that could not be
@@ -293,7 +324,8 @@ def cmd_config(args) -> int:
         args.path if os.path.isdir(args.path) else os.path.dirname(os.path.abspath(args.path)))
     print(f"configuration for {args.path}: {source or 'none found (defaults)'}")
     defaults = {"fail-on": "error", "select": "all rules", "ignore": "none",
-                "rules-dirs": "none", "parts": "none", "stray-capacitance": "1p", "jobs": "CPU count"}
+                "rules-dirs": "none", "parts": "none", "netlist-map": "none",
+                "stray-capacitance": "1p", "jobs": "CPU count"}
     for key, default in defaults.items():
         item = config.values.get(key)
         value = default if item is None else item.value
@@ -316,6 +348,7 @@ def cmd_config(args) -> int:
 def cmd_rules(args) -> int:
     from rich.table import Table
 
+    from checker.cautions import KINDS as CAUTION_KINDS
     from checker.engine import ENGINE_RULES, ENGINE_SEVERITIES
     from checker.report.summary import console
 
@@ -332,13 +365,23 @@ def cmd_rules(args) -> int:
         table.add_row(rule.id, rule.severity.label, rule.summary)
     for rid, summary in ENGINE_RULES.items():
         table.add_row(rid, ENGINE_SEVERITIES[rid].label, summary + " (built into the engine)")
+    for kind in CAUTION_KINDS.values():
+        table.add_row(kind.id, "caution", kind.summary + " (a safety caution: always"
+                      " reported, never selected, ignored or configured)")
     console().print(table)
     return EXIT_OK
 
 
 def cmd_explain(args) -> int:
+    from checker.cautions import KINDS as CAUTION_KINDS
     from checker.engine import ENGINE_RULES, ENGINE_SEVERITIES
 
+    if args.rule in CAUTION_KINDS:
+        kind = CAUTION_KINDS[args.rule]
+        print(f"{kind.id} (a safety caution: always reported; not a rule, so it cannot be"
+              f" selected, ignored, configured or given a severity)\n{kind.summary}\n")
+        print(kind.doc.rstrip())
+        return EXIT_OK
     rules = _rules(args.rules_dir)
     if args.rule in ENGINE_RULES:
         print(f"{args.rule} ({ENGINE_SEVERITIES[args.rule].label}, built into the engine)"
@@ -347,7 +390,7 @@ def cmd_explain(args) -> int:
     if args.rule not in rules:
         import difflib
 
-        close = difflib.get_close_matches(args.rule, list(rules), n=1)
+        close = difflib.get_close_matches(args.rule, list(rules) + list(CAUTION_KINDS), n=1)
         hint = f"; did you mean {close[0]}?" if close else "; `ampcheck rules` lists them"
         raise UsageError(f"no rule {args.rule!r}{hint}")
     rule = rules[args.rule]
@@ -391,6 +434,25 @@ def cmd_convert(args) -> int:
     return EXIT_OK
 
 
+def cmd_extract(args) -> int:
+    from checker.netlist.extract_command import ExtractError, extract_into
+
+    try:
+        failed = extract_into(args.paths, args.into, _extract_request(args))
+    except ExtractError as error:
+        raise UsageError(str(error)) from None
+    return EXIT_FINDINGS if failed else EXIT_OK
+
+
+def _extract_request(args):
+    from checker.audit import Request
+
+    if args.config and not os.path.isfile(args.config):
+        raise UsageError(f"--config: no such file {args.config}")
+    return Request(config_file=args.config, parts=tuple(args.parts),
+                   use_config=not args.no_config, netlist_map=args.netlist_map)
+
+
 def cmd_parts(args) -> int:
     from checker.report.summary import print_parts
 
@@ -400,4 +462,4 @@ def cmd_parts(args) -> int:
 
 COMMANDS = {"check": cmd_check, "schema": cmd_schema, "convert": cmd_convert,
             "parts": cmd_parts, "rules": cmd_rules, "explain": cmd_explain,
-            "config": cmd_config}
+            "config": cmd_config, "extract": cmd_extract}

@@ -9,6 +9,7 @@ Keys (top level):
     select, ignore     lists of rule ids
     rules-dirs         folders of user rules (relative to the configuration file)
     parts              part-library files (relative to the configuration file)
+    netlist-map        the netlist map for netlists (relative to the configuration file)
     stray-capacitance  a capacitance ("1p") added at every inverting input
     jobs               worker processes for `check` (0: one per CPU)
     [rules.RULE-ID]    severity = "error" | "warning" | "info", and the rule's settings
@@ -30,12 +31,14 @@ if sys.version_info >= (3, 11):
 else:  # pragma: no cover - Python 3.10
     import tomli as tomllib
 
+from checker.cautions import KINDS as CAUTION_KINDS
+from checker.cautions import not_a_rule
 from checker.findings import Severity
 from checker.units import UnitError, parse_value
 
 CONFIG_FILE = "ampcheck.toml"
 TOP_KEYS = {"fail-on", "select", "ignore", "rules-dirs", "parts", "stray-capacitance", "jobs",
-            "rules", "overrides"}
+            "rules", "overrides", "netlist-map"}
 OVERRIDE_KEYS = {"paths", "select", "ignore", "stray-capacitance", "rules"}
 FAIL_ON = ("error", "warning", "info", "never")
 
@@ -198,6 +201,9 @@ def _values(table: dict, keys: tuple, where, fail, base: str, known_rules, top: 
         elif key in ("select", "ignore"):
             if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
                 fail(keys + (key,), f"{key} is a list of rule ids")
+            cautions = [v for v in value if v in CAUTION_KINDS]
+            if cautions:
+                fail(keys + (key,), not_a_rule(cautions[0]))
             unknown = [v for v in value if v not in known_rules]
             if unknown:
                 fail(keys + (key,), f"unknown rule id {', '.join(unknown)} in {key}")
@@ -206,6 +212,10 @@ def _values(table: dict, keys: tuple, where, fail, base: str, known_rules, top: 
             if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
                 fail(keys + (key,), f"{key} is a list of paths")
             value = [os.path.normpath(os.path.join(base, v)) for v in value]
+        elif key == "netlist-map":
+            if not isinstance(value, str) or not value:
+                fail(keys + (key,), "netlist-map is the path of one netlist map file")
+            value = os.path.normpath(os.path.join(base, value))
         elif key == "stray-capacitance":
             try:
                 value = parse_value(value, "capacitance")
@@ -225,6 +235,8 @@ def _rule_tables(table: dict, keys: tuple, where, fail, known_rules) -> dict:
         fail(keys, "rules is a table of [rules.RULE-ID] tables")
     result: dict[str, dict[str, Valued]] = {}
     for rule_id, settings in table.items():
+        if rule_id in CAUTION_KINDS:
+            fail(keys + (rule_id,), not_a_rule(rule_id))
         if rule_id not in known_rules:
             fail(keys + (rule_id,), _unknown(rule_id, known_rules).replace("key", "rule id"))
         if not isinstance(settings, dict):

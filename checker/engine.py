@@ -22,10 +22,12 @@ from types import ModuleType
 
 from checker.analysis import AnalysisOptions, Figures, analyse
 from checker.analysis.mna import SingularCircuit
+from checker.cautions import KINDS as CAUTION_KINDS
+from checker.cautions import acknowledge, stage_cautions
 from checker.changes import apply_changes
 from checker.findings import Finding, FixCheck, Severity, Suggestion
 from checker.model import Origin, Stage
-from checker.records import Verdict
+from checker.records import Caution, Verdict
 from checker.requirements import judge_requirements
 
 # Enough points to bracket each loop crossover, which is then refined on a local grid:
@@ -148,10 +150,11 @@ def load_rules(folders: Iterable[str] = ()) -> dict[str, Rule]:
         modules.extend(_folder_modules(folder))
     for module in modules:
         for item in rules_in(module):
-            if item.id in found or item.id in ENGINE_RULES:
-                raise RuleError(f"rule id {item.id!r} is defined twice"
-                                f" ({found[item.id].module if item.id in found else 'engine'}"
-                                f" and {item.module})")
+            if item.id in found or item.id in ENGINE_RULES or item.id in CAUTION_KINDS:
+                owner = (found[item.id].module if item.id in found else
+                         "engine" if item.id in ENGINE_RULES else "a caution")
+                raise RuleError(f"rule id {item.id!r} is defined twice ({owner} and"
+                                f" {item.module})")
             found[item.id] = item
     return dict(sorted(found.items()))
 
@@ -241,10 +244,12 @@ class RunOptions:
 
 @dataclass
 class StageCheck:
-    """One stage checked: its findings (sorted) and its requirements' verdicts."""
+    """One stage checked: its findings (sorted), its requirements' verdicts and its
+    safety cautions (always, whatever the rules, settings and severities)."""
 
     findings: list[Finding]
     verdicts: list[Verdict] = field(default_factory=list)
+    cautions: list[Caution] = field(default_factory=list)
 
 
 def selected(rules: dict[str, Rule], options: RunOptions) -> list[Rule]:
@@ -344,10 +349,31 @@ def check_stage(stage: Stage, figures: Figures, rules: list[Rule], options: RunO
     verdicts, answered = _answer_verdicts(stage, verdicts, results, options)
     results = apply_waivers(stage, results + answered, ran | {f.rule for f in answered},
                             options.known_rules | ran)
+    cautions, noted = _cautions(stage)
+    results += noted
     if fixes:
         recheck = _Recheck(stage, rules, options, siblings or {}, catalogue, results, verdicts)
         results = [recheck.verified(finding) for finding in results]
-    return StageCheck(sorted(results, key=Finding.sort_key), verdicts)
+    return StageCheck(sorted(results, key=Finding.sort_key), verdicts, cautions)
+
+
+def _cautions(stage: Stage) -> tuple[list[Caution], list[Finding]]:
+    """The stage's safety cautions, acknowledged by its waivers that name them; a note
+    for each such waiver that matched none. Independent of rules and options."""
+    try:
+        cautions, stale = acknowledge(stage, stage_cautions(stage))
+    except Exception as error:  # a bug here must not stop the run, nor pass silently
+        return [], [_failure(stage, "the safety cautions", error)]
+    notes = []
+    for waiver in stale:
+        target = f"on {waiver.element}" if waiver.element else f"on stage {stage.name}"
+        notes.append(Finding(rule="waiver-stale", severity=Severity.INFO,
+                             message=f"waiver of {waiver.rule} {target} matched no caution;"
+                                     " remove it", path=waiver.origin.path,
+                             line=waiver.origin.line, column=waiver.origin.column,
+                             stage=stage.name,
+                             elements=(waiver.element,) if waiver.element else ()))
+    return cautions, notes
 
 
 # Engine bookkeeping that a fix's copy may show without the fix bringing in a problem.
@@ -529,10 +555,12 @@ def apply_waivers(stage: Stage, findings: list[Finding], ran: set[str],
                                  stage=stage.name,
                                  elements=(waiver.element,) if waiver.element else ()))
 
-        if waiver.rule not in known and waiver.rule not in ENGINE_RULES:
+        if waiver.rule not in known and waiver.rule not in ENGINE_RULES \
+                and waiver.rule not in CAUTION_KINDS:
             import difflib
 
-            close = difflib.get_close_matches(waiver.rule, sorted(known), n=1)
+            close = difflib.get_close_matches(waiver.rule, sorted(set(known) | set(CAUTION_KINDS)),
+                                              n=1)
             hint = f"; did you mean {close[0]!r}?" if close else ""
             report("waiver-invalid", Severity.ERROR,
                    f"waiver {target} names no known rule {waiver.rule!r}{hint}")
@@ -542,6 +570,8 @@ def apply_waivers(stage: Stage, findings: list[Finding], ran: set[str],
                    f"waiver of {waiver.rule} {target} gives no reason: write"
                    f' (waive {waiver.rule} "why this is acceptable")')
             continue
+        if waiver.rule in CAUTION_KINDS:
+            continue  # it acknowledges a caution (checker/cautions.py), not a finding
         matched = False
         for i, finding in enumerate(result):
             if finding.rule == waiver.rule and finding.waiver is None and (

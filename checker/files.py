@@ -10,6 +10,7 @@ from checker.findings import Finding, input_finding
 from checker.io.load import STAGE_ENDINGS, read_file
 from checker.io.positions import InputErrors, InputProblem
 from checker.model import OpAmpPart, Stage
+from checker.netlist import NETLIST_ENDINGS, is_netlist
 
 
 @dataclass
@@ -25,11 +26,12 @@ class LoadedFile:
         return not self.problems
 
 
-def discover(paths: list[str]) -> tuple[list[str], list[Finding]]:
+def discover(paths: list[str], netlists_wanted=None) -> tuple[list[str], list[Finding]]:
     """Stage files named by ``paths`` (directories searched recursively), sorted.
 
-    A named file is taken whatever its ending; in directories only our endings count.
-    Paths that do not exist become input findings.
+    A named file is taken whatever its ending; in directories only our endings count,
+    and netlists (NETLIST_ENDINGS) only where ``netlists_wanted(path)`` says a netlist
+    map governs them. Paths that do not exist become input findings.
     """
     found: set[str] = set()
     missing: list[Finding] = []
@@ -40,6 +42,10 @@ def discover(paths: list[str]) -> tuple[list[str], list[Finding]]:
                 for name in names:
                     if name.endswith(STAGE_ENDINGS):
                         found.add(os.path.normpath(os.path.join(root, name)))
+                    elif netlists_wanted is not None and \
+                            name.lower().endswith(NETLIST_ENDINGS) and \
+                            netlists_wanted(os.path.join(root, name)):
+                        found.add(os.path.normpath(os.path.join(root, name)))
         elif os.path.exists(path):
             found.add(os.path.normpath(path))
         else:
@@ -47,10 +53,16 @@ def discover(paths: list[str]) -> tuple[list[str], list[Finding]]:
     return sorted(found), missing
 
 
-def load_file(path: str, library: dict[str, OpAmpPart]) -> LoadedFile:
-    """Read, validate and build one file; every failure becomes an input finding."""
+def load_file(path: str, library: dict[str, OpAmpPart], netlist_map=None) -> LoadedFile:
+    """Read, validate and build one file; every failure becomes an input finding.
+    A netlist (by its ending) is cut into stages with ``netlist_map``."""
     try:
-        stages = build_stages(read_file(path), library)
+        if is_netlist(path):
+            from checker.netlist.load import load_netlist_stages
+
+            stages = load_netlist_stages(path, library, netlist_map)
+        else:
+            stages = build_stages(read_file(path), library)
     except InputErrors as errors:
         return LoadedFile(path, problems=[input_finding(p) for p in errors.problems])
     except RecursionError:

@@ -137,6 +137,7 @@ class Supply:
     net: str
     voltage_v: float
     origin: Origin
+    mains: str | None = None  # "isolated" | "not-isolated": declared derived from the mains
 
 
 @dataclass(frozen=True)
@@ -226,6 +227,17 @@ class Waiver:
 
 
 @dataclass(frozen=True)
+class ReaderNote:
+    """What the reader of a foreign file (a netlist) left out or assumed for a stage, for
+    the rules that report it (``not-analysed``, ``boundary-assumed``)."""
+
+    kind: str  # "not-analysed" | "assumed"
+    message: str
+    origin: Origin
+    elements: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
 class Stage:
     name: str
     origin: Origin
@@ -238,6 +250,8 @@ class Stage:
     require: Requirements = field(default_factory=Requirements)
     note: str | None = None
     waivers: tuple[Waiver, ...] = ()
+    reader_notes: tuple[ReaderNote, ...] = ()  # set for stages extracted from a netlist
+    mains: str | None = None  # "isolated" | "not-isolated": the stage declared on the mains
 
     @property
     def path(self) -> str:

@@ -1,6 +1,7 @@
 """Plain typed records that the reports carry: no numpy, no solver, no engine.
 
-A requirement's verdict is one of these; reporters import this module alone.
+A requirement's verdict and a safety caution are these; reporters import this module
+alone.
 """
 
 from __future__ import annotations
@@ -45,6 +46,48 @@ class Verdict:
     @property
     def unchecked(self) -> bool:
         return self.status == UNCHECKED
+
+
+# The tag that marks a caution in machine formats (SARIF ``properties.tags``).
+CAUTION_TAG = "ampcheck-safety-caution"
+# What every caution defers to: said once in each caution's message.
+DEFERRAL = ("this tool does not assess electrical safety; the applicable safety standard,"
+            " local electrical codes and licensed practice decide insulation, spacing,"
+            " earthing and enclosure")
+BASES = ("dc", "ac-peak", "declared")
+
+
+@dataclass(frozen=True)
+class Caution:
+    """A safety caution on a stage: a supply span or a source beyond the extra-low-voltage
+    limits, or a supply or stage declared derived from the mains.
+
+    Not a finding: it has no severity and no rule to select, ignore, configure or
+    baseline; a waiver naming it with a reason ``acknowledged`` it, and it is reported
+    all the same. ``basis`` says what it was judged on: ``dc`` (against the DC limit),
+    ``ac-peak`` (the peak against the AC limit) or ``declared`` (a mains declaration);
+    ``measured`` and ``limit`` are volts, None for a declaration."""
+
+    caution: str  # the caution's id: "high-voltage" | "mains-derived"
+    statement: str  # what was found: "the supplies span 150 V, beyond the 60 V DC limit"
+    path: str
+    line: int
+    column: int
+    stage: str
+    elements: tuple[str, ...] = ()
+    basis: str = "dc"
+    measured: float | None = None
+    limit: float | None = None
+    unit: str | None = None
+    acknowledged: str | None = None  # the reason of the waiver that acknowledges it
+
+    @property
+    def message(self) -> str:
+        return f"{self.statement}: {DEFERRAL}"
+
+    def sort_key(self) -> tuple:
+        return (self.path, self.line, self.column, self.caution, self.elements,
+                self.statement)
 
 
 @dataclass(frozen=True)

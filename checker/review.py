@@ -18,7 +18,7 @@ from checker.engine import Rule, RunOptions, check_file_stages
 from checker.files import load_file
 from checker.findings import Finding, Severity
 from checker.model import OpAmpPart, Stage
-from checker.records import StageSheet, Verdict
+from checker.records import Caution, StageSheet, Verdict
 
 
 @dataclass
@@ -32,6 +32,7 @@ class StageResult:
     summary: dict = field(default_factory=dict)  # key figures, SI floats or None
     amplifiers: dict = field(default_factory=dict)  # per op-amp figures
     verdicts: list[Verdict] = field(default_factory=list)  # one per stated requirement
+    cautions: list[Caution] = field(default_factory=list)  # safety cautions, always
     sheet: StageSheet | None = None  # element list and plots, for the HTML review only
 
 
@@ -47,17 +48,23 @@ class FileResult:
             found.extend(result.findings)
         return sorted(found, key=Finding.sort_key)
 
+    def cautions(self) -> list[Caution]:
+        """Every stage's safety cautions, in file order."""
+        found = [caution for result in self.stages for caution in result.cautions]
+        return sorted(found, key=Caution.sort_key)
+
 
 def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
                 options: RunOptions, figures_wanted: bool = True,
-                catalogue: dict[str, Rule] | None = None,
+                catalogue: dict[str, Rule] | None = None, netlist_map=None,
                 plots_wanted: str = "") -> FileResult:
     """Read, build, analyse and check one file; ``figures_wanted`` false skips the
     per-stage summary figures (for reports that show findings only). ``catalogue`` is
     every loaded rule (the verdicts read the settings of rules that may not be
-    selected). ``plots_wanted`` "all" or "failing" draws each stage's sheet for the
-    HTML review (checker/report/plots.py) while its figures are alive."""
-    loaded = load_file(path, library)
+    selected); ``netlist_map`` is what a netlist file is cut into stages with.
+    ``plots_wanted`` "all" or "failing" draws each stage's sheet for the HTML review
+    (checker/report/plots.py) while its figures are alive."""
+    loaded = load_file(path, library, netlist_map)
     result = FileResult(path, problems=loaded.problems)
     if not loaded.ok:
         return result
@@ -68,6 +75,7 @@ def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
         check = checks[stage.name]
         result.stages.append(StageResult(stage.name, stage.origin.line, check.findings,
                                          summary, amplifiers, check.verdicts,
+                                         check.cautions,
                                          _sheet(stage, stage_figures, check, options,
                                                 catalogue, plots_wanted)))
     return result

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from checker.cautions import KINDS as CAUTION_KINDS
 from checker.engine import DOC_SECTIONS, ENGINE_RULES, ENGINE_SEVERITIES, Rule
 
 
@@ -14,6 +15,9 @@ def rules_markdown(rules: dict[str, Rule]) -> str:
         lines.append(f"| [`{rule.id}`](#{rule.id}) | {rule.severity.label} | {rule.summary} |")
     for rid, summary in ENGINE_RULES.items():
         lines.append(f"| `{rid}` | {ENGINE_SEVERITIES[rid].label} | {summary} (engine) |")
+    for kind in CAUTION_KINDS.values():
+        lines.append(f"| [`{kind.id}`](#{kind.id}) | caution | {kind.summary} (safety"
+                     " caution) |")
     for rule in rules.values():
         lines += ["", f"## {rule.id}", "", f"*{rule.summary}* Default severity:"
                   f" **{rule.severity.label}**.", ""]
@@ -24,4 +28,18 @@ def rules_markdown(rules: dict[str, Rule]) -> str:
         for heading in DOC_SECTIONS:
             text = " ".join(sections.get(heading, "").split())
             lines += ["", f"### {heading}", "", text]
+    lines += ["", "## Safety cautions", "",
+              "Cautions are not rules: no selection, ignore list, configuration or severity"
+              " change removes them, and a baseline does not hold them. A waiver with a"
+              " reason acknowledges one; it is still reported (docs/configuration.md).",
+              "Each report shows them apart from the findings."]
+    for kind in CAUTION_KINDS.values():
+        lines += ["", f"## {kind.id}", "", f"*{kind.summary}* A safety caution."]
+        current = None
+        for line in kind.doc.splitlines():
+            if line and not line.startswith(" ") and line.endswith(":"):
+                current = line[:-1]
+                lines += ["", f"### {current}", ""]
+            elif line.strip():
+                lines.append(line.strip())
     return "\n".join(lines) + "\n"

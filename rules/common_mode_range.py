@@ -13,7 +13,8 @@ from checker.units import format_si
 def common_mode_range(view):
     """
     What it checks:
-        For every op-amp, the DC extremes of each input net over the sources' declared
+        For every op-amp (an input moved by a source that gives no range is reported as
+        not checked), the DC extremes of each input net over the sources' declared
         ranges (an AC amplitude counts at its peak over the band), widened by the worst
         case of input offset voltage and bias currents, against the part's input
         common-mode range: from V- plus `input-range-low` to V+ plus
@@ -39,8 +40,8 @@ def common_mode_range(view):
     Sources:
         Superposition of the DC solution over the sources' ranges with offset and bias
         currents as sources (linear circuit theory). Common-mode input range as a
-        limit on the inputs: any op-amp data sheet convention, e.g. R. Mancini (ed.),
-        Op Amps for Everyone, chapter on op-amp parameters.
+        limit on the inputs: R. Mancini (ed.), Op Amps for Everyone, 2nd ed. (Newnes,
+        2003), chapter on op-amp parameters.
     """
     stage, figures = view.stage, view.figures
     rails = stage.rail_voltages
@@ -62,6 +63,12 @@ def common_mode_range(view):
             pins.append(("in-", opamp.in_neg))
         closed = figures.loops[opamp.ref].feedback == "negative"
         for pin, net in pins:
+            unknown = figures.unranged_sources(net)
+            if unknown:
+                yield view.cannot_check(f"the common-mode range of {opamp.ref} {pin}",
+                                        f"{', '.join(unknown)} gives no range or amplitude",
+                                        opamp.origin, (opamp.ref,))
+                continue
             node = figures.node_range(net)
             if within(node.high, allowed_high) and reaches(node.low, allowed_low):
                 continue

@@ -90,7 +90,8 @@ def difference_balance(view):
     limit_db = _db(limit)
     if reaches(worst.cmrr, limit):
         return
-    share = solver.share_rejecting(refs, tolerances, limit, options)
+    share = solver.share_rejecting(refs, tolerances, limit, options) \
+        if view.fixes_wanted else None  # for the reader; a re-check reads findings alone
     listed = ", ".join(f"{r} {format_si(tolerances[r], '%')}" for r in refs)
     how = ("at the worst corner" if worst.exact else
            f"at the worst of {int(settings['samples'])} Monte Carlo boards")
@@ -101,8 +102,9 @@ def difference_balance(view):
     message = (f"{amp.ref} (difference) rejects common-mode signals by only"
                f" {_db(worst.cmrr):.1f} dB ({worst.cmrr:.3g}) {how} of its resistors"
                f" ({listed}; {gains}), below {against} {limit_db:.1f} dB; nominal"
-               f" {nominal}; {share * 100:.1f} % of {int(settings['samples'])} Monte Carlo"
-               " boards (uniform) reach it")
+               f" {nominal}"
+               + (f"; {share * 100:.1f} % of {int(settings['samples'])} Monte Carlo boards"
+                  " (uniform) reach it" if share is not None else ""))
     if assumed:
         message += (f"; {', '.join(assumed)} {'has' if len(assumed) == 1 else 'have'} no"
                     f" tolerance, {format_si(settings['default_tolerance'], '%')} assumed"

@@ -71,7 +71,9 @@ def gain_tolerance(view):
     worst, refs, tolerances = spread.worst, spread.refs, spread.tolerances
     if not refs or within(worst.error, band):
         return
-    share = spread.solver.share_within(refs, tolerances, required, band, options)
+    # the Monte Carlo share is for the reader; a fix's re-check reads findings alone
+    share = spread.solver.share_within(refs, tolerances, required, band, options) \
+        if view.fixes_wanted else None
     origin = max(refs, key=lambda r: spread.solver.sensitivity[r])
     listed = ", ".join(f"{r} {_percent(tolerances[r])}" for r in refs)
     corner = ", ".join(f"{r} {'+' if s > 0 else '-'}{_percent(tolerances[r])}"
@@ -82,7 +84,8 @@ def gain_tolerance(view):
                f" the resistors' tolerances ({listed}) it reaches {worst.gain:.4g} {how}"
                + (f" ({corner})" if worst.exact else "") +
                f", {_percent(worst.error)} from the required {required:.4g}, beyond"
-               f" ±{_percent(band)}; {_share_text(share, int(settings['samples']))}")
+               f" ±{_percent(band)}"
+               + (f"; {_share_text(share, int(settings['samples']))}" if share is not None else ""))
     if spread.assumed:
         message += (f"; {', '.join(spread.assumed)}"
                     f" {'has' if len(spread.assumed) == 1 else 'have'} no"

@@ -47,8 +47,9 @@ def input_resistance(view):
 
     Sources:
         Voltage divider loss 20 log10(Zin/(Zs + Zin)) and the ten-times rule: common
-        practice. T-network gain: any analog electronics textbook (e.g. Sedra and
-        Smith, Microelectronic Circuits, op-amp chapter).
+        practice. T-network gain: A. S. Sedra and K. C. Smith, Microelectronic Circuits,
+        7th ed. (Oxford University Press, 2015), chapter 2 on the inverting
+        configuration (the T-network feedback), checked against Lcapy in the tests.
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     required = stage.require.input_resistance_ohm

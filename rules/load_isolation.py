@@ -62,9 +62,10 @@ def load_isolation(view):
 
     Sources:
         Capacitive-load pole 1/(2 pi Ro CL) and the isolation-resistor zero
-        1/(2 pi Riso CL): J. Karki, application report on op-amp stability (2000),
-        which also gives typical Riso of 20 to 100 ohm. Voltage-divider loss and the
-        ten-times rule (0.83 dB): common practice.
+        1/(2 pi Riso CL): R. Mancini (ed.), Op Amps for Everyone, 2nd ed. (Newnes,
+        2003), stability chapter, on capacitive loads and out-of-loop compensation.
+        Typical Riso of 20 to 100 ohm, the voltage-divider loss and the ten-times rule
+        (0.83 dB): common practice.
     """
     yield from _unbuffered_sources(view)
     yield from _capacitive_loads(view)

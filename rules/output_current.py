@@ -52,7 +52,9 @@ def output_current(view):
 
     Sources:
         Ohm's law and Kirchhoff's current law on the solved operating point; the
-        capacitor current C dV/dt, 2 pi f C Vpeak for a sine (any circuits text). Adding
+        capacitor current C dV/dt, 2 pi f C Vpeak for a sine (C. K. Alexander and
+        M. N. O. Sadiku, Fundamentals of Electric Circuits, chapter on capacitors and
+        inductors; from memory). Adding
         the resistive and capacitive peaks: common practice for a worst case.
     """
     stage, figures = view.stage, view.figures

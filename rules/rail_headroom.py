@@ -16,7 +16,9 @@ def rail_headroom(view):
     What it checks:
         For every op-amp with negative feedback, the DC extremes of its output over the
         sources' declared ranges (an AC amplitude counts at its peak gain over the
-        band), widened by the worst case of input offset voltage and bias currents.
+        band), widened by the worst case of input offset voltage and bias currents; a
+        source that moves the output but gives no range leaves its extremes unknown,
+        and the rule says it could not check.
         The output may swing to each rail less the part's output headroom: beyond that
         it clips (error); within `margin_v` (or the stage's `headroom` requirement) of
         it, it is warned. The inputs' common-mode range is the `common-mode-range`
@@ -65,6 +67,13 @@ def _output(view, opamp, margin):
     figures = view.figures
     node = figures.node_range(opamp.out)
     if node.clip_low is None:
+        return
+    unknown = figures.unranged_sources(opamp.out)
+    if unknown:
+        yield view.cannot_check(f"the output swing of {opamp.ref}",
+                                f"{', '.join(unknown)} {'gives' if len(unknown) == 1 else 'give'}"
+                                " no range or amplitude, so the output's extremes are"
+                                " unknown", opamp.origin, (opamp.ref,))
         return
     over_high = node.high - node.clip_high
     over_low = node.clip_low - node.low

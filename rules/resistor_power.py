@@ -42,7 +42,8 @@ def resistor_power(view):
         raising the resistance or sharing the dissipation among several resistors.
 
     Sources:
-        Joule heating P = V^2/R (any circuit theory text). Derating to about half the
+        Joule heating P = V^2/R (C. K. Alexander and M. N. O. Sadiku, Fundamentals of
+        Electric Circuits, chapter on basic laws: power; from memory). Derating to about half the
         rated power, and 0.1 W as the rating of a small chip resistor: common practice.
         Rating ladder: common practice for chip and leaded resistors.
     """

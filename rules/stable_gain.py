@@ -56,9 +56,9 @@ def stable_gain(view):
 
     Sources:
         Minimum stable gain of decompensated op-amps and noise-gain shaping with a
-        series RC across the inputs: common practice (e.g. application notes on
-        decompensated amplifiers; R. Mancini (ed.), Op Amps for Everyone, stability
-        chapter, on noise gain and the feedback factor).
+        series RC across the inputs: common practice (R. Mancini (ed.), Op Amps for
+        Everyone, 2nd ed. (Newnes, 2003), stability chapter, on noise gain and the
+        feedback factor).
     """
     stage, figures = view.stage, view.figures
     for opamp in stage.opamps:

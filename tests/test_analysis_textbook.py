@@ -1,15 +1,22 @@
 """The analysis core against textbook formulas, worked examples and structural facts.
 
-Sources (see /work/shared/guide/REFERENCES.md):
-- Sedra and Smith, Microelectronic Circuits, chapter on operational amplifiers: the ideal
-  inverting, non-inverting and follower stages, and the T-network inverting stage;
-- worked examples in a Scilab textbook-companion collection, chapter 9, examples 1 and 4
-  (closed-loop bandwidth of a single-pole op-amp);
-- R. Mancini (ed.), Op Amps for Everyone, chapter on stability (feedback pole from the
-  input capacitance);
-- a semiconductor maker's application note on capacitive loads (pole of Ro and CL);
-- Eggleston, Basic Electronics for Scientists and Engineers, Cambridge University Press
-  2011, section 6.4 (DC error with bias-current compensation);
+Sources:
+- A. S. Sedra and K. C. Smith, Microelectronic Circuits, 7th ed., Oxford University Press
+  2015, chapter 2 (Operational Amplifiers): the ideal inverting, non-inverting and
+  follower stages; the sections "Effect of Finite Open-Loop Gain and Bandwidth on
+  Circuit Performance" (closed-loop bandwidth of a single-pole op-amp,
+  f3dB = fb (1 + A0/(1 + R2/R1)) = ft/(1 + R2/R1)) and "Large-Signal Operation of Op
+  Amps" (slew rate, full-power bandwidth);
+- the T-network inverting stage: derived here by nodal analysis at the inverting input
+  and the tee (the project's own), and checked with Lcapy on the same netlist in
+  test_analysis_lcapy.py;
+- R. Mancini (ed.), Op Amps for Everyone, 2nd ed., Newnes 2003, chapter on stability
+  (feedback pole from the input capacitance);
+- the pole of the output resistance Ro with a load capacitance CL: the single-time-
+  constant low-pass 1/(2 pi Ro CL), derived beside the test (any circuits text; common
+  practice);
+- D. L. Eggleston, Basic Electronics for Scientists and Engineers, Cambridge University
+  Press 2011, section 6.4 (DC error with bias-current compensation);
 - common practice where marked.
 
 The formulas are those of the ideal op-amp; the parts here have an open-loop gain of 1e9,
@@ -50,7 +57,7 @@ FOLLOWER = f"""(stage follower {rails()}
   (source in (range -1V 1V)) (load out (resistance 10k)))"""
 
 # T-network inverting stage: R1 input resistor, R2 in- to the tee, R3 tee to output,
-# R4 tee to ground (the naming of REFERENCES.md).
+# R4 tee to ground.
 T_R1, T_R2, T_R3, T_R4 = 10e3, 47e3, 47e3, 4.7e3
 T_NETWORK = f"""(stage tee {rails()}
   (opamp U1 {IDEAL} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
@@ -59,7 +66,7 @@ T_NETWORK = f"""(stage tee {rails()}
   (source in (range -0.1V 0.1V)) (load out (resistance 10k)))"""
 
 
-# -- ideal-op-amp formulas (Sedra and Smith, Microelectronic Circuits, op-amp chapter) ----
+# -- ideal-op-amp formulas (Sedra and Smith, Microelectronic Circuits, 7th ed., ch. 2) -----
 @pytest.mark.parametrize("r1, r2", [(1e3, 49e3), (10e3, 10e3), (4.7e3, 100e3)])
 def test_inverting_gain_is_minus_rf_over_r1(r1, r2):
     figures = analyse_text(inverting(repr(r1), repr(r2)))
@@ -110,9 +117,10 @@ def test_follower_noise_gain_is_one():
 
 def test_t_network_gain_magnitude_is_r2_plus_r3_plus_r2_r3_over_r4_all_over_r1():
     figures = analyse_text(T_NETWORK)
-    # expected: G = -(R2 + R3 + R2*R3/R4)/R1 = -56.4 (T-network inverting stage, derived
-    # by nodal analysis; REFERENCES.md; the same netlist is checked with Lcapy in
-    # test_analysis_lcapy.py)
+    # expected: G = -(R2 + R3 + R2*R3/R4)/R1 = -56.4 (T-network inverting stage: the
+    # virtual ground at in- puts Vin/R1 through R2, so the tee sits at -R2 Vin/R1, and
+    # the node equation at the tee gives Vout; derived by nodal analysis, the project's
+    # own, and checked with Lcapy on the same netlist in test_analysis_lcapy.py)
     expected = -(T_R2 + T_R3 + T_R2 * T_R3 / T_R4) / T_R1
     assert figures.sources[0].gain_mid.real == pytest.approx(expected, rel=TOLERANCE)
 
@@ -120,7 +128,8 @@ def test_t_network_gain_magnitude_is_r2_plus_r3_plus_r2_r3_over_r4_all_over_r1()
 def test_t_network_noise_gain_is_one_plus_gain_plus_r3_over_r4():
     figures = analyse_text(T_NETWORK)
     # expected: 1 + |G| + R3/R4 = 67.4, above the 57.4 of a plain inverter of the same
-    # gain (REFERENCES.md, T-network inverting stage)
+    # gain (T-network inverting stage: 1/beta with the source shorted, by the same nodal
+    # analysis at in- and the tee; the project's own derivation)
     gain = (T_R2 + T_R3 + T_R2 * T_R3 / T_R4) / T_R1
     assert figures.loops["U1"].noise_gain_dc == pytest.approx(1 + gain + T_R3 / T_R4,
                                                               rel=TOLERANCE)
@@ -137,17 +146,23 @@ def test_bandwidth_of_gain_50_with_a0_250k_and_160_hz_pole_is_800_khz():
     # A0 250 000 with its open-loop pole at 160 Hz is a GBW of 40 MHz.
     opamp = params(open_loop_gain=250e3, gbw="40MHz")
     figures = analyse_text(non_inverting("1k", "49k", opamp))
-    # expected: 800 kHz (Scilab textbook-companion collection, chapter 9, example 1);
-    # tolerance 0.2 %: the exact single-pole value p1 (1 + A0/50) is 800.16 kHz and our
-    # -3 dB edge is interpolated on the frequency grid
-    assert figures.sources[0].bandwidth_high_hz == pytest.approx(800e3, rel=2e-3)
+    # expected: f3dB = fb (1 + A0/(1 + R2/R1)) = 160 Hz x (1 + 250 000/50) = 800.16 kHz
+    # (Sedra and Smith, Microelectronic Circuits, 7th ed., section "Effect of Finite
+    # Open-Loop Gain and Bandwidth on Circuit Performance", frequency response of
+    # closed-loop amplifiers); tolerance 0.2 % for the -3 dB edge's interpolation on the
+    # frequency grid
+    expected = 160.0 * (1 + 250e3 / 50)
+    assert expected == pytest.approx(800.16e3)
+    assert figures.sources[0].bandwidth_high_hz == pytest.approx(expected, rel=2e-3)
 
 
 def test_bandwidth_of_gain_10_with_gbw_1_mhz_is_100_khz():
     opamp = params(open_loop_gain=200e3, gbw="1MHz")
     figures = analyse_text(non_inverting("1k", "9k", opamp))
-    # expected: 100 kHz (Scilab textbook-companion collection, chapter 9, example 4);
-    # tolerance 0.5 % for the grid interpolation of the -3 dB edge
+    # expected: f3dB = ft/(1 + R2/R1) = 1 MHz/10 = 100 kHz (Sedra and Smith,
+    # Microelectronic Circuits, 7th ed., section "Effect of Finite Open-Loop Gain and
+    # Bandwidth on Circuit Performance"); tolerance 0.5 % for the grid interpolation of
+    # the -3 dB edge
     assert figures.sources[0].bandwidth_high_hz == pytest.approx(100e3, rel=5e-3)
 
 
@@ -175,7 +190,7 @@ def test_feedback_pole_of_20_pf_at_2k7_ohm_is_2_95_mhz():
     figures = analyse_text(inverting("5.4k", "5.4k", opamp))
     _resistance, _capacitance, pole_hz = figures.inverting_input["U1"]
     # expected: about 2.95 MHz, 1/(2 pi (Rf||Rg) Cin) (R. Mancini (ed.), Op Amps for
-    # Everyone, stability chapter); tolerance 0.5 % for "about"
+    # Everyone, 2nd ed., stability chapter); tolerance 0.5 % for "about"
     assert pole_hz == pytest.approx(2.95e6, rel=5e-3)
 
 
@@ -185,7 +200,7 @@ def test_feedback_pole_counts_stray_capacitance_at_the_inverting_input():
     figures = analyse_text(inverting("5.4k", "5.4k", opamp), stray_capacitance_f=10e-12)
     _resistance, _capacitance, pole_hz = figures.inverting_input["U1"]
     # expected: about 2.95 MHz, as above: Cin = Cdiff + Ccm + stray (R. Mancini (ed.),
-    # Op Amps for Everyone, stability chapter)
+    # Op Amps for Everyone, 2nd ed., stability chapter)
     assert pole_hz == pytest.approx(2.95e6, rel=5e-3)
 
 
@@ -201,9 +216,12 @@ def test_capacitive_load_pole_of_1_uf_behind_75_ohm_is_2_12_khz():
     i = int(np.nonzero(magnitude >= math.sqrt(2))[0][0])
     corner = np.exp(np.interp(math.log(math.sqrt(2)), np.log(magnitude[i - 1:i + 1]),
                               np.log(frequencies[i - 1:i + 1])))
-    # expected: 2.12 kHz for 1 uF with Ro 75 Ohm (a semiconductor maker's application note
-    # on capacitive loads; REFERENCES.md); tolerance 1 % for the grid interpolation
-    assert corner == pytest.approx(2.12e3, rel=1e-2)
+    # expected: 1/(2 pi Ro CL) = 1/(2 pi 75 Ohm 1 uF) = 2.12 kHz, the corner of the
+    # single-time-constant low-pass that Ro and CL form (derived above; any circuits
+    # text, common practice); tolerance 1 % for the grid interpolation
+    expected = 1 / (2 * math.pi * 75 * 1e-6)
+    assert expected == pytest.approx(2.122e3, rel=1e-3)
+    assert corner == pytest.approx(expected, rel=1e-2)
 
 
 # -- DC figures, loading and coupling --------------------------------------------------------

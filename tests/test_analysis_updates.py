@@ -3,7 +3,7 @@
 The fix searches predict every candidate from one solve (Sherman-Morrison identity)
 before solving a few in full. References: the same stage solved again with the new
 value by the full nodal analysis, and closed forms of the textbook loops (Sedra and
-Smith, Microelectronic Circuits, op-amp chapter): a follower with output resistance Ro
+Smith, Microelectronic Circuits, 7th ed., op-amp chapter): a follower with output resistance Ro
 driving Riso + RL || CL has T = A Z/(Z + Ro), Z = Riso + RL/(1 + s RL CL); a
 non-inverting amplifier has G = A/(1 + A beta), beta = Rg/(Rg + Rf).
 """

@@ -238,18 +238,48 @@ def test_failing_scope_draws_what_bears_on_errors_and_unmet_requirements():
     assert plots.kinds_bearing_on([finding("resistor-range", Severity.ERROR)], []) == ()
 
 
+def stage_views_slug(name: str) -> str:
+    from checker.report.html_page import slug
+
+    return slug(name)
+
+
 # -- the page ------------------------------------------------------------------------------------
-def test_one_file_review_has_every_stage_and_links_that_reach_them(review):
-    stage_count = sum(len(check_file(str(p), Request(figures_wanted=False)).stages)
-                      for p in sorted(SAMPLES.glob("*.stage*")))
+def report_stage_names(tmp_path) -> list[str]:
+    """Every stage of the samples' run in report order, from the JSON report."""
+    import json
+
+    path = tmp_path / "report.json"
+    assert main(["check", str(SAMPLES), "--fail-on", "never", "--format", "compact",
+                 "--output", f"json:{path}"]) == 0
+    document = json.loads(path.read_text(encoding="utf-8"))
+    return [stage["name"] for file in document["files"] for stage in file["stages"]]
+
+
+def test_one_file_review_has_every_stage_and_links_that_reach_them(review, tmp_path):
+    names = report_stage_names(tmp_path)
     sections = re.findall(r'<section class="stage [^"]*" id="([^"]+)"', review)
-    assert len(sections) == stage_count == 28
-    links = re.findall(r'<a href="#(s\d{4}-[^"]+)">', review)
-    assert links == sections
+    assert [re.sub(r"^s\d{4}-", "", s) for s in sections] == \
+        [stage_views_slug(n) for n in names]
+    assert len(sections) >= 28
+    table = review[review.index('<table class="stages">'):]
+    table = table[:table.index("</table>")]
+    assert re.findall(r'<a href="#(s\d{4}-[^"]+)">', table) == sections
     assert "http://" not in review.replace("http://www.w3.org/", "")
     assert "https://" not in review.replace("https://json-schema.org", "")
     assert "<script" not in review
     assert "default-src 'none'" in review
+
+
+def test_safety_cautions_come_first_in_the_overview_and_in_their_stage(review):
+    # piezo-driver's supplies span 150 V, beyond the 60 V DC extra-low-voltage limit
+    overview = review[:review.index('<section class="stage ')]
+    assert overview.index("Safety cautions (1)") < overview.index("<h3>Stages</h3>")
+    assert re.search(r'<strong>high-voltage</strong> in <a href="#(s\d{4}-piezo-driver)">',
+                     overview)
+    stage = review[review.index('-piezo-driver" aria-labelledby'):]
+    assert stage.index("Safety cautions") < stage.index("<h3>Requirements</h3>")
+    assert "the supplies span 150 V" in stage[:stage.index("<h3>Requirements</h3>")]
 
 
 def test_each_stage_section_is_under_the_page_limit(review):

@@ -91,8 +91,6 @@ SETTING_CASES = [
      lambda f: f.measured / f.limit * 0.5, False),  # allowed = rating x derating
     ("slew-rate", "streambed-resistivity.stage", "scour-probe-drive", "min_ratio",
      lambda f: f.limit / f.measured, True),  # needed x ratio against the part's rate
-    ("high-voltage", "ultrasonic-level.stage", "piezo-driver", "dc_limit_v",
-     lambda f: f.measured, False),
     ("preferred-values", "irradiance.stage", "irradiance-gain", "match_tolerance",
      lambda f: abs(f.limit / f.measured - 1), False),
 ]

@@ -56,3 +56,29 @@ def test_hook_fails_on_a_bad_stage_and_passes_once_fixed(tmp_path):
     passing = subprocess.run(command, cwd=project, capture_output=True, text=True,
                              env=environment)
     assert passing.returncode == 0, passing.stdout + passing.stderr
+
+
+# A stage on +-75 V: no error, so the hook passes, but beyond the 60 V DC limit of
+# IEC 62368-1 class ES1, so it carries a safety caution.
+HIGH_VOLTAGE = GOOD.replace("stage good", "stage piezo").replace(
+    "(supply vcc 15V) (supply vee -15V)", "(supply vcc 75V) (supply vee -75V)").replace(
+    "precision-bipolar", "hv-bipolar")
+
+
+@pytest.mark.skipif(shutil.which("git") is None, reason="needs git")
+def test_a_passing_hook_still_shows_each_caution(tmp_path):
+    project = tmp_path / "board"
+    project.mkdir()
+    git(project, "init", "-q")
+    (project / "piezo.stage").write_text(HIGH_VOLTAGE)
+    git(project, "add", ".")
+    environment = dict(os.environ, PRE_COMMIT_HOME=str(tmp_path / "cache"))
+    command = PRE_COMMIT + ["try-repo", str(ROOT), "ampcheck", "--all-files"]
+    passing = subprocess.run(command, cwd=project, capture_output=True, text=True,
+                             env=environment)
+    output = passing.stdout + passing.stderr
+    assert passing.returncode == 0, output
+    assert "Passed" in output
+    # the stderr line, and the text report's own heading (the hook is verbose)
+    assert "ampcheck: caution high-voltage: piezo.stage:1:" in output
+    assert "Cautions (1)" in output

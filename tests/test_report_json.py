@@ -40,7 +40,7 @@ def test_summary_counts_match_the_listed_findings(capsys):
 
 def test_figures_are_si_numbers(tmp_path, capsys):
     # Inverting stage: gain -Rf/R1 = -10, input resistance R1 = 10 kOhm, noise gain
-    # 1 + Rf/R1 = 11 (Sedra and Smith, Microelectronic Circuits, op-amp chapter); to 1e-3
+    # 1 + Rf/R1 = 11 (Sedra and Smith, Microelectronic Circuits, 7th ed., op-amp chapter); to 1e-3
     # with a finite open-loop gain of 1e6 and no output resistance.
     stage = tmp_path / "inv.stage"
     stage.write_text("""(stage inv (supply vcc 15V) (supply vee -15V) (ground gnd)

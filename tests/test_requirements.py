@@ -8,7 +8,7 @@ Expected values and where they come from:
   limit A -> oo, as in tests/test_analysis_lcapy.py;
 * the loss of a source Rs into an input resistance Rin is the voltage divider
   Rin/(Rs + Rin) (any circuit theory text, e.g. Sedra and Smith, Microelectronic
-  Circuits, chapter 1 on signal sources and amplifier input resistance);
+  Circuits, 7th ed., chapter 1 on signal sources and amplifier input resistance);
 * the numbers of the verdicts below derive from those two relations and from the
   project's own figures where a verdict reads one (a margin, a noise): those cases
   assert the status, which the same figure decides.

@@ -4,11 +4,13 @@ finite loop gain costs at the band's top.
 Expected values, derived independently:
 
 * closed-loop -3 dB bandwidth of a non-inverting stage on a single-pole op-amp,
-  A(s) = A0 / (1 + s/w1), w1 = 2 pi GBW / A0 (Sedra and Smith, Microelectronic Circuits,
+  A(s) = A0 / (1 + s/w1), w1 = 2 pi GBW / A0 (Sedra and Smith, Microelectronic Circuits, 7th ed.,
   op-amp chapter): python-control ``bandwidth`` of A/(1 + A/NG), NG = 1 + Rf/Rg;
-* the worked examples collected in /work/shared/guide/REFERENCES.md (a Scilab
-  textbook-companion collection, chapter 9, examples 1 and 4): gain 50 with open-loop
-  gain 250 000 and a 160 Hz open-loop pole -> 800 kHz; GBW 1 MHz at gain 10 -> 100 kHz;
+* the closed-loop bandwidth of that model, f3dB = fb (1 + A0/(1 + R2/R1)), about
+  ft/(1 + R2/R1) (A. S. Sedra and K. C. Smith, Microelectronic Circuits, 7th ed., Oxford
+  University Press 2015, chapter 2, section "Effect of Finite Open-Loop Gain and
+  Bandwidth on Circuit Performance"), computed here: gain 50 with open-loop gain
+  250 000 and a 160 Hz open-loop pole -> 800.16 kHz; GBW 1 MHz at gain 10 -> 100 kHz;
 * closed-loop bandwidth ~ GBW / noise gain, so the GBW a band needs is about the band
   times the noise gain (common practice);
 * the gain error at a frequency: |G|/|G_ideal| = |T/(1 + T)|, T = A/NG, evaluated with
@@ -52,7 +54,7 @@ def closed_loop(a0: float, gbw: float, noise_gain: float):
     return control.feedback(opamp, 1 / noise_gain)
 
 
-# The REFERENCES.md worked example 1: A0 = 250 000, open-loop pole 160 Hz, gain 50.
+# A0 = 250 000, open-loop pole 160 Hz, gain 50: f3dB = 160 Hz (1 + 250 000/50).
 A0_50, POLE_50 = 250e3, 160.0
 GBW_50 = A0_50 * POLE_50  # 40 MHz
 GAIN_50 = non_inverting(A0_50, GBW_50, 49e3, 1e3, 1e6)
@@ -60,8 +62,10 @@ GAIN_50 = non_inverting(A0_50, GBW_50, 49e3, 1e3, 1e6)
 
 def test_gain_50_on_a_250k_160hz_part_reaches_800_khz_and_falls_short_of_1_mhz():
     finding = only(GAIN_50, RULE)
-    # REFERENCES.md (Scilab companion, chapter 9, example 1): 800 kHz.
-    assert finding.measured == pytest.approx(800e3, rel=0.01)
+    # f3dB = fb (1 + A0/(1 + R2/R1)) = 160 Hz x 5001 = 800.16 kHz (Sedra and Smith,
+    # Microelectronic Circuits, 7th ed., section "Effect of Finite Open-Loop Gain and
+    # Bandwidth on Circuit Performance")
+    assert finding.measured == pytest.approx(POLE_50 * (1 + A0_50 / 50), rel=0.01)
     assert finding.rule == RULE
     assert finding.severity is Severity.WARNING  # no requirement: the band's top
     assert finding.limit == pytest.approx(1e6)
@@ -79,8 +83,10 @@ def test_measured_bandwidth_agrees_with_python_control():
 def test_gbw_1mhz_at_gain_10_gives_100_khz_against_a_required_150_khz():
     text = non_inverting(1e5, 1e6, 9e3, 1e3, 20e3, "(require (bandwidth 150kHz))")
     finding = only(text, RULE)
-    # REFERENCES.md (Scilab companion, chapter 9, example 4): GBW 1 MHz, gain 10 -> 100 kHz.
-    assert finding.measured == pytest.approx(100e3, rel=0.01)
+    # ft/(1 + R2/R1) = 1 MHz/10 = 100 kHz (Sedra and Smith, Microelectronic Circuits,
+    # 7th ed., section "Effect of Finite Open-Loop Gain and Bandwidth on Circuit
+    # Performance")
+    assert finding.measured == pytest.approx(1e6 / 10, rel=0.01)
     assert finding.severity is Severity.ERROR  # a stated requirement
     assert finding.limit == pytest.approx(150e3)
     assert finding.details["noise_gain"] == pytest.approx(10.0, rel=1e-3)

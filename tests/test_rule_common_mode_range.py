@@ -6,7 +6,7 @@ Expected values, derived by hand:
   range written relative to its rails (the format's convention, docs/format.md);
 * a follower's input is the source's voltage; its inverting input is the output,
   Vin * A0/(1 + A0) for an op-amp of open-loop gain A0 (Sedra and Smith,
-  Microelectronic Circuits, op-amp chapter: the finite-gain follower);
+  Microelectronic Circuits, 7th ed., op-amp chapter: the finite-gain follower);
 * a bias current Ib flowing into the input through the source impedance Rs moves the
   input by Ib * Rs (Ohm's law), and the worst case widens the range by that much
   (Eggleston, Basic Electronics for Scientists and Engineers, section 6.4, DC error

@@ -3,14 +3,14 @@
 Every expected phase margin here is computed independently with python-control
 (``stability_margins``) on the loop transfer function written out by hand for the
 netlist: the single-pole op-amp A(s) = A0 / (1 + s/w1), w1 = 2 pi GBW / A0 (Sedra and
-Smith, Microelectronic Circuits, op-amp chapter), times the feedback factor beta(s) of
+Smith, Microelectronic Circuits, 7th ed., op-amp chapter), times the feedback factor beta(s) of
 the stage. The op-amps are given inline with no output resistance and no input
 resistance, so beta(s) is the feedback network with the input capacitance alone:
 
 * inverting stage, in+ grounded, ideal source at ``in`` (an AC ground for the loop):
   Ccm and Cdiff both sit from the inverting input to AC ground, Cin = Ccm + Cdiff, and
   beta(s) = Rg/(Rg + Rf) / (1 + s (Rf||Rg) Cin): a pole at fp = 1/(2 pi (Rf||Rg) Cin)
-  (R. Mancini (ed.), Op Amps for Everyone, stability chapter);
+  (R. Mancini (ed.), Op Amps for Everyone, 2nd ed., stability chapter);
 * transimpedance stage, current source with shunt Rsh and capacitance Cs at in-:
   beta(s) = Zin/(Zin + Rf) with Zin = Rsh || 1/(s (Cs + Cin)).
 
@@ -89,7 +89,7 @@ def test_megohm_feedback_is_an_error_below_30_degrees():
 
 def test_feedback_pole_frequency_is_one_over_two_pi_rc():
     finding = only(inverting(100e3, 1e6), RULE)
-    # fp = 1/(2 pi (Rf||Rg) Cin), Mancini (ed.), Op Amps for Everyone: about 219 kHz.
+    # fp = 1/(2 pi (Rf||Rg) Cin), Mancini (ed.), Op Amps for Everyone, 2nd ed.: about 219 kHz.
     expected = 1 / (TWO_PI * parallel(100e3, 1e6) * CIN)
     assert finding.details["feedback_pole_hz"] == pytest.approx(expected, rel=1e-3)
 
@@ -242,7 +242,7 @@ def test_transimpedance_suggested_cf_clears_the_finding():
 
 
 def test_neutralising_capacitor_uses_rg_itself_not_a_resistance_with_the_output_in_it():
-    # Cf = Rg*Cin/Rf (R. Mancini (ed.), Op Amps for Everyone, stability chapter, the
+    # Cf = Rg*Cin/Rf (R. Mancini (ed.), Op Amps for Everyone, 2nd ed., stability chapter, the
     # feedback-pole compensation), with Rg = 100 kOhm, Rf = 1 MOhm, Cin = 8 pF: 0.8 pF,
     # 820 fF in E12 (IEC 60063). A part with 1 kOhm of output resistance into 1 kOhm of
     # load must not change it: the path through Rf and the output stage is no part of Rg.

@@ -3,7 +3,7 @@
 Expected values, derived by hand:
 
 * the input resistance of an inverting stage is R1 plus the feedback resistor divided
-  by (1 + A0): Zin = R1 + R2/(1 + A0) at DC (Sedra and Smith, Microelectronic Circuits,
+  by (1 + A0): Zin = R1 + R2/(1 + A0) at DC (Sedra and Smith, Microelectronic Circuits, 7th ed.,
   op-amp chapter), here with an inline op-amp of A0 = 100 000;
 * the signal lost to loading is the voltage divider of the source impedance Rs and Zin,
   loss = 20 log10((Rs + Zin)/Zin) dB (common practice);

@@ -4,8 +4,8 @@ Expected values, derived by hand:
 
 * an inverting integrator's output drifts at Vos/(Rin*C) + Ib/C: the offset voltage
   across Rin and the bias current both charge C (Sedra and Smith, Microelectronic
-  Circuits, op-amp chapter: the Miller integrator and its DC problem; R. Mancini (ed.),
-  Op Amps for Everyone, integrator section);
+  Circuits, 7th ed., op-amp chapter: the Miller integrator and its DC problem; R. Mancini (ed.),
+  Op Amps for Everyone, 2nd ed., integrator section);
 * a shunt resistor Rsh across C puts the integrator's corner at 1/(2 pi Rsh C) (first-
   order RC, common practice), a decade below the band (common practice), rounded up to
   E24 (IEC 60063);

@@ -5,7 +5,7 @@ Expected values, derived independently:
 * phase margin of a follower with open-loop output resistance Ro driving Riso in
   series with RL || CL (feedback taken at the op-amp pin, before Riso): the loop gain is
   T(s) = A(s) * Z(s)/(Z(s) + Ro), Z = Riso + RL/(1 + s RL CL), with the single-pole op-amp
-  A(s) = A0/(1 + s/w1), w1 = 2 pi GBW/A0 (Sedra and Smith, Microelectronic Circuits,
+  A(s) = A0/(1 + s/w1), w1 = 2 pi GBW/A0 (Sedra and Smith, Microelectronic Circuits, 7th ed.,
   op-amp chapter); python-control ``stability_margins`` gives the margin;
 * the capacitive-load pole fp = 1/(2 pi Ro CL);
 * the loss of a source with impedance Rs into a load RL: the voltage divider,

@@ -11,7 +11,7 @@ Expected values, derived independently:
   equivalent noise bandwidth, 1.57 x f(-3 dB) (T. Sobering, "Equivalent Noise
   Bandwidth", Technote 1);
 * in an inverting stage the input resistor's noise reaches the output times Rf/R1 and
-  the feedback resistor's noise at unity (R. Mancini (ed.), Op Amps for Everyone, noise
+  the feedback resistor's noise at unity (R. Mancini (ed.), Op Amps for Everyone, 2nd ed., noise
   chapter); uncorrelated sources add in power.
 
 The op-amps here are given noise densities of 0 unless a test is about them, so the

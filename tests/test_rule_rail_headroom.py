@@ -7,7 +7,7 @@ Vref, Rg = R1, Rf = R2, input Vin:
 * nominal output, with the finite open-loop gain A0 of the op-amp:
   Vout = ((1 + Rf/Rg) Vref - (Rf/Rg) Vin) * A0/(A0 + 1 + Rf/Rg)
   (superposition; finite-gain closed form from Sedra and Smith, Microelectronic
-  Circuits, op-amp chapter);
+  Circuits, 7th ed., op-amp chapter);
 * DC error at the output, worst case: the offset voltage times the noise gain plus the
   larger bias current times the feedback resistor,
   Vos (1 + Rf/Rg) + (Ib + Ios/2) Rf

@@ -5,7 +5,7 @@ Expected values, derived by hand:
 * dissipation P = V^2/R (Joule heating) with V the largest voltage across the resistor;
 * in an inverting stage the input resistor's current flows on through the feedback
   resistor, so the voltage across Rf is (Vin - Vfb) * Rf/R1, with the inverting input
-  at Vfb = -Vout/A0 (Sedra and Smith, Microelectronic Circuits, op-amp chapter: the
+  at Vfb = -Vout/A0 (Sedra and Smith, Microelectronic Circuits, 7th ed., op-amp chapter: the
   finite-gain inverting amplifier), Vout = -Vin (Rf/R1) A0/(A0 + 1 + Rf/R1);
 * a divider of two equal resistors across a rail puts half the rail across each;
 * derating to half the rating and 0.1 W for an unrated small chip resistor: common

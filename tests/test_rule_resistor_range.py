@@ -7,7 +7,7 @@ Expected values, derived by hand:
   draw at most a tenth of the part's output current (all common practice);
 * the current through a resistor is the voltage across it over R (Ohm's law); in an
   inverting stage the output Vout = -Vin Rf/R1 sits across Rf (the inverting input at
-  virtual ground; Sedra and Smith, Microelectronic Circuits, op-amp chapter);
+  virtual ground; Sedra and Smith, Microelectronic Circuits, 7th ed., op-amp chapter);
 * the bias current into the inverting input makes Ib Rf at the output (Eggleston, Basic
   Electronics for Scientists and Engineers, section 6.4);
 * thermal noise density sqrt(4kTR) (Johnson-Nyquist), k from scipy.constants (CODATA);

@@ -3,13 +3,15 @@
 Expected values, derived independently:
 
 * a sine of peak V at frequency f needs a slew rate of 2 pi f V; the full-power
-  bandwidth at a swing V is SR / (2 pi V) (any op-amp text, e.g. Sedra and Smith,
-  Microelectronic Circuits, op-amp chapter);
-* worked values of the same two relations: SR 2 V/us at 12 V peak -> SR/(2 pi V) =
-  26.5 kHz; GBW 1 MHz, SR 0.5 V/us, gain 10 -> bandwidth 100 kHz and largest
-  undistorted peak SR/(2 pi f) = 0.796 V at that frequency (Sedra and Smith,
-  Microelectronic Circuits, section on the large-signal operation of op-amps: slew
+  bandwidth at a swing V is SR / (2 pi V); the largest undistorted peak at f is
+  SR / (2 pi f) (A. S. Sedra and K. C. Smith, Microelectronic Circuits, 7th ed., Oxford
+  University Press 2015, chapter 2, section "Large-Signal Operation of Op Amps": slew
   rate and full-power bandwidth);
+* the closed-loop bandwidth of a single-pole op-amp, ft/(1 + R2/R1): GBW 1 MHz at gain
+  10 gives 100 kHz (the same book, section "Effect of Finite Open-Loop Gain and
+  Bandwidth on Circuit Performance");
+* values of those relations, computed here: SR 2 V/us at 12 V peak -> 26.5 kHz; SR
+  0.5 V/us at 100 kHz -> 0.796 V;
 * the output peak at the band's top: the source's amplitude times |G(j 2 pi f)| of the
   closed loop A/(1 + A/NG), A(s) = A0/(1 + s/w1), from python-control ``evalfr``.
 """
@@ -44,8 +46,8 @@ def follower(slew: float, amplitude: float, band_top: float, source: str = "") -
 
 
 def gain_ten(amplitude: float, slew: float = 0.5e6) -> str:
-    """Non-inverting gain 10 on the REFERENCES.md example-4 part: GBW 1 MHz, SR
-    0.5 V/us; band up to its 100 kHz closed-loop bandwidth."""
+    """Non-inverting gain 10 on a part of GBW 1 MHz and SR 0.5 V/us; band up to its
+    100 kHz closed-loop bandwidth (ft/(1 + R2/R1), Sedra and Smith, 7th ed.)."""
     opamp = params(open_loop_gain=1e5, gbw=1e6, slew_rate=slew)
     return f"""
         (version 1)
@@ -64,7 +66,7 @@ def test_full_power_bandwidth_of_2_v_per_us_at_12_v_is_26_5_khz():
     text = follower(2e6, 12.0, 30e3)
     finding = only(text, RULE)
     # SR/(2 pi Vpeak) = 2e6/(2 pi 12) = 26.5 kHz (Sedra and Smith, Microelectronic
-    # Circuits, large-signal operation of op-amps: full-power bandwidth).
+    # Circuits, 7th ed., large-signal operation of op-amps: full-power bandwidth).
     assert finding.details["full_power_bandwidth_hz"] == pytest.approx(26.5e3, rel=0.002)
     assert finding.details["output_peak_v"] == pytest.approx(12.0, rel=1e-3)
 
@@ -89,9 +91,12 @@ def test_swing_within_the_full_power_bandwidth_passes():
 
 def test_gain_ten_on_a_half_v_per_us_part_keeps_0_796_v_at_100_khz():
     finding = only(gain_ten(0.2), RULE)
-    # REFERENCES.md (Scilab companion, chapter 9, example 4): 0.796 V at 100 kHz.
+    # SR/(2 pi f) = 0.5 V/us / (2 pi 100 kHz) = 0.796 V (Sedra and Smith, Microelectronic
+    # Circuits, 7th ed., section "Large-Signal Operation of Op Amps")
+    expected = 0.5e6 / (TWO_PI * 100e3)
+    assert expected == pytest.approx(0.796, abs=0.001)
     assert finding.details["frequency_hz"] == pytest.approx(100e3)
-    assert finding.details["largest_peak_v"] == pytest.approx(0.796, abs=0.001)
+    assert finding.details["largest_peak_v"] == pytest.approx(expected, rel=1e-3)
 
 
 def test_gain_ten_output_peak_follows_the_closed_loop_roll_off():

@@ -2,7 +2,7 @@
 
 Expected values, derived independently with python-control on the loop written out by
 hand: the two-pole op-amp A(s) = A0 / ((1 + s/w1)(1 + s/w2)), w1 = 2 pi GBW / A0
-(Sedra and Smith, Microelectronic Circuits, op-amp chapter), times the feedback factor
+(Sedra and Smith, Microelectronic Circuits, 7th ed., op-amp chapter), times the feedback factor
 beta(s) of the network; ``stability_margins`` gives the crossover wc, and the noise gain
 is |1/beta(j wc)|. The inline part has no input capacitance, input or output resistance,
 so beta is the drawn network alone:

@@ -759,6 +759,16 @@ class Figures:
             return float(np.max(np.abs(response[band])))
         return abs(self.dc_transfer(net, ("source", i)))
 
+    def unranged_sources(self, *nets: str) -> list[str]:
+        """The names of the sources that give no range or amplitude yet move one of
+        ``nets`` at DC: the DC extremes there count them at 0 and are not the extremes."""
+        found = []
+        for i, source in enumerate(self.stage.sources):
+            if source.low is None and any(abs(self.dc_transfer(net, ("source", i))) > 1e-12
+                                          for net in nets):
+                found.append(source.name)
+        return found
+
     def node_range(self, net: str) -> NodeRange:
         """DC extremes of ``net`` over the sources' ranges, with offset and bias errors
         (worst case: each error term adds with the sign that hurts most)."""

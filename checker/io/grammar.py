@@ -100,9 +100,13 @@ FORMS: dict[str, Form] = {
         "source": Child("sources", "source", repeated=True),
         "load": Child("loads", "load", repeated=True),
         "require": Child("require", "require"),
+        # (mains isolated|not-isolated): the stage is derived from the mains (a caution).
+        "mains": Child("mains", "scalar"),
         **_WAIVE,
     }),
-    "supply": Form(("net", "voltage")),
+    # (supply NET VOLTAGE (mains isolated|not-isolated)): a rail, and whether it is
+    # derived from the mains, through isolation or not (a caution either way).
+    "supply": Form(("net", "voltage"), {"mains": Child("mains", "scalar")}),
     "opamp": Form(("ref",), {
         "part": Child("part", "scalar"),
         "params": Child("params", "params"),

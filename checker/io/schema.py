@@ -33,6 +33,7 @@ _FIELDS: dict[str, dict] = {
     "label": {"type": "string"},
     "class": {"type": "string"},
     "kind": {"enum": ["voltage", "current"]},
+    "mains": {"enum": ["isolated", "not-isolated"]},
     "version": {"const": 1},
     "rule": {"type": "string", "pattern": r"^[a-z][a-z0-9]*(-[a-z0-9]+)*$"},
     "reason": {"type": "string"},
@@ -43,7 +44,8 @@ _DESCRIPTIONS = {
     "part": "An op-amp part: parameters in SI units or with unit symbols.",
     "params": "Op-amp parameters given inline; they override the named part's.",
     "stage": "One op-amp stage: supplies, op-amps, passives, sources, loads, requirements.",
-    "supply": "A rail: a net held at a DC voltage against the ground net.",
+    "supply": "A rail: a net held at a DC voltage against the ground net, and whether it"
+              " is derived from the mains.",
     "opamp": "An op-amp: its part and the nets on its five pins.",
     "resistor": "A resistor between two nets.",
     "capacitor": "A capacitor between two nets.",

@@ -114,10 +114,15 @@ def parse(text: str, path: str) -> list[SNode]:
     return [attach(item) for item in raw]
 
 
-def read_sexp(text: str, path: str) -> tuple[dict, dict[Path, Position]]:
-    """Parse and convert an s-expression file to (tree, positions)."""
+def read_sexp(text: str, path: str, forms: dict[str, Form] | None = None
+              ) -> tuple[dict, dict[Path, Position]]:
+    """Parse and convert an s-expression file to (tree, positions).
+
+    ``forms`` is the grammar table to convert by (the stage format's by default); another
+    file kind of ours, such as the netlist map, passes its own table in the same style.
+    """
     nodes = parse(text, path)
-    converter = _Converter(path)
+    converter = _Converter(path, FORMS if forms is None else forms)
     tree = converter.document(nodes)
     if converter.problems:
         raise InputErrors(converter.problems[:MAX_REPORTED])
@@ -127,8 +132,9 @@ def read_sexp(text: str, path: str) -> tuple[dict, dict[Path, Position]]:
 class _Converter:
     """Walks SNodes by the grammar table, building the tree and its positions."""
 
-    def __init__(self, path: str):
+    def __init__(self, path: str, forms: dict[str, Form]):
         self.path = path
+        self.forms = forms
         self.positions: dict[Path, Position] = {(): Position(1, 1)}
         self.problems: list[InputProblem] = []
 
@@ -137,7 +143,7 @@ class _Converter:
 
     def document(self, nodes: list[SNode]) -> dict:
         tree: dict = {}
-        self.children(FORMS["document"], "file", nodes, tree, ())
+        self.children(self.forms["document"], "file", nodes, tree, ())
         return tree
 
     def children(self, form: Form, context: str, nodes: list[SNode], tree: dict,
@@ -188,7 +194,7 @@ class _Converter:
             for i, atom in enumerate(atoms):
                 self.positions[path + (i,)] = atom.pos
             return [a.value for a in atoms]
-        return self.form(FORMS[child.shape], keyword, node, args, path)
+        return self.form(self.forms[child.shape], keyword, node, args, path)
 
     def form(self, form: Form, keyword: str, node: SNode, args: list[SNode],
              path: Path) -> dict:

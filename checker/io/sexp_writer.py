@@ -80,3 +80,9 @@ def _form(keyword: str, form: Form, node: dict, depth: int) -> str:
         pad = _INDENT * (depth + 1)
         text += "".join(f"\n{pad}{n}" for n in nested)
     return text + ")"
+
+
+def write_form(keyword: str, node: dict, depth: int = 0) -> str:
+    """One form of the stage grammar (``resistor``, ``source``, ...) as s-expression
+    text, for writers that lay a file out themselves (the netlist's stage writer)."""
+    return _form(keyword, FORMS[keyword], node, depth)

@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 from checker.findings import Finding, Severity
+from checker.records import Caution
 
 
 @dataclass(frozen=True)
@@ -16,3 +17,9 @@ class ReportContext:
     def fails(self, finding: Finding) -> bool:
         return (self.fail_on is not None and not finding.suppressed
                 and finding.severity >= self.fail_on)
+
+    def caution_fails(self, caution: Caution) -> bool:
+        """A caution not acknowledged counts as a warning towards failing: it fails a
+        run that fails on warnings or notes (never one that fails on errors only)."""
+        return (self.fail_on is not None and caution.acknowledged is None
+                and Severity.WARNING >= self.fail_on)

@@ -1,8 +1,11 @@
-"""Every finding and every requirement verdict as a CSV row, for spreadsheets.
+"""Every safety caution, finding and requirement verdict as a CSV row, for spreadsheets.
 
-The first column says which a row is: ``finding`` (severity in `severity`, the rule in
-`rule`) or ``requirement`` (its status, met / not-met / could-not-check, in `severity`,
-its keyword in `rule`, what was measured in `message`).
+The first column says which a row is: ``caution`` (`severity` says ``caution``, `rule`
+its id, `waived` the reason that acknowledges it), ``finding`` (severity in `severity`,
+the rule in `rule`) or ``requirement`` (its status, met / not-met / could-not-check, in
+`severity`, its keyword in `rule`, what was measured in `message`). The last column,
+`cautions`, names the cautions of the row's stage on every row of it, so a sheet
+filtered or sorted by anything else still shows them.
 """
 
 from __future__ import annotations
@@ -13,7 +16,7 @@ from checker.report import Writer as BaseWriter
 
 COLUMNS = ["record", "path", "line", "column", "severity", "rule", "stage", "elements",
            "message", "measured", "limit", "unit", "suggestion", "suggested_value",
-           "fix_check", "fix_withheld", "waived", "baselined"]
+           "fix_check", "fix_withheld", "waived", "baselined", "cautions"]
 
 
 def _number(value) -> str:
@@ -27,6 +30,13 @@ class Writer(BaseWriter):
         self.rows.writerow(COLUMNS)
 
     def add(self, result) -> None:
+        by_stage = {stage.name: " ".join(sorted({c.caution for c in stage.cautions}))
+                    for stage in result.stages}
+        for c in result.cautions():
+            self.rows.writerow([
+                "caution", c.path, c.line, c.column, "caution", c.caution, c.stage,
+                " ".join(c.elements), c.message, _number(c.measured), _number(c.limit),
+                c.unit or "", "", "", "", "", c.acknowledged or "", "", by_stage[c.stage]])
         for f in result.findings():
             s = f.suggestion
             self.rows.writerow([
@@ -35,7 +45,7 @@ class Writer(BaseWriter):
                 f.unit or "", s.text if s else "", _number(s.value) if s else "",
                 s.check.summary() if s and s.check else "",
                 "yes" if s and s.withheld else "", f.waiver or "",
-                "yes" if f.baselined else ""])
+                "yes" if f.baselined else "", by_stage.get(f.stage, "")])
         for stage in result.stages:
             for v in stage.verdicts:
                 statement = v.statement + (f"; {v.reason}" if v.reason else "")
@@ -43,4 +53,4 @@ class Writer(BaseWriter):
                     "requirement", result.path, v.line, v.column, v.status, v.requirement,
                     stage.name, " ".join(v.explained_by), f"{v.required}: {statement}",
                     _number(v.measured), _number(v.limit), v.unit or "", "", "", "", "", "",
-                    ""])
+                    "", by_stage[stage.name]])

@@ -27,7 +27,7 @@ import jinja2
 from markupsafe import Markup
 
 from checker.findings import Finding, Severity
-from checker.records import MET, NOT_MET
+from checker.records import DEFERRAL, MET, NOT_MET
 from checker.report import Writer as BaseWriter
 from checker.report.context import ReportContext
 from checker.review import FileResult, StageResult, count_by_severity
@@ -135,13 +135,30 @@ def _figures(summary: dict) -> list[tuple[str, str]]:
     return rows
 
 
+def _caution(caution) -> dict:
+    measured = None
+    if caution.measured is not None:
+        kind = "DC" if caution.basis == "dc" else "AC peak"
+        measured = (f"measured {_value(caution.measured, caution.unit)}, limit"
+                    f" {_value(caution.limit, caution.unit)} {kind}")
+    return {"caution": caution.caution, "statement": caution.statement,
+            "where": f"{caution.path}:{caution.line}:{caution.column}",
+            "stage": caution.stage, "elements": ", ".join(caution.elements),
+            "measured": measured, "acknowledged": caution.acknowledged}
+
+
 def _status(stage: StageResult) -> str:
-    """The stage's mark: "error" when a requirement is not met or an error stands,
-    else its worst active finding's severity, else "ok"."""
+    """The stage's mark: "error" when a requirement is not met or an error stands;
+    "caution" for a safety caution (it outranks warnings, as in the text report); else
+    its worst active finding's severity, else "ok"."""
     if any(v.not_met for v in stage.verdicts):
         return "error"
     active = [f for f in stage.findings if not f.suppressed]
     worst = max((f.severity for f in active), default=None)
+    if worst is not None and worst >= Severity.ERROR:
+        return "error"
+    if stage.cautions:
+        return "caution"
     return worst.label if worst is not None and worst >= Severity.WARNING else "ok"
 
 
@@ -160,6 +177,7 @@ class Writer(BaseWriter):
         self.requirements: Counter = Counter()
         self.stages = 0
         self.plots = 0
+        self.cautions: list[dict] = []  # few, shown first in the overview
         self.spool = None
         if folder is None:
             self.spool = tempfile.TemporaryFile("w+", encoding="utf-8", newline="")
@@ -186,6 +204,7 @@ class Writer(BaseWriter):
                 with open(os.path.join(self.folder, link), "w", encoding="utf-8",
                           newline="") as handle:
                     handle.write(page)
+            self.cautions.extend({**c, "link": link} for c in section["cautions"])
             rows.append({"name": stage.name, "line": stage.line, "link": link,
                          "status": section["status"], "counts": section["counts"],
                          "requirements": section["requirement_counts"],
@@ -215,6 +234,7 @@ class Writer(BaseWriter):
                                        "unchecked": len(stage.verdicts) - counted.get(MET, 0)
                                        - counted.get(NOT_MET, 0)},
                 "figures": _figures(stage.summary), "verdicts": verdicts,
+                "cautions": [_caution(c) for c in stage.cautions], "deferral": DEFERRAL,
                 "findings": [_finding(f) for f in sorted(stage.findings, key=Finding.sort_key)],
                 "elements": list(sheet.elements) if sheet else [],
                 "plots": plots, "notes": list(sheet.notes) if sheet else []}
@@ -222,6 +242,7 @@ class Writer(BaseWriter):
     def _overview(self) -> dict:
         rules = sorted(self.by_rule.items(), key=lambda item: (-item[1], item[0]))
         return {"files": self.files, "stage_total": self.stages, "plot_total": self.plots,
+                "cautions": self.cautions, "deferral": DEFERRAL,
                 "counts": {label: self.counts.get(label, 0)
                            for label in ("error", "warning", "info")},
                 "suppressed": self.suppressed,

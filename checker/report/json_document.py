@@ -1,7 +1,9 @@
-"""The versioned JSON report document (format "ampcheck-report", version 2).
+"""The versioned JSON report document (format "ampcheck-report", version 3).
 
 Numbers are SI floats, null where a figure does not apply; findings sorted by path,
-line, column, severity, rule. Documented in docs/report-json.md.
+line, column, severity, rule. Safety cautions sit beside the findings in each stage and,
+all of them, in the document's own top-level ``cautions``. Documented in
+docs/report-json.md.
 """
 
 from __future__ import annotations
@@ -9,13 +11,13 @@ from __future__ import annotations
 import json
 
 from checker.findings import Finding
-from checker.records import STATUSES, Verdict
+from checker.records import BASES, STATUSES, Caution, Verdict
 from checker.report.context import ReportContext
 from checker.report import Writer as BaseWriter
 from checker.review import FileResult
 
 FORMAT_NAME = "ampcheck-report"
-FORMAT_VERSION = 2
+FORMAT_VERSION = 3
 
 
 def change_dict(change) -> dict:
@@ -64,6 +66,15 @@ def verdict_dict(verdict: Verdict) -> dict:
             "explained_by": list(verdict.explained_by)}
 
 
+def caution_dict(caution: Caution) -> dict:
+    return {"caution": caution.caution, "message": caution.message,
+            "statement": caution.statement, "stage": caution.stage,
+            "elements": list(caution.elements), "path": caution.path, "line": caution.line,
+            "column": caution.column, "basis": caution.basis, "measured": caution.measured,
+            "limit": caution.limit, "unit": caution.unit,
+            "acknowledged": caution.acknowledged}
+
+
 def file_dict(result: FileResult) -> dict:
     stages = []
     for item in result.stages:
@@ -72,6 +83,7 @@ def file_dict(result: FileResult) -> dict:
         stages.append({"name": item.name, "line": item.line, "topology": topology,
                        "figures": summary, "amplifiers": item.amplifiers,
                        "requirements": [verdict_dict(v) for v in item.verdicts],
+                       "cautions": [caution_dict(c) for c in item.cautions],
                        "findings": [finding_dict(f) for f in item.findings]})
     return {"path": result.path, "problems": [finding_dict(f) for f in result.problems],
             "stages": stages}
@@ -90,6 +102,7 @@ class Writer(BaseWriter):
         self.files = self.stages = 0
         self.counts = {"error": 0, "warning": 0, "info": 0}
         self.verdicts = dict.fromkeys(STATUSES, 0)
+        self.cautions: list[dict] = []  # few, and wanted again at the top level
         tool = {"name": "ampcheck", "version": context.tool_version}
         out.write(f'{{\n  "format": "{FORMAT_NAME}",\n  "version": {FORMAT_VERSION},\n'
                   f'  "tool": {_indented(tool, 1)},\n  "files": [')
@@ -103,12 +116,16 @@ class Writer(BaseWriter):
         for stage in result.stages:
             for verdict in stage.verdicts:
                 self.verdicts[verdict.status] += 1
+        self.cautions.extend(caution_dict(c) for c in result.cautions())
 
     def close(self) -> None:
         summary = {"files": self.files, "stages": self.stages, **self.counts,
-                   "requirements": self.verdicts}
+                   "requirements": self.verdicts, "cautions": len(self.cautions),
+                   "cautions_acknowledged": sum(1 for c in self.cautions
+                                                if c["acknowledged"] is not None)}
         self.out.write(("\n  " if self.files else "") +
-                       f'],\n  "summary": {_indented(summary, 1)}\n}}\n')
+                       f'],\n  "cautions": {_indented(self.cautions, 1)},'
+                       f'\n  "summary": {_indented(summary, 1)}\n}}\n')
 
 
 _NUMBER = {"type": ["number", "null"]}
@@ -179,11 +196,32 @@ _VERDICT = {
         "explained_by": {"type": "array", "items": {"type": "string"}},
     },
 }
+_CAUTION = {
+    "type": "object",
+    "required": ["caution", "message", "statement", "stage", "elements", "path", "line",
+                 "column", "basis", "measured", "limit", "unit", "acknowledged"],
+    "additionalProperties": False,
+    "properties": {
+        "caution": {"enum": ["high-voltage", "mains-derived"]},
+        "message": {"type": "string"},
+        "statement": {"type": "string"},
+        "stage": {"type": "string"},
+        "elements": {"type": "array", "items": {"type": "string"}},
+        "path": {"type": "string"},
+        "line": {"type": "integer", "minimum": 1},
+        "column": {"type": "integer", "minimum": 1},
+        "basis": {"enum": list(BASES)},
+        "measured": _NUMBER,
+        "limit": _NUMBER,
+        "unit": {"type": ["string", "null"]},
+        "acknowledged": {"type": ["string", "null"]},
+    },
+}
 REPORT_SCHEMA = {
     "$schema": "https://json-schema.org/draft/2020-12/schema",
-    "title": "ampcheck report, version 2",
+    "title": "ampcheck report, version 3",
     "type": "object",
-    "required": ["format", "version", "tool", "summary", "files"],
+    "required": ["format", "version", "tool", "summary", "files", "cautions"],
     "additionalProperties": False,
     "properties": {
         "format": {"const": FORMAT_NAME},
@@ -191,16 +229,19 @@ REPORT_SCHEMA = {
         "tool": {"type": "object", "required": ["name", "version"],
                  "properties": {"name": {"const": "ampcheck"}, "version": {"type": "string"}}},
         "summary": {"type": "object",
-                    "required": ["files", "stages", "error", "warning", "info", "requirements"],
+                    "required": ["files", "stages", "error", "warning", "info", "requirements",
+                                 "cautions", "cautions_acknowledged"],
                     "additionalProperties": False,
                     "properties": {
                         **{k: {"type": "integer", "minimum": 0}
-                           for k in ("files", "stages", "error", "warning", "info")},
+                           for k in ("files", "stages", "error", "warning", "info",
+                                     "cautions", "cautions_acknowledged")},
                         "requirements": {
                             "type": "object", "required": list(STATUSES),
                             "additionalProperties": False,
                             "properties": {k: {"type": "integer", "minimum": 0}
                                            for k in STATUSES}}}},
+        "cautions": {"type": "array", "items": _CAUTION},
         "files": {"type": "array", "items": {
             "type": "object", "required": ["path", "problems", "stages"],
             "additionalProperties": False,
@@ -210,7 +251,7 @@ REPORT_SCHEMA = {
                 "stages": {"type": "array", "items": {
                     "type": "object",
                     "required": ["name", "line", "topology", "figures", "amplifiers",
-                                 "requirements", "findings"],
+                                 "requirements", "cautions", "findings"],
                     "additionalProperties": False,
                     "properties": {
                         "name": {"type": "string"},
@@ -225,6 +266,7 @@ REPORT_SCHEMA = {
                             "type": "object",
                             "required": ["phase_margin", "crossover", "noise_gain"]}},
                         "requirements": {"type": "array", "items": _VERDICT},
+                        "cautions": {"type": "array", "items": _CAUTION},
                         "findings": {"type": "array", "items": _FINDING},
                     }}},
             }}},

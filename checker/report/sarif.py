@@ -3,7 +3,11 @@
 Rule entries carry each rule's documentation; results carry level, message, a physical
 location with a repository-relative URI and start line, a stable partial fingerprint
 (file, stage, elements, rule: no line numbers), and suppressions for waived and
-baselined findings. No timestamps, so the same input gives the same bytes.
+baselined findings. Safety cautions are results too, at level warning, tagged
+``ampcheck-safety-caution`` in ``properties.tags`` (as are their rule entries); an
+acknowledged caution carries its reason in ``properties.acknowledged`` and no
+suppression, so viewers that hide suppressed results still show it. No timestamps, so
+the same input gives the same bytes.
 """
 
 from __future__ import annotations
@@ -12,8 +16,10 @@ import hashlib
 import json
 import os
 
+from checker.cautions import KINDS as CAUTION_KINDS
 from checker.engine import ENGINE_RULES, ENGINE_SEVERITIES
 from checker.findings import Finding, Severity
+from checker.records import CAUTION_TAG, Caution
 from checker.report import Writer as BaseWriter
 from checker.report.context import ReportContext
 from checker.review import FileResult
@@ -34,12 +40,45 @@ def repository_root(start: str) -> str:
         folder = parent
 
 
-def fingerprint(finding: Finding, uri: str) -> str:
-    text = "\x1f".join((uri, finding.stage or "", *finding.elements, finding.rule))
+def fingerprint(finding: Finding | Caution, uri: str) -> str:
+    rule = finding.caution if isinstance(finding, Caution) else finding.rule
+    text = "\x1f".join((uri, finding.stage or "", *finding.elements, rule))
     return hashlib.sha256(text.encode("utf-8")).hexdigest()[:32]
 
 
+def _caution_entry(caution_id: str) -> dict:
+    kind = CAUTION_KINDS[caution_id]
+    return {"id": kind.id, "name": kind.id, "shortDescription": {"text": kind.summary},
+            "fullDescription": {"text": kind.summary}, "help": {"text": kind.doc},
+            "defaultConfiguration": {"level": "warning"},
+            "properties": {"tags": [CAUTION_TAG]}}
+
+
+def caution_result(caution: Caution, root: str, index: dict[str, int]) -> dict:
+    """A caution as a SARIF result, tagged as one; never suppressed."""
+    uri = os.path.relpath(os.path.abspath(caution.path), root).replace(os.sep, "/")
+    properties = {"tags": [CAUTION_TAG], "stage": caution.stage, "basis": caution.basis}
+    if caution.elements:
+        properties["elements"] = list(caution.elements)
+    for key in ("measured", "limit", "unit", "acknowledged"):
+        if getattr(caution, key) is not None:
+            properties[key] = getattr(caution, key)
+    text = caution.message + (f" (Acknowledged: {caution.acknowledged}.)"
+                              if caution.acknowledged is not None else "")
+    return {
+        "ruleId": caution.caution, "ruleIndex": index[caution.caution], "level": "warning",
+        "message": {"text": text},
+        "locations": [{"physicalLocation": {
+            "artifactLocation": {"uri": uri, "uriBaseId": "SRCROOT"},
+            "region": {"startLine": caution.line, "startColumn": caution.column}}}],
+        "partialFingerprints": {"ampcheckFinding/v1": fingerprint(caution, uri)},
+        "properties": properties,
+    }
+
+
 def _rule_entry(rule_id: str, context: ReportContext) -> dict:
+    if rule_id in CAUTION_KINDS:
+        return _caution_entry(rule_id)
     rule = context.rules.get(rule_id)
     if rule is None:
         summary = ENGINE_RULES.get(rule_id, rule_id)
@@ -103,7 +142,7 @@ class Writer(BaseWriter):
     def __init__(self, out, context: ReportContext):
         super().__init__(out, context)
         self.root = repository_root(os.getcwd())
-        rule_ids = sorted(set(context.rules) | set(ENGINE_RULES))
+        rule_ids = sorted(set(context.rules) | set(ENGINE_RULES) | set(CAUTION_KINDS))
         self.index = {rule_id: i for i, rule_id in enumerate(rule_ids)}
         driver = {"name": "ampcheck", "version": context.tool_version,
                   "rules": [_rule_entry(r, context) for r in rule_ids]}
@@ -114,9 +153,10 @@ class Writer(BaseWriter):
         self.count = 0
 
     def add(self, result: FileResult) -> None:
-        for finding in result.findings():
-            entry = json.dumps(result_entry(finding, self.root, self.index), indent=2,
-                               ensure_ascii=False)
+        entries = [caution_result(c, self.root, self.index) for c in result.cautions()]
+        entries += [result_entry(f, self.root, self.index) for f in result.findings()]
+        for item in entries:
+            entry = json.dumps(item, indent=2, ensure_ascii=False)
             self.out.write(("," if self.count else "") + "\n        " +
                            entry.replace("\n", "\n        "))
             self.count += 1

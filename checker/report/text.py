@@ -1,4 +1,5 @@
-"""The terminal report: findings by severity, then file and line; a line per stage.
+"""The terminal report: safety cautions first, under their own heading; then findings
+by severity, then file and line; a line per stage.
 
 Rich styles when the output is a terminal; plain text otherwise. NO_COLOR and
 FORCE_COLOR are honoured by rich itself.
@@ -10,7 +11,7 @@ from rich.console import Console
 from rich.text import Text
 
 from checker.findings import Finding, Severity
-from checker.records import MET, NOT_MET, Verdict
+from checker.records import DEFERRAL, MET, NOT_MET, Caution, Verdict
 from checker.report.context import ReportContext
 from checker.report import Writer as BaseWriter
 from checker.review import FileResult, StageResult, count_by_severity
@@ -19,6 +20,7 @@ from checker.units import format_si
 STYLE = {Severity.ERROR: "bold red", Severity.WARNING: "yellow", Severity.INFO: "cyan"}
 HEADING = {Severity.ERROR: "Errors", Severity.WARNING: "Warnings", Severity.INFO: "Notes"}
 MARK = {Severity.ERROR: "✗", Severity.WARNING: "!", Severity.INFO: "·"}
+CAUTION_STYLE, CAUTION_MARK = "bold magenta", "⚠"
 STAGE_LINES_LIMIT = 60  # above this, the per-stage lines give way to the audit summary
 WORST = 5
 
@@ -110,6 +112,31 @@ def _finding(console: Console, finding: Finding) -> None:
             console.print(Text("      " + suggestion.check.summary(), style="dim"))
 
 
+def _cautions(console: Console, cautions: list[Caution]) -> None:
+    """The run's safety cautions under their own heading, before any finding; the
+    deferral once, then each caution (acknowledged ones marked with their reason)."""
+    console.print(Text(f"Cautions ({len(cautions)})", style=CAUTION_STYLE))
+    console.print(Text(f"  {DEFERRAL[0].upper()}{DEFERRAL[1:]}.", style=CAUTION_STYLE))
+    for caution in cautions:
+        head = Text("  ")
+        head.append(f"{caution.path}:{caution.line}:{caution.column}", style="bold")
+        head.append("  ")
+        head.append(f"{CAUTION_MARK} {caution.caution}", style=CAUTION_STYLE)
+        head.append(f"  stage {caution.stage}")
+        if caution.elements:
+            head.append(f"  [{', '.join(caution.elements)}]", style="dim")
+        if caution.acknowledged is not None:
+            head.append(f"  acknowledged: {caution.acknowledged}", style="dim")
+        console.print(head)
+        console.print(Text("      " + caution.statement))
+        if caution.measured is not None:
+            kind = "DC" if caution.basis == "dc" else "AC peak"
+            console.print(Text(f"      measured {_value(caution.measured, caution.unit)},"
+                               f" limit {_value(caution.limit, caution.unit)} {kind}",
+                               style="dim"))
+    console.print()
+
+
 VERDICT_MARK = {MET: ("✓", "green"), NOT_MET: ("✗", "bold red")}
 UNCHECKED_MARK = ("?", "yellow")
 
@@ -144,7 +171,10 @@ def _stage_line(console: Console, result: FileResult) -> None:
         if any(v.not_met for v in item.verdicts):
             worst = Severity.ERROR
         line = Text("  ")
-        line.append(MARK[worst] if worst else "✓", style=STYLE[worst] if worst else "green")
+        if worst != Severity.ERROR and item.cautions:  # a caution outranks warnings
+            line.append(CAUTION_MARK, style=CAUTION_STYLE)
+        else:
+            line.append(MARK[worst] if worst else "✓", style=STYLE[worst] if worst else "green")
         line.append(f" {item.name}", style="bold")
         line.append(f"  {result.path}:{item.line}", style="dim")
         parts = [s.get("topology") or "?"]
@@ -174,6 +204,9 @@ def _stage_line(console: Console, result: FileResult) -> None:
 
 def write(console: Console, results: list[FileResult], context: ReportContext) -> None:
     every = [f for result in results for f in result.findings()]
+    cautions = [c for result in results for c in result.cautions()]
+    if cautions:
+        _cautions(console, cautions)
     for severity in sorted(Severity, reverse=True):
         group = [f for f in every if f.severity == severity]
         if not group:
@@ -198,6 +231,10 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
     stages = sum(len(r.stages) for r in results)
     unreadable = sum(1 for r in results if r.problems)
     closing = Text(f"{_count(len(results), 'file')}, {_count(stages, 'stage')}: ")
+    if cautions:
+        acknowledged = sum(1 for c in cautions if c.acknowledged is not None)
+        closing.append(_count(len(cautions), "caution"), style=CAUTION_STYLE)
+        closing.append(f" ({acknowledged} acknowledged), " if acknowledged else ", ")
     closing.append(_count(counts["error"], "error"),
                    style=STYLE[Severity.ERROR] if counts["error"] else "")
     closing.append(", ")
@@ -209,7 +246,8 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
     if unreadable:
         closing.append(f"; {_count(unreadable, 'file')} could not be read")
     if context.fail_on is not None:
-        failing = sum(1 for f in every if context.fails(f))
+        failing = sum(1 for f in every if context.fails(f)) + sum(
+            1 for c in cautions if context.caution_fails(c))
         closing.append(f" — {failing} at or above {context.fail_on.label}" if failing
                        else f" — nothing at or above {context.fail_on.label}")
     console.print(closing)
@@ -229,7 +267,7 @@ class Writer(BaseWriter):
         keep_figures = self.stage_count <= STAGE_LINES_LIMIT
         stages = [StageResult(s.name, s.line, s.findings,
                               s.summary if keep_figures else {}, {},
-                              s.verdicts if keep_figures else [])
+                              s.verdicts if keep_figures else [], s.cautions)
                   for s in result.stages]
         self.kept.append(FileResult(result.path, result.problems, stages))
 
