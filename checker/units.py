@@ -212,7 +212,7 @@ def _example(kind: str) -> str:
 
 
 _FORMAT_PREFIXES = [
-    (1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""),
+    (1e15, "P"), (1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""),
     (1e-3, "m"), (1e-6, "µ"), (1e-9, "n"), (1e-12, "p"), (1e-15, "f"),
 ]
 
@@ -230,7 +230,7 @@ def format_si(value: float | None, unit: str = "", digits: int = 3) -> str:
     magnitude = abs(value)
     if magnitude == 0:
         return f"0 {unit}"
-    if magnitude >= 999.5e12 or magnitude < 0.9995e-15:  # beyond the prefixes: plain exponent
+    if magnitude >= 999.5e15 or magnitude < 0.9995e-15:  # beyond the prefixes: plain exponent
         return f"{value:.{digits}g} {unit}"
     for factor, prefix in _FORMAT_PREFIXES:
         if magnitude >= factor * 0.9995:
