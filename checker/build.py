@@ -15,7 +15,7 @@ from checker.io.load import ParsedFile
 from checker.io.positions import InputErrors, InputProblem, Path, locate
 from checker.model import (PART_ATTRIBUTES, REQUIREMENT_ATTRIBUTES, Load, OpAmp, OpAmpPart,
                            Origin, Passive, Requirements, Source, Stage, Supply, Waiver)
-from checker.units import UnitError, parse_value
+from checker.units import UnitError, check_plausible, parse_value
 
 # Passive values must be positive; these kinds of parameter must not be negative.
 _NON_NEGATIVE = {"resistance", "capacitance", "inductance", "frequency", "current",
@@ -47,6 +47,7 @@ class _Builder:
             return None
         try:
             number = parse_value(node[key], kind)
+            check_plausible(number, kind, node[key])
         except UnitError as error:
             self.fail(path + (key,), f"{key} of {where}: {error}")
             return None
@@ -214,6 +215,7 @@ class _Builder:
     def pair_value(self, pair: list, i: int, kind: str, path: Path, where: str) -> float | None:
         try:
             number = parse_value(pair[i], kind)
+            check_plausible(number, kind, pair[i])
         except UnitError as error:
             self.fail(path + (i,), f"{path[-1]} of {where}: {error}")
             return None
@@ -236,11 +238,12 @@ class _Builder:
             return Requirements()
         values = {}
         for keyword, kind in REQUIREMENTS.items():
-            if keyword == "gain" and isinstance(node.get(keyword), (int, float)):
-                values["gain"] = float(node[keyword])
-                continue
             number = self.value(node, keyword, kind, path, "the requirements",
                                 positive=keyword in ("input-resistance", "bandwidth", "cmrr"))
+            if keyword == "gain" and number == 0.0:
+                # A gain tolerance is relative to the gain: zero cannot be a target.
+                self.fail(path + (keyword,), "gain of the requirements cannot be zero")
+                continue
             if number is not None:
                 values[REQUIREMENT_ATTRIBUTES[keyword]] = number
         return Requirements(origin=self.origin(path), **values)

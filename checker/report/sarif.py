@@ -46,7 +46,8 @@ def _rule_entry(rule_id: str, context: ReportContext) -> dict:
         return {"id": rule_id, "shortDescription": {"text": summary},
                 "fullDescription": {"text": summary},
                 "defaultConfiguration": {"level": "error" if rule_id in (
-                    "input-invalid", "stage-unsolvable", "rule-failed", "waiver-invalid")
+                    "input-invalid", "stage-unsolvable", "rule-failed", "review-failed",
+                    "waiver-invalid")
                     else "note"}}
     sections = rule.sections()
     markdown = "\n\n".join(f"**{heading}**\n\n{' '.join(text.split())}"
