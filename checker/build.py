@@ -20,6 +20,8 @@ from checker.units import UnitError, check_plausible, parse_value
 # Passive values must be positive; these kinds of parameter must not be negative.
 _NON_NEGATIVE = {"resistance", "capacitance", "inductance", "frequency", "current",
                  "slew-rate", "voltage-noise", "current-noise", "power", "percentage"}
+# Requirements that are magnitudes (a limit on noise, error, margin): never negative.
+_NON_NEGATIVE_REQUIREMENTS = {"noise", "dc-error", "headroom", "phase-margin"}
 _PASSIVE_KIND = {"resistors": ("resistor", "resistance"),
                  "capacitors": ("capacitor", "capacitance"),
                  "inductors": ("inductor", "inductance")}
@@ -244,6 +246,10 @@ class _Builder:
                 # A gain tolerance is relative to the gain: zero cannot be a target.
                 self.fail(path + (keyword,), "gain of the requirements cannot be zero")
                 continue
+            if keyword in _NON_NEGATIVE_REQUIREMENTS and number is not None and number < 0:
+                self.fail(path + (keyword,), f"{keyword} of the requirements is a magnitude"
+                                             f" and cannot be negative ({node[keyword]!r})")
+                continue
             if number is not None:
                 values[REQUIREMENT_ATTRIBUTES[keyword]] = number
         return Requirements(origin=self.origin(path), **values)
@@ -272,6 +278,18 @@ class _Builder:
                     rails[opamp.v_pos] <= rails[opamp.v_neg]:
                 self.fail_at(opamp.origin, f"op-amp {opamp.ref}: v+ ({rails[opamp.v_pos]:g} V)"
                              f" must be above v- ({rails[opamp.v_neg]:g} V)", opamp.ref)
+        drivers: dict[str, str] = {}
+        sourced = {source.net: source for source in stage.sources}
+        for opamp in stage.opamps:
+            if opamp.out in drivers:
+                self.fail_at(opamp.origin, f"op-amp {opamp.ref}: its output and that of"
+                             f" {drivers[opamp.out]} both drive net {opamp.out!r}; two"
+                             " outputs fight over one net", opamp.ref)
+            elif opamp.out in sourced:
+                self.fail_at(opamp.origin, f"op-amp {opamp.ref}: its output drives net"
+                             f" {opamp.out!r}, where {sourced[opamp.out].name} is; a source"
+                             " needs a net the stage does not drive", opamp.ref)
+            drivers.setdefault(opamp.out, opamp.ref)
         pins = Counter()
         for opamp in stage.opamps:
             for pin, net in opamp.pins.items():
@@ -287,7 +305,12 @@ class _Builder:
         for net in rails:
             pins[net] += 1
         for source in stage.sources:
-            if pins[source.net] < 2:
+            if source.net in rails:
+                what = "the ground" if source.net == stage.ground else "a supply"
+                self.fail_at(source.origin, f"{source.name}: net {source.net!r} is {what} of"
+                             f" {where}, held at a fixed voltage; a source drives a net of"
+                             " its own")
+            elif pins[source.net] < 2:
                 self.fail_at(source.origin, f"{source.name}: nothing in {where} is connected"
                              f" to net {source.net!r}")
         for load in stage.loads:

@@ -338,8 +338,11 @@ def cmd_config(args) -> int:
 
     from checker.audit import forget
 
+    from checker.config import trusted_by_environment
+
     forget()
-    request = Request(config_file=args.config)
+    request = Request(config_file=args.config,
+                      trust_config_rules=args.trust_config_rules or trusted_by_environment())
     try:
         config = config_for(os.path.join(args.path, "x") if os.path.isdir(args.path)
                             else args.path, request)
@@ -350,7 +353,8 @@ def cmd_config(args) -> int:
         args.path if os.path.isdir(args.path) else os.path.dirname(os.path.abspath(args.path)))
     print(f"configuration for {args.path}: {source or 'none found (defaults)'}")
     defaults = {"fail-on": "error", "select": "all rules", "ignore": "none",
-                "rules-dirs": "none", "parts": "none", "stray-capacitance": "1p", "jobs": "CPU count"}
+                "rules-dirs": "none", "parts": "none", "stray-capacitance": "1p", "jobs": "CPU count",
+                "time-budget": "30", "memory-limit": "1024"}
     for key, default in defaults.items():
         item = config.values.get(key)
         value = default if item is None else item.value

@@ -142,8 +142,8 @@ def _cmrr(h: np.ndarray) -> np.ndarray:
     """|Ad/Acm| per sample, with Ad = (H2 - H1)/2 and Acm = H1 + H2 (inf where Acm = 0)."""
     differential = np.abs(h[:, 1] - h[:, 0]) / 2
     common = np.abs(h[:, 0] + h[:, 1])
-    with np.errstate(divide="ignore"):
-        return np.where(common > 1e-15 * differential, differential / common, np.inf)
+    return np.divide(differential, common, out=np.full_like(differential, np.inf),
+                     where=common > 1e-15 * differential)
 
 
 class _Worst:

@@ -82,6 +82,11 @@ def feedback_pole(view):
         yield _finding(view, opamp, margin, bare_margin, warn)
 
 
+def _degrees(margin: float | None) -> str:
+    """A margin for a message; None where the loop no longer crosses over."""
+    return "no crossover" if margin is None else f"{margin:.0f}°"
+
+
 def _no_input_capacitance(view, opamp):
     return view.cannot_check(f"the feedback pole of {opamp.ref}",
                              f"part {opamp.part.name} gives no input capacitance",
@@ -108,7 +113,7 @@ def _finding(view, opamp, margin, bare_margin, warn):
                f" {format_si(resistance, 'Ω')} at its inverting input and"
                f" {format_si(capacitance, 'F')} of capacitance there put a feedback pole at"
                f" {format_si(pole_hz, 'Hz')}, near the {format_si(figures.loops[opamp.ref].crossover_hz, 'Hz')}"
-               f" crossover (without that capacitance: {bare_margin:.0f}°)")
+               f" crossover (without that capacitance: {_degrees(bare_margin)})")
     suggestion = _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn)
     return view.finding(message, where.origin, elements=elements, severity=severity,
                         measured=margin, limit=warn, unit="°",
@@ -135,8 +140,9 @@ def _suggest(view, opamp, feedback_resistors, resistance, capacitance, warn):
 
     needed_band = stage.require.bandwidth_hz or max(
         (s.band_high_hz or 0.0 for s in stage.sources), default=0.0)
-    rg = None if resistance >= rf * (1 - 1e-9) else 1 / (1 / resistance - 1 / rf)
-    if rg is not None:
+    rg = None if not resistance or resistance >= rf * (1 - 1e-9) else \
+        1 / (1 / resistance - 1 / rf)
+    if rg is not None and capacitance > 0:
         neutral = rg * capacitance / rf
         chosen = at_least(max(neutral, existing * 1.0001) if existing else neutral, "E12")
         margin, result = solved(chosen)

@@ -72,7 +72,7 @@ def input_resistance(view):
 
 def _suggest(view, source, zin, limit, settings) -> Suggestion:
     stage = view.stage
-    for opamp in stage.opamps:
+    for opamp in stage.opamps if zin > 0 else ():  # zero: the net is held, no resistor helps
         topology = classify(stage, opamp)
         if topology.name not in ("inverting", "summing", "T-network inverting"):
             continue

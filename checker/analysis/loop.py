@@ -53,7 +53,7 @@ def interpolate_log(f: np.ndarray, i: int, target: float, x_values: np.ndarray) 
 def unwrapped_phase_deg(T: np.ndarray) -> np.ndarray:
     """arg T in degrees, unwrapped from the lowest frequency along the last axis: each
     step's turn arg(T[i+1]/T[i]) taken in (-180, 180] and summed, as np.unwrap does."""
-    steps = np.angle(T[..., 1:] / T[..., :-1])
+    steps = np.angle(T[..., 1:] * np.conj(T[..., :-1]))  # arg(a/b), no division by 0
     return np.degrees(np.concatenate([np.angle(T[..., :1]), steps], axis=-1).cumsum(axis=-1))
 
 

@@ -16,6 +16,7 @@ from checker.engine import ENGINE_RULES
 from checker.findings import Finding, Severity
 from checker.report import Writer as BaseWriter
 from checker.report.context import ReportContext
+from checker.report.finite import finite_json
 from checker.review import FileResult
 
 LEVEL = {Severity.ERROR: "error", Severity.WARNING: "warning", Severity.INFO: "note"}
@@ -103,7 +104,8 @@ class Writer(BaseWriter):
         self.index = {rule_id: i for i, rule_id in enumerate(rule_ids)}
         driver = {"name": "ampcheck", "version": context.tool_version,
                   "rules": [_rule_entry(r, context) for r in rule_ids]}
-        tool = json.dumps({"driver": driver}, indent=2, ensure_ascii=False)
+        tool = json.dumps(finite_json({"driver": driver}), indent=2, ensure_ascii=False,
+                          allow_nan=False)
         out.write(f'{{\n  "$schema": "{SCHEMA_URI}",\n  "version": "2.1.0",\n  "runs": [\n'
                   f'    {{\n      "tool": {tool.replace(chr(10), chr(10) + "      ")},\n'
                   '      "columnKind": "unicodeCodePoints",\n      "results": [')
@@ -111,8 +113,8 @@ class Writer(BaseWriter):
 
     def add(self, result: FileResult) -> None:
         for finding in result.findings():
-            entry = json.dumps(result_entry(finding, self.root, self.index), indent=2,
-                               ensure_ascii=False)
+            entry = json.dumps(finite_json(result_entry(finding, self.root, self.index)),
+                               indent=2, ensure_ascii=False, allow_nan=False)
             self.out.write(("," if self.count else "") + "\n        " +
                            entry.replace("\n", "\n        "))
             self.count += 1
