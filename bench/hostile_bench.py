@@ -98,6 +98,12 @@ FAMILIES = {
     "64,000 dangling nets": lambda: dangling(64000),
     "6,400 off-series resistors": lambda: off_series(6400),
     "200 stages in one file": lambda: many_stages(200),
+    # the same families at the size limits (checker/stage_limits.py): reviewed in full
+    "Monte Carlo at the limit": lambda: wide_monte_carlo(127),
+    "16 followers": lambda: followers(16),
+    "250 dangling nets": lambda: dangling(250),
+    "250 off-series resistors": lambda: off_series(250),
+    "64 stages in one file": lambda: many_stages(64),
 }
 
 

@@ -15,7 +15,10 @@ from checker.io.load import ParsedFile
 from checker.io.positions import InputErrors, InputProblem, Path, locate
 from checker.model import (PART_ATTRIBUTES, REQUIREMENT_ATTRIBUTES, Load, OpAmp, OpAmpPart,
                            Origin, Passive, Requirements, Source, Stage, Supply, Waiver)
+from checker.stage_limits import MAX_PARTS, MAX_STAGES, stage_too_large
 from checker.units import UnitError, check_plausible, parse_value
+
+MAX_NET_HINTS = 20  # "did you mean" hints per stage: each costs a fuzzy search
 
 # Passive values must be positive; these kinds of parameter must not be negative.
 _NON_NEGATIVE = {"resistance", "capacitance", "inductance", "frequency", "current",
@@ -81,6 +84,10 @@ class _Builder:
     def stage(self, node: dict, path: Path, parts: dict[str, OpAmpPart]) -> Stage | None:
         name = node["name"]
         where = f"stage {name}"
+        too_large = stage_too_large(node)
+        if too_large:
+            self.fail(path, f"{where} {too_large}; split it into stages that feed each other")
+            return None
         ground = node["ground"]
         supplies = []
         for i, item in enumerate(node.get("supplies", [])):
@@ -317,14 +324,17 @@ class _Builder:
             if pins[load.net] < 2:
                 self.fail_at(load.origin, f"load at {load.net}: nothing in {where} drives"
                              f" net {load.net!r}")
+        connected = [n for n in pins if pins[n] > 1]  # the candidates for a hint, once
+        hints: dict[str, str] = {}
         for element in (*stage.opamps, *stage.passives):
             nets = element.nets if isinstance(element, Passive) else (
                 element.in_pos, element.in_neg, element.out)
             for net in nets:
                 if pins[net] == 1 and net not in rails:
-                    close = difflib.get_close_matches(net, [n for n in pins if pins[n] > 1
-                                                            and n != net], n=1, cutoff=0.6)
-                    hint = f"; did you mean {close[0]!r}?" if close else ""
+                    if net not in hints and len(hints) < MAX_NET_HINTS:
+                        close = difflib.get_close_matches(net, connected, n=1, cutoff=0.6)
+                        hints[net] = f"; did you mean {close[0]!r}?" if close else ""
+                    hint = hints.get(net, "")
                     self.fail_at(element.origin, f"{element.ref}: net {net!r} is connected"
                                  f" to nothing else in {where} (dangling){hint}", element.ref)
 
@@ -338,6 +348,10 @@ def build_parts(parsed: ParsedFile, builtin: bool = False) -> list[OpAmpPart]:
     builder = _Builder(parsed)
     parts = []
     names = set()
+    if len(parsed.tree.get("parts", [])) > MAX_PARTS:
+        builder.fail(("parts", MAX_PARTS), f"this file defines"
+                     f" {len(parsed.tree['parts'])} parts; the limit is {MAX_PARTS} per file")
+        raise InputErrors(builder.problems)
     for i, node in enumerate(parsed.tree.get("parts", [])):
         if node["name"] in names:
             builder.fail(("parts", i), f"part {node['name']} is defined twice in this file")
@@ -355,6 +369,11 @@ def build_stages(parsed: ParsedFile, library: dict[str, OpAmpPart]) -> list[Stag
     builder = _Builder(parsed)
     stages = []
     names: dict[str, int] = {}
+    if len(parsed.tree.get("stages", [])) > MAX_STAGES:
+        builder.fail(("stages", MAX_STAGES), f"this file holds"
+                     f" {len(parsed.tree['stages'])} stages; the limit is {MAX_STAGES} per"
+                     " file")
+        raise InputErrors(builder.problems)
     for i, node in enumerate(parsed.tree.get("stages", [])):
         if node["name"] in names:
             builder.fail(("stages", i), f"stage {node['name']} is defined twice in this file")

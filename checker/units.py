@@ -141,7 +141,9 @@ def parse_value(value: object, kind: str) -> float:
         except OverflowError:  # decibels whose ratio overflows: 7000dB
             raise UnitError(f"{_short(value)} is beyond the range of a number") from None
     if not math.isfinite(number):
-        raise UnitError(f"{_short(value)} is not a finite number")
+        beyond = " (a number beyond about 1.8e308 reads as infinity)" \
+            if isinstance(value, float) and math.isinf(value) else ""
+        raise UnitError(f"{_short(value)} is not a finite number{beyond}")
     if number != 0.0 and abs(number) < sys.float_info.min:
         raise UnitError(f"{_short(value)} is too small to be a number (a denormal)")
     return number

@@ -27,6 +27,12 @@ def _initialise() -> None:
         signal.signal(signal.SIGHUP, signal.SIG_DFL)
 
 
+def _batch(task: tuple[Callable, list]) -> list:
+    """work(item) for every item of one batch, in one worker (fewer round trips)."""
+    work, items = task
+    return [work(item) for item in items]
+
+
 def _context():
     method = "fork" if "fork" in multiprocessing.get_all_start_methods() else "spawn"
     return multiprocessing.get_context(method)
@@ -39,21 +45,27 @@ def _run(work, tasks: list, jobs: int, chunk: int, patience_s: float | None):
     before = {process.pid for process in multiprocessing.active_children()}
     with context.Pool(jobs, initializer=_initialise) as pool:
         workers = [p for p in multiprocessing.active_children() if p.pid not in before]
-        results = pool.imap(work, tasks, chunksize=chunk)
+        # Batches of ``chunk`` tasks, mapped one by one, so that the iterator can wait
+        # with a timeout (Pool.imap with a chunksize gives a plain generator).
+        batches = [(work, tasks[i:i + chunk]) for i in range(0, len(tasks), chunk)]
+        results = pool.imap(_batch, batches, chunksize=1)
         done, waited_since = 0, time.monotonic()
-        while done < len(tasks):
-            try:
-                result = results.next(timeout=POLL_S)
-            except multiprocessing.TimeoutError:
-                dead = [p for p in workers if not p.is_alive()]
-                if dead:
-                    return done, _exit_text(dead[0].exitcode)
-                if patience_s and time.monotonic() - waited_since > patience_s:
-                    return done, f"its worker process stopped answering for {patience_s:g} s"
-                continue
-            done += 1
+        for _ in batches:
+            while True:
+                try:
+                    batch = results.next(timeout=POLL_S)
+                    break
+                except multiprocessing.TimeoutError:
+                    dead = [p for p in workers if not p.is_alive()]
+                    if dead:
+                        return done, _exit_text(dead[0].exitcode)
+                    if patience_s and time.monotonic() - waited_since > patience_s:
+                        return done, ("its worker process stopped answering for"
+                                      f" {patience_s:g} s")
             waited_since = time.monotonic()
-            yield result
+            for result in batch:
+                done += 1
+                yield result
     return done, None
 
 

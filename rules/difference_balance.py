@@ -86,6 +86,11 @@ def difference_balance(view):
     worst = _worst(solver, refs, tolerances, settings)
     if worst.cmrr >= limit * (1 - 1e-9):
         return
+    if not worst.cmrr > 0:
+        yield view.cannot_check(f"the common-mode rejection of {amp.ref}", "its"
+                                " differential gain is zero (the two inputs are tied)",
+                                amp.origin, (amp.ref,))
+        return
     assumed = [r for r in assumed if r in refs]
     share = _share(solver, refs, tolerances, limit, settings)
     listed = ", ".join(f"{r} {format_si(tolerances[r], '%')}" for r in refs)

@@ -65,6 +65,11 @@ def gain_tolerance(view):
     frequency = 0.0 if not source.band_low_hz else figures.sources[index].reference_hz
     tolerances, assumed = _tolerances(stage, settings["default_tolerance"])
     gain = _GainSolver(figures, index, source.net, stage.output_net, frequency)
+    if not math.isfinite(gain.nominal):
+        yield view.cannot_check("the gain tolerance", f"the gain from net {source.net!r} is"
+                                " not defined: nothing moves that net (it is held at a fixed"
+                                " voltage)", stage.require.origin)
+        return
     refs = gain.sensitive([p.ref for p in stage.resistors()], tolerances)
     if not refs:
         return

@@ -2,14 +2,15 @@
 
 from __future__ import annotations
 
+import cmath
 import math
 
 from checker.analysis.figures import signed_gain
+from checker.analysis.updates import source_gain_with_each
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.preferred import nearest, series_for_tolerance
 from checker.units import format_si
-from checker.variants import with_resistance
 
 # A part of a given tolerance is stocked in its own series and in the coarser ones: a
 # 1 % resistor comes in E96 values and also in the E24 values (common practice).
@@ -39,9 +40,9 @@ def preferred_values(view):
 
     How the fix is computed:
         The nearest member (on a log scale) of the accepted series. For a resistor at
-        an op-amp input or in its feedback network the rule puts that value into a
-        copy of the stage, solves it again and states the gain the stage then has
-        beside the present one.
+        an op-amp input or in its feedback network the rule solves the stage with that
+        value (a rank-one update of the present solve, one per resistor, exact to
+        rounding) and states the gain the stage then has beside the present one.
 
     Sources:
         IEC 60063, preferred number series for resistors and capacitors (E12, E24,
@@ -51,6 +52,7 @@ def preferred_values(view):
     stage, settings = view.stage, view.settings
     inputs = ({o.in_neg for o in stage.opamps} | {o.in_pos for o in stage.opamps}) \
         - set(stage.rail_voltages)
+    found = []
     for passive in stage.passives:
         if passive.kind not in UNITS:
             continue
@@ -61,8 +63,11 @@ def preferred_values(view):
         accepted = ACCEPTED[series]
         closest = min((nearest(passive.value, s) for s in accepted),
                       key=lambda v: abs(math.log(v / passive.value)))
-        if abs(closest / passive.value - 1) <= settings["match_tolerance"]:
-            continue
+        if abs(closest / passive.value - 1) > settings["match_tolerance"]:
+            found.append((passive, series, accepted, closest))
+    gains = _gains(view, [(p, closest) for p, _s, _a, closest in found
+                          if p.kind == "resistor" and set(p.nets) & inputs])
+    for passive, series, accepted, closest in found:
         unit = UNITS[passive.kind]
         names = " or ".join(accepted[:2]) if series == "E96" else series
         if passive.tolerance is not None:
@@ -75,9 +80,9 @@ def preferred_values(view):
         message = (f"{passive.ref} is {format_si(passive.value, unit, 4)} {why}; the nearest"
                    f" is {format_si(closest, unit, 4)}")
         text = f"use {format_si(closest, unit, 4)} for {passive.ref}"
-        if passive.kind == "resistor" and set(passive.nets) & inputs:
-            before, after = _gains(view, passive.ref, closest)
-            if before is not None and abs(after - before) > 1e-6 * abs(before):
+        if passive.ref in gains:
+            before, after = gains[passive.ref]
+            if abs(after - before) > 1e-6 * abs(before):
                 text += f": the solved gain is then {after:.4g} (now {before:.4g})"
         yield view.finding(message, passive.origin, elements=(passive.ref,),
                            measured=passive.value, limit=closest, unit=unit,
@@ -86,9 +91,16 @@ def preferred_values(view):
                            series=series)
 
 
-def _gains(view, ref: str, ohms: float) -> tuple[float | None, float | None]:
-    """The stage's mid-band gain (first source) now and with ``ref`` at ``ohms``."""
-    if not view.stage.sources or not view.figures.solvable:
-        return None, None
-    changed = view.reanalyse(with_resistance(view.stage, ref, ohms))
-    return signed_gain(view.figures.sources[0].gain_mid), signed_gain(changed.sources[0].gain_mid)
+def _gains(view, changes) -> dict[str, tuple[float, float]]:
+    """The stage's mid-band gain (first source) now and with each resistor of
+    ``changes`` [(resistor, ohms), ...] alone at its new value, by designator: one solve
+    for them all (a rank-one update per resistor, checker/analysis/updates.py)."""
+    if not changes or not view.stage.sources or not view.figures.solvable:
+        return {}
+    main = view.figures.sources[0]
+    after = source_gain_with_each(
+        view.figures, 0, [(p.net_a, p.net_b, 1 / ohms - 1 / p.value) for p, ohms in changes],
+        main.reference_hz)
+    before = signed_gain(main.gain_mid)
+    return {p.ref: (before, signed_gain(complex(gain)))
+            for (p, _ohms), gain in zip(changes, after) if cmath.isfinite(gain)}
