@@ -166,9 +166,8 @@ def check_files(paths: list[str], request: Request, jobs: int = 1) -> Iterator[F
             yield reviewed(path, request)
         return
     chunk = max(1, min(16, len(paths) // (jobs * 8)))
-    patience = None
-    if request.time_budget_s:  # a worker silent for longer is stuck in native code
-        patience = chunk * (request.time_budget_s + 5) + 30
+    # A worker silent for much longer than its files' budgets is stuck in native code.
+    patience = request.time_budget_s + 5 if request.time_budget_s else None
     yield from workers.ordered(_worker, [(path, request) for path in paths], jobs, chunk,
                                patience, _died)
 

@@ -163,7 +163,15 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+# The matrices are small (a stage has tens of unknowns) and the parallelism comes from
+# worker processes, so BLAS threads only compete with each other: one per process,
+# unless the user set a count. Effective only before numpy is first imported.
+BLAS_THREAD_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+
+
 def main(argv: list[str] | None = None) -> int:
+    for variable in BLAS_THREAD_VARIABLES:
+        os.environ.setdefault(variable, "1")
     parser = build_parser()
     try:
         args = parser.parse_args(argv)

@@ -1,13 +1,17 @@
 """Worker processes of an audit: results in task order, quiet on signals, and a worker
 that dies takes only its own file with it.
 
+Each worker is a process with a pipe of its own (no queue shared between workers, so a
+worker killed at any moment cannot leave a lock held that stops the others or the
+parent). The parent hands out batches of tasks, keeps at most a few batches ahead of
+the first unfinished one, and yields the results in task order.
+
 Workers ignore SIGINT (Ctrl-C reaches every process of the terminal's group; the parent
-alone decides to stop, and then terminates the pool) and die quietly on SIGTERM and
-SIGHUP. A worker that dies (killed, or the interpreter crashed) or stops answering
-(stuck in one long native call past ``patience_s``) is noticed by polling; the
-unfinished tasks then run one at a time in a fresh single-worker pool until the task that
-takes its worker down is found, and ``died(task, why)`` stands in for its result. The
-other tasks are simply run again, so every result is the one a single process gives.
+alone decides to stop, and then terminates them) and die quietly on SIGTERM and SIGHUP.
+A worker that dies (killed, or its interpreter crashed) or stops answering (stuck in one
+long native call past its patience) is replaced; its batch runs again one task at a time,
+and the task that takes a worker down once more gets ``died(task, why)`` as its result.
+Every other result is the one a single process gives.
 """
 
 from __future__ import annotations
@@ -15,9 +19,12 @@ from __future__ import annotations
 import multiprocessing
 import signal
 import time
+from collections import deque
 from collections.abc import Callable, Iterator
+from multiprocessing.connection import wait
 
-POLL_S = 0.25  # how often the parent looks for a dead worker while it waits
+POLL_S = 0.25  # the longest the parent waits before it looks at its workers again
+AHEAD = 4  # batches handed out beyond the first unfinished one, per worker
 
 
 def _initialise() -> None:
@@ -27,10 +34,17 @@ def _initialise() -> None:
         signal.signal(signal.SIGHUP, signal.SIG_DFL)
 
 
-def _batch(task: tuple[Callable, list]) -> list:
-    """work(item) for every item of one batch, in one worker (fewer round trips)."""
-    work, items = task
-    return [work(item) for item in items]
+def _serve(connection, work: Callable) -> None:
+    """A worker's life: receive a batch, send back its results, until told to stop."""
+    _initialise()
+    while True:
+        try:
+            batch = connection.recv()
+        except (EOFError, OSError):
+            return
+        if batch is None:
+            return
+        connection.send([work(task) for task in batch])
 
 
 def _context():
@@ -38,35 +52,27 @@ def _context():
     return multiprocessing.get_context(method)
 
 
-def _run(work, tasks: list, jobs: int, chunk: int, patience_s: float | None):
-    """Yield work(task) in order from a pool of ``jobs``; return (count done, None) or
-    (count done, why the pool was given up)."""
-    context = _context()
-    before = {process.pid for process in multiprocessing.active_children()}
-    with context.Pool(jobs, initializer=_initialise) as pool:
-        workers = [p for p in multiprocessing.active_children() if p.pid not in before]
-        # Batches of ``chunk`` tasks, mapped one by one, so that the iterator can wait
-        # with a timeout (Pool.imap with a chunksize gives a plain generator).
-        batches = [(work, tasks[i:i + chunk]) for i in range(0, len(tasks), chunk)]
-        results = pool.imap(_batch, batches, chunksize=1)
-        done, waited_since = 0, time.monotonic()
-        for _ in batches:
-            while True:
-                try:
-                    batch = results.next(timeout=POLL_S)
-                    break
-                except multiprocessing.TimeoutError:
-                    dead = [p for p in workers if not p.is_alive()]
-                    if dead:
-                        return done, _exit_text(dead[0].exitcode)
-                    if patience_s and time.monotonic() - waited_since > patience_s:
-                        return done, ("its worker process stopped answering for"
-                                      f" {patience_s:g} s")
-            waited_since = time.monotonic()
-            for result in batch:
-                done += 1
-                yield result
-    return done, None
+class _Worker:
+    def __init__(self, context, work: Callable):
+        self.connection, child = context.Pipe()
+        self.process = context.Process(target=_serve, args=(child, work), daemon=True)
+        self.process.start()
+        child.close()
+        self.batch: tuple[int, list] | None = None  # (index of its first task, tasks)
+        self.since = 0.0
+
+    def give(self, batch: tuple[int, list]) -> None:
+        self.batch, self.since = batch, time.monotonic()
+        self.connection.send(batch[1])
+
+    def stop(self) -> None:
+        if self.process.is_alive():
+            self.process.terminate()
+            self.process.join(2)
+            if self.process.is_alive():
+                self.process.kill()
+        self.process.join()
+        self.connection.close()
 
 
 def _exit_text(code: int | None) -> str:
@@ -79,23 +85,59 @@ def _exit_text(code: int | None) -> str:
     return f"its worker process ended unexpectedly (exit status {code})"
 
 
-def ordered(work: Callable, tasks: list, jobs: int, chunk: int, patience_s: float | None,
+def ordered(work: Callable, tasks: list, jobs: int, chunk: int,
+            patience_per_task_s: float | None,
             died: Callable[[object, str], object]) -> Iterator:
-    """work(task) for every task, in the order of ``tasks``, from ``jobs`` processes."""
-    start = 0
-    while start < len(tasks):
-        done, lost = yield from _run(work, tasks[start:], jobs, chunk, patience_s)
-        start += done
-        if lost is None:
-            return
-        # The lost task is among the next jobs * chunk: run those alone, one by one.
-        suspects = tasks[start:start + jobs * chunk]
-        single = patience_s / chunk if patience_s else None
-        index = 0
-        while index < len(suspects):
-            done, lost = yield from _run(work, suspects[index:], 1, 1, single)
-            index += done
-            if lost is not None:
-                yield died(suspects[index], lost)
-                index += 1
-        start += len(suspects)
+    """work(task) for every task, in the order of ``tasks``, from ``jobs`` processes.
+
+    A batch whose worker is silent for longer than ``patience_per_task_s`` per task
+    (plus 30 s) counts as stuck; None: only a dead worker is noticed."""
+    context = _context()
+    pending = deque((start, tasks[start:start + chunk]) for start in range(0, len(tasks), chunk))
+    done: dict[int, list] = {}
+    first = 0  # the index of the first task not yet yielded
+    window = AHEAD * jobs * chunk
+    workers = [_Worker(context, work) for _ in range(min(jobs, len(pending)))]
+    try:
+        while first < len(tasks):
+            for worker in workers:
+                if worker.batch is None and pending and pending[0][0] < first + window:
+                    worker.give(pending.popleft())
+            while first in done:
+                results = done.pop(first)
+                yield from results
+                first += len(results)
+            if first >= len(tasks):
+                break
+            busy = [w for w in workers if w.batch is not None]
+            wait([w.connection for w in busy] + [w.process.sentinel for w in busy], POLL_S)
+            for index, worker in enumerate(workers):
+                if worker.batch is None:
+                    continue
+                start, batch = worker.batch
+                why = None
+                try:
+                    if worker.connection.poll():
+                        done[start] = worker.connection.recv()
+                        worker.batch = None
+                        continue
+                except (EOFError, OSError):
+                    pass
+                if not worker.process.is_alive():
+                    why = _exit_text(worker.process.exitcode)
+                elif patience_per_task_s and time.monotonic() - worker.since > \
+                        patience_per_task_s * len(batch) + 30:
+                    why = (f"its worker process stopped answering for"
+                           f" {patience_per_task_s * len(batch) + 30:g} s")
+                if why is None:
+                    continue
+                worker.stop()
+                workers[index] = _Worker(context, work)
+                if len(batch) == 1:
+                    done[start] = [died(batch[0], why)]
+                else:  # which task was it? each runs alone next
+                    for offset in reversed(range(len(batch))):
+                        pending.appendleft((start + offset, [batch[offset]]))
+    finally:
+        for worker in workers:
+            worker.stop()

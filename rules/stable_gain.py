@@ -172,7 +172,7 @@ def _suggest(view, opamp, topology, minimum: float) -> tuple[Suggestion, dict]:
     values = ladder(1.0, rf * 10, "E24")[::-1]  # largest first: the least added noise
     # The noise gain at crossover rises as Rs falls: bisect for the largest that passes.
     low, high = 0, len(values) - 1
-    if below(solved(values[high])[1], minimum):
+    if not values or below(solved(values[high])[1], minimum):
         return Suggestion(f"no series RC across the inputs brings the noise gain up to"
                           f" {minimum:.3g}: {unity}", element=opamp.ref), {}
     while low < high:
