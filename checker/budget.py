@@ -21,7 +21,7 @@ import signal
 import threading
 from contextlib import contextmanager
 
-DEFAULT_TIME_BUDGET_S = 30.0
+DEFAULT_TIME_BUDGET_S = 60.0  # a backstop: the largest legal stage takes about 20 s
 DEFAULT_MEMORY_LIMIT_MB = 1024
 
 
@@ -69,35 +69,40 @@ def _address_space_bytes() -> int | None:
         return None
 
 
-@contextmanager
-def memory_cap(megabytes: float | None):
-    """Within the block, the process may grow by at most ``megabytes`` (None or 0: no
-    cap); MemoryError past it."""
+def _cap_address_space(megabytes: float | None):
+    """Lower the soft RLIMIT_AS to this process's size plus ``megabytes``; the previous
+    (soft, hard) pair to put back, or None where nothing was changed."""
     if not megabytes or megabytes <= 0:
-        yield
-        return
+        return None
     try:
         import resource
     except ImportError:  # not POSIX
-        yield
-        return
+        return None
     size = _address_space_bytes()
     if size is None:
-        yield
-        return
+        return None
     soft, hard = resource.getrlimit(resource.RLIMIT_AS)
     limit = size + int(megabytes * 1024 * 1024)
     if hard != resource.RLIM_INFINITY:
         limit = min(limit, hard)
     if soft != resource.RLIM_INFINITY and soft <= limit:
-        yield  # already capped at least as tightly
-        return
+        return None  # already capped at least as tightly
     try:
         resource.setrlimit(resource.RLIMIT_AS, (limit, hard))
     except (ValueError, OSError):
-        yield
-        return
+        return None
+    return soft, hard
+
+
+@contextmanager
+def memory_cap(megabytes: float | None):
+    """Within the block, the process may grow by at most ``megabytes`` (None or 0: no
+    cap); MemoryError past it."""
+    previous = _cap_address_space(megabytes)
     try:
         yield
     finally:
-        resource.setrlimit(resource.RLIMIT_AS, (soft, hard))
+        if previous is not None:
+            import resource
+
+            resource.setrlimit(resource.RLIMIT_AS, previous)

@@ -121,7 +121,7 @@ def build_parser() -> argparse.ArgumentParser:
                        help="worker processes (default: one per CPU)")
     check.add_argument("--time-budget", type=float, metavar="SECONDS",
                        help="stop one file's review after this long and report it"
-                            " (default 30, 0 for none)")
+                            " (default 60, 0 for none)")
     check.add_argument("--memory-limit", type=float, metavar="MB",
                        help="memory one file's review may add to its process (default"
                             " 1024, 0 for none; Linux)")
@@ -362,7 +362,7 @@ def cmd_config(args) -> int:
     print(f"configuration for {args.path}: {source or 'none found (defaults)'}")
     defaults = {"fail-on": "error", "select": "all rules", "ignore": "none",
                 "rules-dirs": "none", "parts": "none", "stray-capacitance": "1p", "jobs": "CPU count",
-                "time-budget": "30", "memory-limit": "1024"}
+                "time-budget": "60", "memory-limit": "1024"}
     for key, default in defaults.items():
         item = config.values.get(key)
         value = default if item is None else item.value

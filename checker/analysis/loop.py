@@ -21,9 +21,16 @@ import numpy as np
 
 
 def return_ratio(gain: np.ndarray, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """(T, beta) from A_k (F,) and the closed-loop response z (F,) (see module doc)."""
-    beta = z / (1 - gain * z)
-    return gain * beta, beta
+    """(T, beta) from A_k (F,) and the closed-loop response z (F,) (see module doc).
+    Where 1 - A z is exactly 0 (the stage with this gain taken out is singular, as when
+    other op-amps hold the nets) both are infinite: no finite loop gain describes it."""
+    gain, z = np.asarray(gain), np.asarray(z)
+    denominator = 1 - gain * z
+    beta = np.divide(z, denominator, out=np.full(denominator.shape, np.inf, dtype=complex),
+                     where=denominator != 0)
+    T = np.multiply(gain, beta, out=np.full(beta.shape, np.inf, dtype=complex),
+                    where=np.isfinite(beta))
+    return T, beta
 
 
 @dataclass(frozen=True)

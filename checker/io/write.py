@@ -50,7 +50,8 @@ class AtomicOutput:
                                                   suffix=TEMPORARY_SUFFIX)
         try:
             mode = stat.S_IMODE(existing.st_mode) if existing else 0o666 & ~_umask()
-            os.fchmod(handle, mode)
+            if hasattr(os, "fchmod"):  # POSIX; elsewhere the platform's default stays
+                os.fchmod(handle, mode)
             self.stream = os.fdopen(handle, "w", encoding="utf-8", newline=newline)
         except BaseException:
             os.close(handle)
