@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 from checker.analysis.topology import classify
 from checker.analysis.updates import margins_with_admittances
 from checker.engine import rule
@@ -79,10 +81,11 @@ def feedback_pole(view):
                 stage, ref, stray, f)).phase_margin_deg
         if bare_margin is not None and bare_margin < warn:
             continue  # something else costs the margin (load, compensation): other rules
-        if not figures.inverting_input[opamp.ref][0] > 0:
+        if not 0 < figures.inverting_input[opamp.ref][0] < math.inf:
             yield view.cannot_check(f"the feedback pole of {opamp.ref}", "the resistance at"
-                                    " its inverting input is not positive (another output"
-                                    " drives that net)", opamp.origin, (opamp.ref,))
+                                    " its inverting input is not a positive finite value (no"
+                                    " resistive path there, or another output drives that"
+                                    " net)", opamp.origin, (opamp.ref,))
             continue
         yield _finding(view, opamp, margin, bare_margin, warn)
 

@@ -149,6 +149,7 @@ def _worst(gain: _GainSolver, refs, tolerances, required: float, settings) -> _W
         exact = False
     gains = gain.gains(values)
     errors = np.abs(gains / required - 1)
+    errors = np.where(np.isfinite(errors), errors, -1.0)  # a set whose gain is undefined
     at = int(np.argmax(errors))
     signs = tuple(math.copysign(1.0, values[r][at] - gain.nominal_values[r]) for r in refs)
     return _Worst(float(errors[at]), float(gains[at]), signs, exact)

@@ -105,7 +105,7 @@ def _crossover(figures, ref: str) -> float | None:
         return loop.crossover_hz
     if next(o for o in figures.stage.opamps if o.ref == ref).part.gbw_hz is None:
         return None  # no GBW: the gain is flat, so |T| tells nothing about a crossover
-    magnitude = np.log(np.abs(loop.loop_gain))
+    magnitude = np.log(np.maximum(np.abs(loop.loop_gain), np.finfo(float).tiny))  # 0: no log
     above = magnitude >= 0.0
     falls = np.nonzero(above[:-1] & ~above[1:])[0]
     if not falls.size:

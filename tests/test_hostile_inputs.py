@@ -220,6 +220,80 @@ def test_an_op_amp_output_on_a_source_net_and_two_outputs_on_one_net_are_refused
     assert any("both drive net 'out'" in p.message for p in problems_of(text))
 
 
+def test_a_loop_gain_that_is_zero_somewhere_gives_a_crossover_without_a_warning():
+    # The output reaches a rail through an inductor: at DC the loop gain is exactly 0,
+    # which has no logarithm (the stable-gain rule read log |T| on the whole grid).
+    text = textwrap.dedent("""\
+        (version 1)
+        (stage w (ground gnd) (supply vcc 5V)
+          (opamp U1 (part decomp-bipolar-g5) (in+ qq) (in- fb) (out out) (v+ vcc) (v- gnd))
+          (resistor R1 fb gnd 10k) (resistor R2 fb out 39k) (capacitor C1 fb out 100n)
+          (capacitor CQ1 in gnd 1n) (capacitor CQ2 in qq 1n) (capacitor CQ3 qq gnd 1n)
+          (inductor L1 out vcc 10m)
+          (source in (range 0.2V 0.9V) (band 1e-9 1kHz) (impedance 5k))
+          (load out (resistance 100k) (capacitance 20p)))
+        """)
+    assert engine_failures(text) == []
+
+
+def test_a_return_ratio_whose_reference_system_is_singular_is_infinite():
+    from checker.analysis.loop import return_ratio, unwrapped_phase_deg
+
+    # 1 - A z = 1 - 2 * 0.5 = 0: beta = z / (1 - A z) has no finite value (the return
+    # ratio identity of the module's docstring); T = A beta follows it
+    T, beta = return_ratio(np.array([2.0 + 0j, 2.0 + 0j]), np.array([0.5 + 0j, 0.25 + 0j]))
+    assert np.isinf(T[0]) and np.isinf(beta[0])
+    assert T[1] == pytest.approx(1.0)  # 2 * 0.25 / (1 - 0.5) = 1
+    # a loop gain of exactly zero has no phase step: the unwrapped phase stays finite
+    assert np.all(np.isfinite(unwrapped_phase_deg(np.array([1.0, 0.0, 1j]))))
+
+
+def finding_words(text: str) -> set[str]:
+    from checker.engine import check_stages
+
+    stages = build_stages(parse_text(text, "t.stage"), LIBRARY)
+    _figures, found = check_stages(stages, list(RULES.values()), RunOptions())
+    return {word.strip("(),;:") for fs in found.values() for f in fs
+            for word in f.message.split()}
+
+
+def test_an_inverting_input_on_capacitors_only_is_no_infinite_resistance_in_a_message():
+    # U2's inverting input qq reaches the rest only through capacitors: its resistance
+    # there is infinite, and the feedback-pole rule said "the inf Ω at its input".
+    text = textwrap.dedent("""\
+        (version 1)
+        (stage two (ground gnd) (supply vcc 5V)
+          (opamp U1 (part cmos-rrio) (in+ qq) (in- fb) (out out) (v+ vcc) (v- gnd))
+          (opamp U2 (part cmos-rrio) (in+ shunt) (in- qq) (out fb) (v+ vcc) (v- gnd))
+          (resistor R1 fb gnd 1k) (resistor R2 fb out 39k)
+          (capacitor C1 shunt gnd 1n) (capacitor C2 fb qq 1n) (capacitor C3 qq gnd 1n)
+          (source shunt (range 5mV 100mV) (band 0Hz 10Hz) (impedance 0.1))
+          (load out (resistance 100k) (capacitance 20p))
+          (require (gain 40) (gain-tolerance 2%)))
+        """)
+    assert not {"inf", "-inf", "nan"} & finding_words(text)
+
+
+def test_a_corner_whose_gain_is_undefined_is_not_the_worst_corner():
+    # RZ1 (1 µΩ) ties the output to the source's net and L1 holds that net at 0 V at
+    # DC; the gain-tolerance rule's worst corner read "nan" where one corner's gain was
+    # 0/0.
+    text = textwrap.dedent("""\
+        (version 1)
+        (stage level (ground gnd) (supply vcc 12V)
+          (opamp U1 (part decomp-bipolar-g5) (in+ qq) (in- fb) (out out) (v+ vcc) (v- gnd))
+          (resistor R1 in fb 10k (tolerance 1%)) (resistor R2 fb out 150k (tolerance 1%))
+          (resistor R3 vcc ref 10k (tolerance 1%)) (resistor R4 ref gnd 10k (tolerance 1%))
+          (resistor RZ1 out in 1e-6) (inductor L1 in gnd 10m)
+          (capacitor C1 ref gnd 10u (tolerance 20%)) (capacitor C2 vcc ref 100u)
+          (capacitor C3 ref gnd 1n) (capacitor C4 ref qq 1n) (capacitor C5 qq gnd 1n)
+          (source in (range 5.6V 6.4V) (band 0Hz 5Hz) (impedance 100))
+          (load out (resistance 10k) (capacitance 1n))
+          (require (gain -15) (gain-tolerance 2%)))
+        """)
+    assert not {"inf", "-inf", "nan"} & finding_words(text)
+
+
 # -- writers never emit NaN or Infinity --------------------------------------------------
 
 def test_finite_json_turns_every_non_finite_number_into_null():
