@@ -53,16 +53,23 @@ def _context():
 
 
 class _Worker:
+    """One worker process and the batches it holds, oldest first (two at most, so it
+    never waits for the parent between batches)."""
+
+    HELD = 2
+
     def __init__(self, context, work: Callable):
         self.connection, child = context.Pipe()
         self.process = context.Process(target=_serve, args=(child, work), daemon=True)
         self.process.start()
         child.close()
-        self.batch: tuple[int, list] | None = None  # (index of its first task, tasks)
-        self.since = 0.0
+        self.batches: deque[tuple[int, list]] = deque()  # (index of first task, tasks)
+        self.since = 0.0  # when its oldest batch started
 
     def give(self, batch: tuple[int, list]) -> None:
-        self.batch, self.since = batch, time.monotonic()
+        if not self.batches:
+            self.since = time.monotonic()
+        self.batches.append(batch)
         self.connection.send(batch[1])
 
     def stop(self) -> None:
@@ -101,7 +108,8 @@ def ordered(work: Callable, tasks: list, jobs: int, chunk: int,
     try:
         while first < len(tasks):
             for worker in workers:
-                if worker.batch is None and pending and pending[0][0] < first + window:
+                while len(worker.batches) < worker.HELD and pending and \
+                        pending[0][0] < first + window:
                     worker.give(pending.popleft())
             while first in done:
                 results = done.pop(first)
@@ -109,35 +117,41 @@ def ordered(work: Callable, tasks: list, jobs: int, chunk: int,
                 first += len(results)
             if first >= len(tasks):
                 break
-            busy = [w for w in workers if w.batch is not None]
+            busy = [w for w in workers if w.batches]
+            if not busy and not pending:  # nothing can ever bring the missing results
+                raise RuntimeError(f"worker results lost from task {first} on")
             wait([w.connection for w in busy] + [w.process.sentinel for w in busy], POLL_S)
             for index, worker in enumerate(workers):
-                if worker.batch is None:
+                if not worker.batches:
                     continue
-                start, batch = worker.batch
-                why = None
                 try:
                     if worker.connection.poll():
-                        done[start] = worker.connection.recv()
-                        worker.batch = None
+                        results = worker.connection.recv()
+                        done[worker.batches.popleft()[0]] = results
+                        worker.since = time.monotonic()
                         continue
                 except (EOFError, OSError):
-                    pass
+                    pass  # it died: below
+                size = len(worker.batches[0][1])
+                why = None
                 if not worker.process.is_alive():
                     why = _exit_text(worker.process.exitcode)
-                elif patience_per_task_s and time.monotonic() - worker.since > \
-                        patience_per_task_s * len(batch) + 30:
-                    why = (f"its worker process stopped answering for"
-                           f" {patience_per_task_s * len(batch) + 30:g} s")
+                elif patience_per_task_s and \
+                        time.monotonic() - worker.since > patience_per_task_s * size + 30:
+                    why = ("its worker process stopped answering for"
+                           f" {patience_per_task_s * size + 30:g} s")
                 if why is None:
                     continue
                 worker.stop()
                 workers[index] = _Worker(context, work)
-                if len(batch) == 1:
+                lost = list(worker.batches)
+                start, batch = lost[0]
+                if len(batch) == 1:  # the task that took its worker down
                     done[start] = [died(batch[0], why)]
-                else:  # which task was it? each runs alone next
-                    for offset in reversed(range(len(batch))):
-                        pending.appendleft((start + offset, [batch[offset]]))
+                    lost = lost[1:]
+                singles = [(first_index + offset, [task]) for first_index, tasks_ in lost
+                           for offset, task in enumerate(tasks_)]
+                pending.extendleft(reversed(singles))  # each runs alone, next
     finally:
         for worker in workers:
             worker.stop()
