@@ -1,9 +1,11 @@
 """Generate N synthetic but varied stage files for audit benchmarks.
 
 Every topology the analysis recognises, both syntaxes, random (seeded) part classes and
-values, and about 2 % broken files (syntax errors, unknown parts, bad units).
+values, and about 2 % broken files (syntax errors, unknown parts, bad units). With
+``--hostile F`` a share F of the files are the worst-case families of hostile_bench.py
+(in turn), and byte-level garbage: the audit must report every one of them.
 
-Run: .venv/bin/python bench/generate_stages.py FOLDER N [--seed S]
+Run: .venv/bin/python bench/generate_stages.py FOLDER N [--seed S] [--hostile F]
 """
 
 from __future__ import annotations
@@ -81,13 +83,32 @@ BROKEN = [
 ]
 
 
-def generate(folder: str, count: int, seed: int = 7) -> list[str]:
+def hostile_texts() -> list[str | bytes]:
+    """The hostile families, then byte-level garbage."""
+    from hostile_bench import FAMILIES
+
+    rng = random.Random(1)
+    return [make() for make in FAMILIES.values()] + [
+        "(" * 200000, "[" * 200000, bytes(rng.randrange(256) for _ in range(4000)),
+        b"(stage x \xff\xfe)", "(stage \"" + "a" * 100000]
+
+
+def generate(folder: str, count: int, seed: int = 7, hostile: float = 0.0) -> list[str]:
     rng = random.Random(seed)
     os.makedirs(folder, exist_ok=True)
     paths = []
+    families = hostile_texts() if hostile else []
     for i in range(count):
         sub = os.path.join(folder, f"board{i // 500:03d}")
         os.makedirs(sub, exist_ok=True)
+        if families and rng.random() < hostile:
+            path = os.path.join(sub, f"h{i:05d}.stage")
+            text = families[sum(os.path.basename(p).startswith("h") for p in paths)
+                            % len(families)]
+            with open(path, "wb") as handle:
+                handle.write(text if isinstance(text, bytes) else text.encode("utf-8"))
+            paths.append(path)
+            continue
         if rng.random() < 0.02:
             path = os.path.join(sub, f"s{i:05d}.stage")
             text = rng.choice(BROKEN)
@@ -110,5 +131,8 @@ if __name__ == "__main__":
     parser.add_argument("folder")
     parser.add_argument("count", type=int)
     parser.add_argument("--seed", type=int, default=7)
+    parser.add_argument("--hostile", type=float, default=0.0,
+                        help="share of hostile files (e.g. 0.01)")
     args = parser.parse_args()
-    print(f"wrote {len(generate(args.folder, args.count, args.seed))} files to {args.folder}")
+    written = generate(args.folder, args.count, args.seed, args.hostile)
+    print(f"wrote {len(written)} files to {args.folder}")

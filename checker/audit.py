@@ -10,15 +10,16 @@ from __future__ import annotations
 
 import os
 from collections.abc import Iterator
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from functools import lru_cache
 
+from checker import budget, workers
 from checker.analysis import AnalysisOptions
 from checker.cautions import KINDS as CAUTION_KINDS
 from checker.cautions import not_a_rule
 from checker.config import Config, ConfigError, find_config_file, parse_config
 from checker.engine import ENGINE_RULES, RuleError, RunOptions, load_rules, selected
-from checker.findings import Severity
+from checker.findings import Finding, Severity
 from checker.review import FileResult, review_file
 
 DEFAULT_STRAY_F = 1e-12  # layout stray at an inverting input (common practice: 0.5-2 pF)
@@ -38,6 +39,9 @@ class Request:
     figures_wanted: bool = True  # False when no report shows stage figures
     netlist_map: str | None = None  # --netlist-map: the map for every netlist
     plots_wanted: str = ""  # the HTML review's plots: "all", "failing" or "" (none)
+    trust_config_rules: bool = False  # load rules-dirs named in configuration files
+    time_budget_s: float | None = budget.DEFAULT_TIME_BUDGET_S  # per file; None: none
+    memory_limit_mb: float | None = budget.DEFAULT_MEMORY_LIMIT_MB  # per file; None: none
 
 
 @lru_cache(maxsize=64)
@@ -46,10 +50,10 @@ def rules_for(folders: tuple[str, ...]):
 
 
 @lru_cache(maxsize=256)
-def config_at(config_file: str | None) -> Config:
+def config_at(config_file: str | None, trust_rules: bool = False) -> Config:
     if config_file is None:
         return Config()
-    return parse_config(config_file, rules_for)
+    return parse_config(config_file, rules_for, trust_rules)
 
 
 def config_for(path: str, request: Request) -> Config:
@@ -57,7 +61,16 @@ def config_for(path: str, request: Request) -> Config:
     if not request.use_config:
         return Config()
     config_file = request.config_file or find_config_file(os.path.dirname(os.path.abspath(path)))
-    return config_at(config_file).for_file(path)
+    return config_at(config_file, request.trust_config_rules).for_file(path)
+
+
+def _run_wide(request: Request, key: str):
+    """A run-wide value from the configuration that governs the working folder (or
+    --config); None when there is none."""
+    if not request.use_config:
+        return None
+    config_file = request.config_file or find_config_file(os.getcwd())
+    return config_at(config_file, request.trust_config_rules).get(key) if config_file else None
 
 
 @lru_cache(maxsize=64)
@@ -134,24 +147,60 @@ def check_file(path: str, request: Request) -> FileResult:
                        request.plots_wanted)
 
 
+REVIEW_FAILED = "review-failed"
+MAX_MESSAGE = 300  # characters of an exception's text kept in the finding
+
+
+def review_failed(path: str, kind: str, text: str) -> FileResult:
+    """The result of a file whose review stopped: one ``review-failed`` finding."""
+    text = " ".join(text.split())
+    if len(text) > MAX_MESSAGE:
+        text = text[:MAX_MESSAGE] + "..."
+    finding = Finding(rule=REVIEW_FAILED, severity=Severity.ERROR,
+                      message=f"the review of this file stopped: {kind}: {text}", path=path,
+                      line=1, column=1, details={"kind": kind})
+    return FileResult(path, problems=[finding])
+
+
+def reviewed(path: str, request: Request) -> FileResult:
+    """check_file behind a fence: within the file's time budget and memory cap, and any
+    failure (an exception, the budget, the cap) becomes a ``review-failed`` finding on
+    the file, so the run goes on. KeyboardInterrupt and signals still stop the run."""
+    try:
+        with budget.memory_cap(request.memory_limit_mb), \
+                budget.time_budget(request.time_budget_s):
+            return check_file(path, request)
+    except budget.OverBudget as stop:
+        return review_failed(path, "time budget", f"{stop} (--time-budget SECONDS sets it)")
+    except MemoryError:
+        return review_failed(path, "memory", "the review needed more memory than its cap of"
+                             f" {request.memory_limit_mb:g} MB (--memory-limit MB sets it)")
+    except RecursionError:
+        return review_failed(path, "RecursionError", "nesting too deep to review")
+    except Exception as error:  # noqa: BLE001 - the fence: a bug must not stop the audit
+        return review_failed(path, type(error).__name__, str(error))
+
+
 def _worker(task: tuple[str, Request]) -> FileResult:
     path, request = task
-    return check_file(path, request)
+    return reviewed(path, request)
+
+
+def _died(task: tuple[str, Request], why: str) -> FileResult:
+    return review_failed(task[0], "worker died", why)
 
 
 def check_files(paths: list[str], request: Request, jobs: int = 1) -> Iterator[FileResult]:
     """FileResults in the order of ``paths``, from ``jobs`` processes (1: in process)."""
     if jobs <= 1 or len(paths) < 2:
         for path in paths:
-            yield check_file(path, request)
+            yield reviewed(path, request)
         return
-    import multiprocessing
-
-    method = "fork" if "fork" in multiprocessing.get_all_start_methods() else "spawn"
-    context = multiprocessing.get_context(method)
     chunk = max(1, min(16, len(paths) // (jobs * 8)))
-    with context.Pool(jobs) as pool:
-        yield from pool.imap(_worker, [(path, request) for path in paths], chunksize=chunk)
+    # A worker silent for much longer than its files' budgets is stuck in native code.
+    patience = request.time_budget_s + 5 if request.time_budget_s else None
+    yield from workers.ordered(_worker, [(path, request) for path in paths], jobs, chunk,
+                               patience, _died)
 
 
 def forget() -> None:
@@ -178,22 +227,33 @@ def preflight(paths: list[str], request: Request) -> None:
 def fail_on_for(request: Request, cli_value: str | None) -> Severity | None:
     """The failing severity: the command line, else the configuration that governs the
     working folder (or --config), else error."""
-    value = cli_value
-    if value is None and request.use_config:
-        config_file = request.config_file or find_config_file(os.getcwd())
-        value = config_at(config_file).get("fail-on") if config_file else None
+    value = cli_value if cli_value is not None else _run_wide(request, "fail-on")
     value = value or "error"
     return None if value == "never" else Severity.parse(value)
 
 
 def jobs_for(request: Request, cli_value: int | None) -> int:
-    value = cli_value
-    if value is None and request.use_config:
-        config_file = request.config_file or find_config_file(os.getcwd())
-        value = config_at(config_file).get("jobs") if config_file else None
+    value = cli_value if cli_value is not None else _run_wide(request, "jobs")
     if not value:
         value = os.cpu_count() or 1
     return value
 
 
-__all__ = ["Request", "check_files", "preflight", "fail_on_for", "jobs_for", "ConfigError"]
+def limits_for(request: Request, time_budget_s: float | None,
+               memory_limit_mb: float | None) -> Request:
+    """The request with its per-file time budget and memory cap: the command line, else
+    the configuration that governs the working folder, else the defaults (0: none)."""
+    def pick(cli_value, key: str, default: float) -> float | None:
+        value = cli_value if cli_value is not None else _run_wide(request, key)
+        value = default if value is None else value
+        return value or None
+
+    return replace(request,
+                   time_budget_s=pick(time_budget_s, "time-budget",
+                                      budget.DEFAULT_TIME_BUDGET_S),
+                   memory_limit_mb=pick(memory_limit_mb, "memory-limit",
+                                        budget.DEFAULT_MEMORY_LIMIT_MB))
+
+
+__all__ = ["Request", "check_files", "preflight", "fail_on_for", "jobs_for", "limits_for",
+           "reviewed", "REVIEW_FAILED", "ConfigError"]

@@ -20,7 +20,7 @@ FORMAT_NAME = "ampcheck-baseline"
 FORMAT_VERSION = 1
 Key = tuple[str, str, tuple[str, ...], str]  # (path, stage, elements, rule)
 UNBASELINED = {"input-invalid", "waiver-invalid", "waiver-stale", "baseline-stale",
-               "rule-failed"}
+               "rule-failed", "review-failed"}
 
 
 class BaselineError(Exception):

@@ -15,11 +15,16 @@ from checker.io.load import ParsedFile
 from checker.io.positions import InputErrors, InputProblem, Path, locate
 from checker.model import (PART_ATTRIBUTES, REQUIREMENT_ATTRIBUTES, Load, OpAmp, OpAmpPart,
                            Origin, Passive, Requirements, Source, Stage, Supply, Waiver)
-from checker.units import UnitError, parse_value
+from checker.stage_limits import MAX_PARTS, MAX_STAGES, stage_too_large
+from checker.units import UnitError, check_plausible, parse_value
+
+MAX_NET_HINTS = 20  # "did you mean" hints per stage: each costs a fuzzy search
 
 # Passive values must be positive; these kinds of parameter must not be negative.
 _NON_NEGATIVE = {"resistance", "capacitance", "inductance", "frequency", "current",
                  "slew-rate", "voltage-noise", "current-noise", "power", "percentage"}
+# Requirements that are magnitudes (a limit on noise, error, margin): never negative.
+_NON_NEGATIVE_REQUIREMENTS = {"noise", "dc-error", "headroom", "phase-margin"}
 _PASSIVE_KIND = {"resistors": ("resistor", "resistance"),
                  "capacitors": ("capacitor", "capacitance"),
                  "inductors": ("inductor", "inductance")}
@@ -47,6 +52,7 @@ class _Builder:
             return None
         try:
             number = parse_value(node[key], kind)
+            check_plausible(number, kind, node[key])
         except UnitError as error:
             self.fail(path + (key,), f"{key} of {where}: {error}")
             return None
@@ -78,6 +84,10 @@ class _Builder:
     def stage(self, node: dict, path: Path, parts: dict[str, OpAmpPart]) -> Stage | None:
         name = node["name"]
         where = f"stage {name}"
+        too_large = stage_too_large(node)
+        if too_large:
+            self.fail(path, f"{where} {too_large}; split it into stages that feed each other")
+            return None
         ground = node["ground"]
         supplies = []
         for i, item in enumerate(node.get("supplies", [])):
@@ -215,6 +225,7 @@ class _Builder:
     def pair_value(self, pair: list, i: int, kind: str, path: Path, where: str) -> float | None:
         try:
             number = parse_value(pair[i], kind)
+            check_plausible(number, kind, pair[i])
         except UnitError as error:
             self.fail(path + (i,), f"{path[-1]} of {where}: {error}")
             return None
@@ -239,11 +250,16 @@ class _Builder:
         positions = tuple((keyword, self.origin(path + (keyword,))) for keyword in REQUIREMENTS
                           if keyword in node)
         for keyword, kind in REQUIREMENTS.items():
-            if keyword == "gain" and isinstance(node.get(keyword), (int, float)):
-                values["gain"] = float(node[keyword])
-                continue
             number = self.value(node, keyword, kind, path, "the requirements",
                                 positive=keyword in ("input-resistance", "bandwidth", "cmrr"))
+            if keyword == "gain" and number == 0.0:
+                # A gain tolerance is relative to the gain: zero cannot be a target.
+                self.fail(path + (keyword,), "gain of the requirements cannot be zero")
+                continue
+            if keyword in _NON_NEGATIVE_REQUIREMENTS and number is not None and number < 0:
+                self.fail(path + (keyword,), f"{keyword} of the requirements is a magnitude"
+                                             f" and cannot be negative ({node[keyword]!r})")
+                continue
             if number is not None:
                 values[REQUIREMENT_ATTRIBUTES[keyword]] = number
         return Requirements(origin=self.origin(path), positions=positions, **values)
@@ -272,6 +288,18 @@ class _Builder:
                     rails[opamp.v_pos] <= rails[opamp.v_neg]:
                 self.fail_at(opamp.origin, f"op-amp {opamp.ref}: v+ ({rails[opamp.v_pos]:g} V)"
                              f" must be above v- ({rails[opamp.v_neg]:g} V)", opamp.ref)
+        drivers: dict[str, str] = {}
+        sourced = {source.net: source for source in stage.sources}
+        for opamp in stage.opamps:
+            if opamp.out in drivers:
+                self.fail_at(opamp.origin, f"op-amp {opamp.ref}: its output and that of"
+                             f" {drivers[opamp.out]} both drive net {opamp.out!r}; two"
+                             " outputs fight over one net", opamp.ref)
+            elif opamp.out in sourced:
+                self.fail_at(opamp.origin, f"op-amp {opamp.ref}: its output drives net"
+                             f" {opamp.out!r}, where {sourced[opamp.out].name} is; a source"
+                             " needs a net the stage does not drive", opamp.ref)
+            drivers.setdefault(opamp.out, opamp.ref)
         pins = Counter()
         for opamp in stage.opamps:
             for pin, net in opamp.pins.items():
@@ -287,21 +315,29 @@ class _Builder:
         for net in rails:
             pins[net] += 1
         for source in stage.sources:
-            if pins[source.net] < 2:
+            if source.net in rails:
+                what = "the ground" if source.net == stage.ground else "a supply"
+                self.fail_at(source.origin, f"{source.name}: net {source.net!r} is {what} of"
+                             f" {where}, held at a fixed voltage; a source drives a net of"
+                             " its own")
+            elif pins[source.net] < 2:
                 self.fail_at(source.origin, f"{source.name}: nothing in {where} is connected"
                              f" to net {source.net!r}")
         for load in stage.loads:
             if pins[load.net] < 2:
                 self.fail_at(load.origin, f"load at {load.net}: nothing in {where} drives"
                              f" net {load.net!r}")
+        connected = [n for n in pins if pins[n] > 1]  # the candidates for a hint, once
+        hints: dict[str, str] = {}
         for element in (*stage.opamps, *stage.passives):
             nets = element.nets if isinstance(element, Passive) else (
                 element.in_pos, element.in_neg, element.out)
             for net in nets:
                 if pins[net] == 1 and net not in rails:
-                    close = difflib.get_close_matches(net, [n for n in pins if pins[n] > 1
-                                                            and n != net], n=1, cutoff=0.6)
-                    hint = f"; did you mean {close[0]!r}?" if close else ""
+                    if net not in hints and len(hints) < MAX_NET_HINTS:
+                        close = difflib.get_close_matches(net, connected, n=1, cutoff=0.6)
+                        hints[net] = f"; did you mean {close[0]!r}?" if close else ""
+                    hint = hints.get(net, "")
                     self.fail_at(element.origin, f"{element.ref}: net {net!r} is connected"
                                  f" to nothing else in {where} (dangling){hint}", element.ref)
 
@@ -315,6 +351,10 @@ def build_parts(parsed: ParsedFile, builtin: bool = False) -> list[OpAmpPart]:
     builder = _Builder(parsed)
     parts = []
     names = set()
+    if len(parsed.tree.get("parts", [])) > MAX_PARTS:
+        builder.fail(("parts", MAX_PARTS), f"this file defines"
+                     f" {len(parsed.tree['parts'])} parts; the limit is {MAX_PARTS} per file")
+        raise InputErrors(builder.problems)
     for i, node in enumerate(parsed.tree.get("parts", [])):
         if node["name"] in names:
             builder.fail(("parts", i), f"part {node['name']} is defined twice in this file")
@@ -332,6 +372,11 @@ def build_stages(parsed: ParsedFile, library: dict[str, OpAmpPart]) -> list[Stag
     builder = _Builder(parsed)
     stages = []
     names: dict[str, int] = {}
+    if len(parsed.tree.get("stages", [])) > MAX_STAGES:
+        builder.fail(("stages", MAX_STAGES), f"this file holds"
+                     f" {len(parsed.tree['stages'])} stages; the limit is {MAX_STAGES} per"
+                     " file")
+        raise InputErrors(builder.problems)
     for i, node in enumerate(parsed.tree.get("stages", [])):
         if node["name"] in names:
             builder.fail(("stages", i), f"stage {node['name']} is defined twice in this file")

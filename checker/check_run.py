@@ -12,6 +12,7 @@ from collections import Counter
 
 from checker import audit
 from checker import baseline as baselines
+from checker.io.write import AtomicOutput
 from checker.records import DEFERRAL, Caution
 from checker.report import writer, writes_folder
 from checker.report.context import ReportContext
@@ -23,38 +24,68 @@ class RunError(Exception):
 
 
 class Sink:
-    """One report being written: to standard output, or to a new file that replaces its
-    path atomically when the run ends (never an input)."""
+    """One report being written: to standard output, or to a file written atomically
+    (``checker/io/write.py``; never an input). Opening a sink writes nothing, so every
+    output can be checked before any report starts (``start``)."""
 
     def __init__(self, name: str, path: str | None, context: ReportContext,
                  inputs: list[str]):
-        self.path = path
+        self.name, self.context, self.path = name, context, path
+        self.output: AtomicOutput | None = None
+        self.writer = None
         if path is None:
             self.stream = sys.stdout
-        else:
-            target = os.path.realpath(path)
-            if any(os.path.realpath(p) == target for p in inputs):
-                raise RunError(f"refusing to write over the input file {path}")
-            folder = os.path.dirname(target) or "."
-            handle, self.temporary = tempfile.mkstemp(dir=folder, prefix=".ampcheck-",
-                                                      suffix=".tmp")
-            self.stream = os.fdopen(handle, "w", encoding="utf-8", newline="")
-        self.writer = writer(name, self.stream, context)
+            return
+        try:
+            self.output = AtomicOutput(path, protect=inputs)
+        except ValueError as error:
+            raise RunError(str(error)) from None
+        except OSError as error:
+            raise RunError(f"cannot write {path}: {error.strerror or error}") from None
+        self.stream = self.output.stream
+
+    def start(self) -> None:
+        self.writer = writer(self.name, self.stream, self.context)
 
     def close(self) -> None:
         self.writer.close()
-        if self.path is not None:
-            self.stream.close()
-            os.replace(self.temporary, os.path.realpath(self.path))
-            self.path = None
+        if self.output is None:
+            self.stream.flush()
+        else:
+            self.output.commit()
 
     def abandon(self) -> None:
         """Drop a report file that was not finished (the run failed)."""
-        if self.path is not None:
-            self.stream.close()
-            if os.path.exists(self.temporary):
-                os.unlink(self.temporary)
-            self.path = None
+        if self.output is not None:
+            self.output.abandon()
+
+
+def open_sinks(outputs: list[tuple[str, str | None]], context: ReportContext,
+               inputs: list[str]) -> list[Sink]:
+    """A started sink for each (format, path or None for stdout); every file is opened
+    before any report begins, and a failure leaves no file behind."""
+    sinks: list = []
+    try:
+        for name, path in outputs:
+            sinks.append(sink_for(name, path, context, inputs))
+        for sink in sinks:
+            sink.start()
+    except BaseException:
+        for sink in sinks:
+            sink.abandon()
+        raise
+    return sinks
+
+
+def probe_output(path: str, inputs: list[str]) -> None:
+    """RunError unless ``path`` could be written (a file the run writes at its end, such
+    as a baseline); leaves nothing behind."""
+    try:
+        AtomicOutput(path, protect=inputs).abandon()
+    except ValueError as error:
+        raise RunError(str(error)) from None
+    except OSError as error:
+        raise RunError(f"cannot write {path}: {error.strerror or error}") from None
 
 
 class FolderSink:
@@ -83,6 +114,9 @@ class FolderSink:
             raise RunError(f"cannot write {path}: no folder {os.path.dirname(path) or '.'}")
         self.temporary = tempfile.mkdtemp(dir=parent, prefix=".ampcheck-", suffix=".tmp")
         self.writer = writer(name, None, context, folder=self.temporary)
+
+    def start(self) -> None:
+        """Nothing to open: the folder is made already and filled on close."""
 
     def close(self) -> None:
         self.writer.close()
@@ -140,6 +174,7 @@ class CheckRun:
         self.failing = False
         self.caution_notice = caution_notice
         self.caution_lines: list[str] = []
+        self.review_failed = False  # a file's review stopped (exit status 3)
 
     def deliver(self, result: FileResult) -> None:
         if self.baseline is not None:
@@ -155,6 +190,7 @@ class CheckRun:
         folder = os.path.dirname(os.path.abspath(self.write_baseline or "."))
         for finding in result.findings():
             self.failing = self.failing or self.context.fails(finding)
+            self.review_failed = self.review_failed or finding.rule == audit.REVIEW_FAILED
             if self.write_baseline and finding.rule not in baselines.UNBASELINED \
                     and finding.waiver is None:
                 self.recorded[baselines.key_of(finding, folder)] += 1

@@ -1,19 +1,29 @@
 """The ``ampcheck`` command: argument parsing and exit codes live here and only here.
 
 Exit codes: 0 nothing at or above the failing severity; 1 findings at or above it;
-2 usage, configuration or internal error.
+2 a usage or configuration error (nothing was reviewed); 3 the review of at least one
+file stopped (``review-failed``: an internal error, its time budget or its memory cap),
+every other file was reviewed and every report is complete; 4 an internal error of the
+run itself (reports may be missing). A signal ends the run with 128 + its number
+(130 Ctrl-C, 143 SIGTERM, 129 SIGHUP); a reader that goes away (``| head``) with 141,
+quietly.
 """
 
 from __future__ import annotations
 
 import argparse
+import io
 import json
 import os
+import signal
 import sys
+from contextlib import contextmanager
 
 from checker import __version__
 
-EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
+EXIT_OK, EXIT_FINDINGS, EXIT_USAGE, EXIT_REVIEW_FAILED, EXIT_INTERNAL = 0, 1, 2, 3, 4
+EXIT_SIGNAL_BASE = 128
+STOP_SIGNALS = ("SIGTERM", "SIGHUP")  # besides SIGINT, which Python raises itself
 FORMAT_NAMES = ["text", "json", "sarif", "compact", "csv", "html"]
 FIGURE_FORMATS = {"text", "json", "html"}  # the reports that show each stage's figures
 HTML_MODULES = ("matplotlib", "jinja2")  # the `html` extra
@@ -21,6 +31,58 @@ HTML_MODULES = ("matplotlib", "jinja2")  # the `html` extra
 
 class UsageError(Exception):
     """A mistake in how the command was called; exits 2 with the message."""
+
+
+class Stopped(BaseException):
+    """A signal asked the run to stop (SIGTERM, SIGHUP)."""
+
+    def __init__(self, signum: int):
+        super().__init__(signum)
+        self.signum = signum
+
+
+def _ignore_stops() -> None:
+    """Once the run is stopping, a second signal must not cut its clean-up short."""
+    for name in ("SIGINT", *STOP_SIGNALS):
+        if hasattr(signal, name):
+            signal.signal(getattr(signal, name), signal.SIG_IGN)
+
+
+@contextmanager
+def _stop_on_signals():
+    """SIGTERM and SIGHUP raise Stopped in the main thread, as SIGINT raises
+    KeyboardInterrupt, so the run unwinds: workers terminated, temporary files removed."""
+    def stop(signum, _frame):
+        _ignore_stops()
+        raise Stopped(signum)
+
+    previous = {}
+    try:
+        for name in STOP_SIGNALS:
+            if hasattr(signal, name):
+                number = getattr(signal, name)
+                previous[number] = signal.signal(number, stop)
+    except ValueError:  # not the main thread: leave the handlers alone
+        pass
+    try:
+        yield
+    finally:
+        for number, handler in previous.items():
+            signal.signal(number, handler)
+
+
+def _stdout_closed() -> bool:
+    """True when standard output was closed (``>&-``): Python then has no sys.stdout,
+    and the first file the run opens would take its descriptor."""
+    if sys.stdout is None:
+        return True
+    try:
+        os.fstat(sys.stdout.fileno())
+    except io.UnsupportedOperation:  # an in-memory stream (a test's capture)
+        return False
+    except (OSError, ValueError):
+        return True
+    return False
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -56,8 +118,17 @@ def build_parser() -> argparse.ArgumentParser:
                        help="use this configuration file for every path")
     check.add_argument("--no-config", action="store_true",
                        help="ignore configuration files")
+    check.add_argument("--trust-config-rules", action="store_true",
+                       help="load the rule folders (Python code) that configuration files"
+                            " name in rules-dirs (also: AMPCHECK_TRUST_CONFIG_RULES=1)")
     check.add_argument("--jobs", type=int, metavar="N",
                        help="worker processes (default: one per CPU)")
+    check.add_argument("--time-budget", type=float, metavar="SECONDS",
+                       help="stop one file's review after this long and report it"
+                            " (default 60, 0 for none)")
+    check.add_argument("--memory-limit", type=float, metavar="MB",
+                       help="memory one file's review may add to its process (default"
+                            " 1024, 0 for none; Linux)")
     check.add_argument("--no-progress", action="store_true",
                        help="no progress bar (it is off anyway when stderr is not a terminal)")
     check.add_argument("--baseline", metavar="FILE",
@@ -70,6 +141,8 @@ def build_parser() -> argparse.ArgumentParser:
     config = commands.add_parser("config", help="print the resolved configuration for a path")
     config.add_argument("path", nargs="?", default=".", metavar="PATH")
     config.add_argument("--config", metavar="FILE")
+    config.add_argument("--trust-config-rules", action="store_true",
+                        help="load the rule folders the configuration names in rules-dirs")
 
     rules = commands.add_parser("rules", help="list the rules")
     rules.add_argument("--rules-dir", action="append", default=[], metavar="DIR")
@@ -107,7 +180,15 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+# The matrices are small (a stage has tens of unknowns) and the parallelism comes from
+# worker processes, so BLAS threads only compete with each other: one per process,
+# unless the user set a count. Effective only before numpy is first imported.
+BLAS_THREAD_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+
+
 def main(argv: list[str] | None = None) -> int:
+    for variable in BLAS_THREAD_VARIABLES:
+        os.environ.setdefault(variable, "1")
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
@@ -117,24 +198,34 @@ def main(argv: list[str] | None = None) -> int:
         parser.print_help()
         return EXIT_USAGE
     try:
-        return COMMANDS[args.command](args)
+        if _stdout_closed() and not (args.command == "convert" and args.output):
+            raise UsageError("standard output is closed: there is nowhere to write")
+        with _stop_on_signals():
+            return COMMANDS[args.command](args)
     except UsageError as error:
         print(f"ampcheck: {error}", file=sys.stderr)
         return EXIT_USAGE
     except KeyboardInterrupt:
+        _ignore_stops()
         print("ampcheck: interrupted", file=sys.stderr)
-        return EXIT_USAGE
+        return EXIT_SIGNAL_BASE + signal.SIGINT
+    except Stopped as stop:
+        print(f"ampcheck: stopped by {signal.Signals(stop.signum).name}", file=sys.stderr)
+        return EXIT_SIGNAL_BASE + stop.signum
     except BrokenPipeError:  # the reader went away (| head): stop quietly
-        devnull = os.open(os.devnull, os.O_WRONLY)
-        os.dup2(devnull, sys.stdout.fileno())
-        return EXIT_FINDINGS
+        try:
+            devnull = os.open(os.devnull, os.O_WRONLY)
+            os.dup2(devnull, sys.stdout.fileno())
+        except (OSError, ValueError, AttributeError):
+            pass
+        return EXIT_SIGNAL_BASE + getattr(signal, "SIGPIPE", 13)
     except Exception as error:  # the last guard: no traceback reaches a user
         if os.environ.get("AMPCHECK_DEBUG"):
             raise
         print(f"ampcheck: internal error: {type(error).__name__}: {error}\n"
               "Set AMPCHECK_DEBUG=1 to see the traceback, and please report it.",
               file=sys.stderr)
-        return EXIT_USAGE
+        return EXIT_INTERNAL
 
 
 def _library(paths: list[str]):
@@ -159,7 +250,8 @@ def _rules(folders: list[str]):
 
 def _request(args):
     from checker.audit import Request
-    from checker.units import UnitError, parse_value
+    from checker.config import trusted_by_environment
+    from checker.units import UnitError, check_plausible, parse_value
 
     def ids(text):
         if text is None:
@@ -170,18 +262,24 @@ def _request(args):
     if args.stray_capacitance is not None:
         try:
             stray = parse_value(args.stray_capacitance, "capacitance")
+            check_plausible(stray, "capacitance", args.stray_capacitance)
         except UnitError as error:
             raise UsageError(f"--stray-capacitance: {error}") from None
     config_file = getattr(args, "config", None)
     if config_file and not os.path.isfile(config_file):
         raise UsageError(f"--config: no such file {config_file}")
     formats = {args.format} | {item.partition(":")[0] for item in args.output}
+    for name, value in (("--time-budget", args.time_budget),
+                        ("--memory-limit", args.memory_limit)):
+        if value is not None and not 0 <= value <= 1e9:
+            raise UsageError(f"{name} takes a number from 0 (no limit) upwards")
     return Request(config_file=config_file, select=ids(args.select), ignore=ids(args.ignore),
                    stray_capacitance_f=stray, parts=tuple(args.parts),
                    rules_dirs=tuple(args.rules_dir), use_config=not args.no_config,
                    figures_wanted=bool(formats & FIGURE_FORMATS),
                    netlist_map=args.netlist_map,
-                   plots_wanted=_plots_wanted(args))
+                   plots_wanted=_plots_wanted(args),
+                   trust_config_rules=args.trust_config_rules or trusted_by_environment())
 
 
 def _plots_wanted(args) -> str:
@@ -242,7 +340,7 @@ def _progress_wanted(args) -> bool:
 
 def cmd_check(args) -> int:
     from checker import audit, baseline as baselines
-    from checker.check_run import CheckRun, RunError, sink_for
+    from checker.check_run import CheckRun, RunError, open_sinks, probe_output
     from checker.config import ConfigError
     from checker.engine import RuleError
     from checker.files import discover
@@ -267,6 +365,7 @@ def cmd_check(args) -> int:
         audit.preflight(paths or ["."], request)
         fail_on = audit.fail_on_for(request, args.fail_on)
         jobs = audit.jobs_for(request, args.jobs)
+        request = audit.limits_for(request, args.time_budget, args.memory_limit)
         rules = audit.setup_for(paths[0] if paths else "x", request).all_rules
         baseline = baselines.load_baseline(args.baseline) if args.baseline else None
     except (ConfigError, RuleError, baselines.BaselineError) as error:
@@ -280,9 +379,10 @@ def cmd_check(args) -> int:
     context = ReportContext(__version__, fail_on, rules)
     sinks = []
     try:
-        sinks.append(sink_for(args.format, None, context, paths))
-        for name, path in outputs:
-            sinks.append(sink_for(name, path, context, paths))
+        for path in (args.write_baseline, args.baseline if args.prune_baseline else None):
+            if path:
+                probe_output(path, paths)
+        sinks = open_sinks([(args.format, None)] + outputs, context, paths)
         run = CheckRun(context, sinks, baseline, args.prune_baseline, args.write_baseline,
                        caution_notice=_caution_notice_wanted(args))
         failing = run.run(paths, missing, request, jobs, _progress(args, len(paths)))
@@ -290,6 +390,8 @@ def cmd_check(args) -> int:
         for sink in sinks:  # reports opened before the one that could not be
             sink.abandon()
         raise UsageError(str(error)) from None
+    if run.review_failed:
+        return EXIT_REVIEW_FAILED
     return EXIT_FINDINGS if failing else EXIT_OK
 
 
@@ -312,8 +414,11 @@ def cmd_config(args) -> int:
 
     from checker.audit import forget
 
+    from checker.config import trusted_by_environment
+
     forget()
-    request = Request(config_file=args.config)
+    request = Request(config_file=args.config,
+                      trust_config_rules=args.trust_config_rules or trusted_by_environment())
     try:
         config = config_for(os.path.join(args.path, "x") if os.path.isdir(args.path)
                             else args.path, request)
@@ -325,7 +430,8 @@ def cmd_config(args) -> int:
     print(f"configuration for {args.path}: {source or 'none found (defaults)'}")
     defaults = {"fail-on": "error", "select": "all rules", "ignore": "none",
                 "rules-dirs": "none", "parts": "none", "netlist-map": "none",
-                "stray-capacitance": "1p", "jobs": "CPU count"}
+                "stray-capacitance": "1p", "jobs": "CPU count", "time-budget": "60",
+                "memory-limit": "1024"}
     for key, default in defaults.items():
         item = config.values.get(key)
         value = default if item is None else item.value

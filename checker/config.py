@@ -1,17 +1,22 @@
 """Project configuration: ``ampcheck.toml`` or ``[tool.ampcheck]`` in pyproject.toml.
 
 For each checked file the closest configuration up the folder tree wins (no merging
-across levels); command-line options override it. Every value remembers where it came
+across levels); the search stops at the repository root (the first folder holding
+.git). Command-line options override it. Every value remembers where it came
 from, so ``ampcheck config`` can show it, and every error names the file and line.
 
 Keys (top level):
     fail-on            "error" | "warning" | "info" | "never"
     select, ignore     lists of rule ids
-    rules-dirs         folders of user rules (relative to the configuration file)
+    rules-dirs         folders of user rules (relative to the configuration file); they
+                       are Python code, so they load only with --trust-config-rules or
+                       AMPCHECK_TRUST_CONFIG_RULES=1
     parts              part-library files (relative to the configuration file)
     netlist-map        the netlist map for netlists (relative to the configuration file)
     stray-capacitance  a capacitance ("1p") added at every inverting input
     jobs               worker processes for `check` (0: one per CPU)
+    time-budget        seconds one file's review may take (0: no limit)
+    memory-limit       megabytes one file's review may add to its process (0: no cap)
     [rules.RULE-ID]    severity = "error" | "warning" | "info", and the rule's settings
     [[overrides]]      paths = [globs, relative to the file]; select, ignore,
                        stray-capacitance and [overrides.rules.RULE-ID] for those files
@@ -20,6 +25,7 @@ Keys (top level):
 from __future__ import annotations
 
 import fnmatch
+import math
 import os
 import re
 import sys
@@ -34,11 +40,14 @@ else:  # pragma: no cover - Python 3.10
 from checker.cautions import KINDS as CAUTION_KINDS
 from checker.cautions import not_a_rule
 from checker.findings import Severity
-from checker.units import UnitError, parse_value
+from checker.units import UnitError, check_plausible, parse_value
 
 CONFIG_FILE = "ampcheck.toml"
 TOP_KEYS = {"fail-on", "select", "ignore", "rules-dirs", "parts", "stray-capacitance", "jobs",
-            "rules", "overrides", "netlist-map"}
+            "time-budget", "memory-limit", "rules", "overrides", "netlist-map"}
+TRUST_VARIABLE = "AMPCHECK_TRUST_CONFIG_RULES"
+TRUST_FLAG = "--trust-config-rules"
+MAX_CONFIG_BYTES = 1024 * 1024
 OVERRIDE_KEYS = {"paths", "select", "ignore", "stray-capacitance", "rules"}
 FAIL_ON = ("error", "warning", "info", "never")
 
@@ -117,8 +126,13 @@ def _key_lines(text: str) -> dict[tuple, int]:
 def _read(path: str) -> tuple[dict, dict[tuple, int], tuple] | None:
     """(table, key lines, prefix) of a config file; None when it has no ampcheck part."""
     try:
+        if not os.path.isfile(path):
+            raise ConfigError(f"{path}: not a regular file")
         with open(path, "rb") as handle:
-            data = handle.read()
+            data = handle.read(MAX_CONFIG_BYTES + 1)
+        if len(data) > MAX_CONFIG_BYTES:
+            raise ConfigError(f"{path}: larger than {MAX_CONFIG_BYTES // 1024} KiB; not a"
+                              " configuration file")
         table = tomllib.loads(data.decode("utf-8"))
     except tomllib.TOMLDecodeError as error:
         raise ConfigError(f"{path}: invalid TOML: {error}") from None
@@ -133,20 +147,21 @@ def _read(path: str) -> tuple[dict, dict[tuple, int], tuple] | None:
     return table, lines, ()
 
 
-def parse_config(path: str, rules_for) -> Config:
+def trusted_by_environment() -> bool:
+    """True when AMPCHECK_TRUST_CONFIG_RULES is set to 1, yes or true."""
+    return os.environ.get(TRUST_VARIABLE, "").strip().lower() in ("1", "yes", "true")
+
+
+def parse_config(path: str, rules_for, trust_rules: bool = False) -> Config:
     """Read and check one configuration file. ``rules_for(folders)`` returns the rules
-    known with those user rule folders (the file's own ``rules-dirs``)."""
+    known with those user rule folders (the file's own ``rules-dirs``), which are only
+    loaded when ``trust_rules`` (they run Python code); otherwise a file that names
+    any is a ConfigError."""
     found = _read(path)
     if found is None:
         return Config()
     table, lines, prefix = found
     base = os.path.dirname(os.path.abspath(path))
-    folders = table.get("rules-dirs", [])
-    if isinstance(folders, list) and all(isinstance(f, str) for f in folders):
-        known_rules = rules_for(tuple(os.path.normpath(os.path.join(base, f))
-                                      for f in folders))
-    else:
-        known_rules = rules_for(())
 
     def where(*keys) -> str:
         line = lines.get(prefix + keys) or lines.get(prefix + keys[:-1]) or 1
@@ -154,6 +169,17 @@ def parse_config(path: str, rules_for) -> Config:
 
     def fail(keys: tuple, message: str):
         raise ConfigError(f"{where(*keys)}: {message}")
+
+    folders = table.get("rules-dirs", [])
+    if folders and not trust_rules:
+        fail(("rules-dirs",), "rules-dirs names folders of Python rules, and a configuration"
+             f" file runs no code unless asked: pass {TRUST_FLAG} (or set"
+             f" {TRUST_VARIABLE}=1) to load them, or --no-config to ignore this file")
+    if isinstance(folders, list) and all(isinstance(f, str) for f in folders):
+        known_rules = rules_for(tuple(os.path.normpath(os.path.join(base, f))
+                                      for f in folders))
+    else:
+        known_rules = rules_for(())
 
     config = Config(path)
     for key in table:
@@ -219,13 +245,20 @@ def _values(table: dict, keys: tuple, where, fail, base: str, known_rules, top: 
         elif key == "stray-capacitance":
             try:
                 value = parse_value(value, "capacitance")
+                check_plausible(value, "capacitance", value)
             except UnitError as error:
                 fail(keys + (key,), f"stray-capacitance: {error}")
             if value < 0:
                 fail(keys + (key,), "stray-capacitance cannot be negative")
         elif key == "jobs":
-            if not isinstance(value, int) or isinstance(value, bool) or value < 0:
+            if not isinstance(value, int) or isinstance(value, bool) or not 0 <= value <= 1024:
                 fail(keys + (key,), "jobs is a whole number, 0 for one per CPU")
+        elif key in ("time-budget", "memory-limit"):
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or \
+                    not math.isfinite(value) or not 0 <= value <= 1e9:
+                unit = "seconds" if key == "time-budget" else "megabytes"
+                fail(keys + (key,), f"{key} is a number of {unit}, 0 for no limit")
+            value = float(value)
         values[key] = Valued(value, origin)
     return values
 
@@ -256,7 +289,12 @@ def _rule_tables(table: dict, keys: tuple, where, fail, known_rules) -> dict:
             elif isinstance(value, bool) or not isinstance(value, (int, float)):
                 fail(path, f"{rule_id}.{name} must be a number, not {value!r}")
             else:
-                value = float(value)
+                try:
+                    value = float(value)
+                except OverflowError:
+                    value = math.inf
+                if not math.isfinite(value):
+                    fail(path, f"{rule_id}.{name} must be a finite number")
             checked[name] = Valued(value, where(*path))
         result[rule_id] = checked
     return result
@@ -265,7 +303,8 @@ def _rule_tables(table: dict, keys: tuple, where, fail, known_rules) -> dict:
 @lru_cache(maxsize=256)
 def find_config_file(folder: str) -> str | None:
     """The closest ampcheck.toml, or pyproject.toml with [tool.ampcheck], from ``folder``
-    upwards; None when there is none."""
+    upwards, never above the repository root (the first folder holding .git); None
+    when there is none."""
     folder = os.path.abspath(folder)
     while True:
         candidate = os.path.join(folder, CONFIG_FILE)
@@ -275,10 +314,12 @@ def find_config_file(folder: str) -> str | None:
         if os.path.isfile(pyproject):
             try:
                 with open(pyproject, "rb") as handle:
-                    if b"[tool.ampcheck" in handle.read():
+                    if b"[tool.ampcheck" in handle.read(MAX_CONFIG_BYTES):
                         return pyproject
             except OSError:
                 pass
+        if os.path.exists(os.path.join(folder, ".git")):
+            return None
         parent = os.path.dirname(folder)
         if parent == folder:
             return None

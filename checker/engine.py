@@ -40,6 +40,8 @@ ENGINE_RULES = {
     "stage-unsolvable": "The stage's equations have no unique solution as drawn.",
     "output-on-rail": "An op-amp's output is wired straight to a supply rail.",
     "rule-failed": "A rule stopped with an internal error; the other rules still ran.",
+    "review-failed": "A file's review stopped (an internal error, its time budget or its"
+                     " memory cap); the other files were still reviewed.",
     "waiver-invalid": "A waiver in a stage file gives no reason or names no known rule.",
     "waiver-stale": "A waiver in a stage file matched no finding; remove it.",
     "baseline-stale": "A baseline entry matched no finding; prune the baseline.",

@@ -31,13 +31,22 @@ def discover(paths: list[str], netlists_wanted=None) -> tuple[list[str], list[Fi
 
     A named file is taken whatever its ending; in directories only our endings count,
     and netlists (NETLIST_ENDINGS) only where ``netlists_wanted(path)`` says a netlist
-    map governs them. Paths that do not exist become input findings.
+    map governs them. Paths that do not exist, and folders that cannot be listed, become
+    input findings.
     """
     found: set[str] = set()
     missing: list[Finding] = []
+
+    def unreadable(error: OSError) -> None:  # a folder os.walk cannot list
+        folder = error.filename or path
+        missing.append(input_finding(InputProblem(
+            os.path.normpath(folder), 1, 1,
+            f"cannot read this folder: {error.strerror or error}; its stage files were"
+            " not checked")))
+
     for path in paths:
         if os.path.isdir(path):
-            for root, dirs, names in os.walk(path):
+            for root, dirs, names in os.walk(path, onerror=unreadable):
                 dirs[:] = sorted(d for d in dirs if not d.startswith("."))
                 for name in names:
                     if name.endswith(STAGE_ENDINGS):

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import math
 import re
+import sys
 from dataclasses import dataclass
 
 PREFIXES: dict[str, float] = {
@@ -84,6 +85,32 @@ class UnitError(ValueError):
     """A value that cannot be read as the quantity its place asks for."""
 
 
+# The magnitudes a stage's values may take, by kind: (smallest non-zero, largest). Zero
+# is left to the place that reads the value (a resistor must be above zero, a source's
+# impedance may be 0). Anything outside cannot be a physical part or signal, and would
+# only push the solver to overflow or to figures made of rounding noise. Generous on
+# purpose (common practice: the widest values in use are around 1 µΩ shunts, 1 aF
+# strays, 10 TΩ electrometer inputs and 200 dB open-loop gains). Documented in
+# docs/format.md (values).
+PLAUSIBLE: dict[str, tuple[float, float]] = {
+    "resistance": (1e-6, 1e18),
+    "capacitance": (1e-18, 1e4),
+    "inductance": (1e-15, 1e4),
+    "voltage": (1e-15, 1e6),
+    "current": (1e-21, 1e4),
+    "frequency": (1e-9, 1e15),
+    "power": (1e-12, 1e6),
+    "slew-rate": (1e-6, 1e15),
+    "voltage-noise": (1e-18, 1.0),
+    "current-noise": (1e-24, 1.0),
+    "angle": (1e-9, 360.0),
+    "ratio": (1e-15, 1e15),
+    "percentage": (1e-9, 10.0),
+    "gain": (1e-12, 1e12),
+    "temperature": (1e-3, 1e4),
+}
+
+
 _NUMBER = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
 _PLAIN = re.compile(rf"^\s*({_NUMBER})\s*(.*?)\s*$")
 # RKM (IEC 60062): digits, a multiplier letter in place of the decimal point, digits.
@@ -102,17 +129,56 @@ def parse_value(value: object, kind: str) -> float:
     if isinstance(value, bool) or not isinstance(value, (int, float, str)):
         raise UnitError(f"expected {_a(kind)} value, got {value!r}")
     if isinstance(value, (int, float)):
-        number = float(value)
         if kind == "percentage":
-            raise UnitError(f"a tolerance needs a percent sign: write {value}%")
+            raise UnitError(f"a tolerance needs a percent sign: write {_short(value)}%")
+        try:
+            number = float(value)
+        except OverflowError:  # an integer with hundreds of digits
+            raise UnitError(f"{_short(value)} is beyond the range of a number") from None
     else:
-        number = _parse_text(value.strip(), quantity, kind)
+        try:
+            number = _parse_text(value.strip(), quantity, kind)
+        except OverflowError:  # decibels whose ratio overflows: 7000dB
+            raise UnitError(f"{_short(value)} is beyond the range of a number") from None
     if not math.isfinite(number):
-        raise UnitError(f"{value!r} is not a finite number")
+        beyond = " (a number beyond about 1.8e308 reads as infinity)" \
+            if isinstance(value, float) and math.isinf(value) else ""
+        raise UnitError(f"{_short(value)} is not a finite number{beyond}")
+    if number != 0.0 and abs(number) < sys.float_info.min:
+        raise UnitError(f"{_short(value)} is too small to be a number (a denormal)")
     return number
 
 
+def check_plausible(number: float, kind: str, text: object = None) -> None:
+    """Raise UnitError when a non-zero ``number`` of quantity ``kind`` lies outside
+    :data:`PLAUSIBLE` (it cannot be a physical value)."""
+    smallest, largest = PLAUSIBLE[kind]
+    magnitude = abs(number)
+    if magnitude == 0.0 or smallest <= magnitude <= largest:
+        return
+    unit = QUANTITIES[kind].symbol
+    shown = _short(text) if text is not None else format_si(number, unit)
+    if magnitude > largest:
+        raise UnitError(f"{shown} is beyond the largest {kind} ampcheck accepts"
+                        f" ({format_si(largest, unit)})")
+    raise UnitError(f"{shown} is below the smallest non-zero {kind} ampcheck accepts"
+                    f" ({format_si(smallest, unit)})")
+
+
+def _short(value: object) -> str:
+    """A value as the user wrote it (text quoted), cut short when it is very long."""
+    text = str(value)
+    if len(text) > 24:
+        text = f"{text[:12]}...{text[-6:]} ({len(text)} characters)"
+    return repr(text) if isinstance(value, str) else text
+
+
+MAX_VALUE_TEXT = 64  # characters: longer text is no value, and is not echoed whole
+
+
 def _parse_text(text: str, quantity: Quantity, kind: str) -> float:
+    if len(text) > MAX_VALUE_TEXT:
+        raise UnitError(f"{_short(text)} is too long to be {_a(kind)} value")
     rkm = _RKM.match(text)
     if rkm and quantity.allow_prefix:
         sign, whole, letter, fraction, rest = rkm.groups()

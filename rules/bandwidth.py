@@ -326,7 +326,7 @@ def _error_at_top(result, ideal, index: int, top: float) -> float:
     """| |G(top)| / |G_ideal(top)| - 1 |, both solved at ``top``."""
     real = abs(result.gain_at(index, top))
     perfect = abs(ideal.gain_at(index, top))
-    if perfect == 0:
+    if perfect == 0 or not math.isfinite(perfect):
         return 0.0
     return float(abs(real / perfect - 1))
 
@@ -337,12 +337,14 @@ def _gbw_for_gain_error(view, sf, ideal, opamp, noise_gain: float) -> float | No
     near f / sqrt(1/(1-e)^2 - 1), and GBW ~ that edge times the noise gain (common
     practice)."""
     limit = _gain_error_limit(view)[0]
+    if limit <= 0:
+        return None  # no finite GBW makes the error exactly zero
     top = sf.source.band_high_hz
     edge_needed = top / math.sqrt(1 / (1 - min(limit, 0.5)) ** 2 - 1)
     perfect = abs(ideal.gain_at(sf.index, top))
 
     def judge(gains):
-        if perfect == 0:
+        if perfect == 0 or not math.isfinite(perfect):
             return np.ones(gains.shape[0], dtype=bool)
         return np.abs(np.abs(gains[:, 0]) / perfect - 1) <= limit
 

@@ -132,8 +132,9 @@ def _suggest(view, worst: DcErrorTerms, total: float, limit: float) -> Suggestio
                               f"the offset voltage dominates ({format_si(worst.vos_term, 'V')}"
                               f" of {format_si(worst.total, 'V')}) and the bias currents of"
                               f" {part.name} are small: a balancing resistor would not help")
-    if part.offset_current_a is None:
-        return Suggestion("the part gives no offset current, so the effect of a"
+    if part.offset_current_a is None or part.bias_current_a is None:
+        missing = "offset" if part.offset_current_a is None else "bias"
+        return Suggestion(f"the part gives no {missing} current, so the effect of a"
                           " bias-balancing resistor cannot be worked out; lower the"
                           f" resistances around {opamp.ref}")
     if part.offset_current_a > settings["balance_max_offset_ratio"] * part.bias_current_a:

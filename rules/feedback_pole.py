@@ -90,7 +90,18 @@ def feedback_pole(view):
                 stage, ref, stray, f)).phase_margin_deg
         if bare_margin is not None and below(bare_margin, warn):
             continue  # something else costs the margin (load, compensation): other rules
+        if not 0 < figures.inverting_input[opamp.ref][0] < math.inf:
+            yield view.cannot_check(f"the feedback pole of {opamp.ref}", "the resistance at"
+                                    " its inverting input is not a positive finite value (no"
+                                    " resistive path there, or another output drives that"
+                                    " net)", opamp.origin, (opamp.ref,))
+            continue
         yield _finding(view, opamp, margin, bare_margin, warn)
+
+
+def _degrees(margin: float | None) -> str:
+    """A margin for a message; None where the loop no longer crosses over."""
+    return "no crossover" if margin is None else f"{margin:.0f}°"
 
 
 def _no_input_capacitance(view, opamp):

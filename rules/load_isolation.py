@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import cmath
 import math
 
 import numpy as np
@@ -112,6 +113,11 @@ def _response(figures, net: str, index: int, frequency: float) -> float:
     return float(abs(response[at]))
 
 
+def _degrees(margin: float | None) -> str:
+    """A margin for a message; None where the loop no longer crosses over."""
+    return "no crossover" if margin is None else f"{margin:.0f}°"
+
+
 def _capacitive_loads(view):
     stage, figures, settings = view.stage, view.figures, view.settings
     if not any(load.capacitance_f for load in stage.loads):
@@ -147,7 +153,7 @@ def _capacitive_loads(view):
             f" with its"
             f" {format_si(opamp.part.output_resistance_ohm, 'Ω')} output resistance that is a"
             f" pole at {format_si(pole, 'Hz')}, and the phase margin falls to {margin:.1f}°"
-            f" (without the load capacitance {bare_margin:.0f}°)",
+            f" (without the load capacitance {_degrees(bare_margin)})",
             load.origin, elements=(opamp.ref, f"load {load.net}"), severity=severity,
             measured=margin, limit=warn, unit="°",
             suggestion=lambda: _isolation(view, opamp, load, series, warn,
@@ -183,6 +189,12 @@ def _next_stage(view):
         at = int(np.argmin(np.abs(figures.frequencies_hz - target.reference_hz)))
         z_out = complex(figures.output_impedance[at])
         z_in = target.input_impedance_mid
+        if z_in == 0 or not cmath.isfinite(z_in) or not cmath.isfinite(z_out):
+            yield view.cannot_check(f"the loading of {load.net} by stage"
+                                    f" {following.stage.name}", "its input impedance is zero"
+                                    " or not defined (its input net is held by something)",
+                                    load.origin, (f"load {load.net}",))
+            continue
         ratio = abs(z_in / (z_in + z_out))
         loss = -20 * math.log10(ratio)
         if within(loss, settings["max_interstage_loss_db"]):

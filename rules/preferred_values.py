@@ -2,16 +2,17 @@
 
 from __future__ import annotations
 
+import cmath
 import math
 
 from checker.analysis.figures import signed_gain
+from checker.analysis.updates import source_gain_with_each
 from checker.changes import SetTolerance, SetValue
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.limits import within
 from checker.preferred import nearest, series_for_tolerance
 from checker.units import format_si
-from checker.variants import with_resistance
 
 # A part of a given tolerance is stocked in its own series and in the coarser ones: a
 # 1 % resistor comes in E96 values and also in the E24 values (common practice).
@@ -113,9 +114,18 @@ def _use(view, passive, value: float, unit: str, inputs, tolerance) -> Suggestio
 
 
 def _gains(view, ref: str, ohms: float) -> tuple[float | None, float | None]:
-    """The stage's mid-band gain (first source) now and with ``ref`` at ``ohms``."""
+    """The stage's signal gain (first source, at its reference) now and with ``ref`` at
+    ``ohms``: a rank-one update of the present solve (checker/analysis/updates.py), no
+    copy of the stage."""
     if not view.stage.sources or not view.figures.solvable:
         return None, None
-    changed = view.reanalyse(with_resistance(view.stage, ref, ohms))
-    return (signed_gain(view.figures.sources[0].gain_from_source_mid),
-            signed_gain(changed.sources[0].gain_from_source_mid))
+    main = view.figures.sources[0]
+    resistor = view.stage.element(ref)
+    # both from the same solve (a DC reference is read a micro-hertz above it)
+    before, after = (complex(g) for g in source_gain_with_each(
+        view.figures, 0, [(resistor.net_a, resistor.net_b, 0.0),
+                          (resistor.net_a, resistor.net_b, 1 / ohms - 1 / resistor.value)],
+        max(main.reference_hz, 1e-6)))
+    if not (cmath.isfinite(before) and cmath.isfinite(after)):
+        return None, None
+    return signed_gain(before), signed_gain(after)

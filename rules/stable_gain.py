@@ -106,7 +106,7 @@ def _crossover(figures, ref: str) -> float | None:
         return loop.crossover_hz
     if next(o for o in figures.stage.opamps if o.ref == ref).part.gbw_hz is None:
         return None  # no GBW: the gain is flat, so |T| tells nothing about a crossover
-    magnitude = np.log(np.abs(loop.loop_gain))
+    magnitude = np.log(np.maximum(np.abs(loop.loop_gain), np.finfo(float).tiny))  # 0: no log
     above = magnitude >= 0.0
     falls = np.nonzero(above[:-1] & ~above[1:])[0]
     if not falls.size:
@@ -173,7 +173,7 @@ def _suggest(view, opamp, topology, minimum: float) -> tuple[Suggestion, dict]:
     values = ladder(1.0, rf * 10, "E24")[::-1]  # largest first: the least added noise
     # The noise gain at crossover rises as Rs falls: bisect for the largest that passes.
     low, high = 0, len(values) - 1
-    if below(solved(values[high])[1], minimum):
+    if not values or below(solved(values[high])[1], minimum):
         return Suggestion(f"no series RC across the inputs brings the noise gain up to"
                           f" {minimum:.3g}: {unity}", element=opamp.ref), {}
     while low < high:

@@ -119,8 +119,8 @@ ODD = textwrap.dedent('''\
       (resistor R1 in gnd 10k)
       (source in (range 0 1V)))
     (stage source-loop (supply vcc 12V) (supply vee -12V) (ground gnd)
-      (opamp U1 (part gp-bipolar) (in+ vcc) (in- out) (out out) (v+ vcc) (v- vee))
-      (source vcc (range 0 1V))
+      (opamp U1 (part gp-bipolar) (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
+      (source in (range 0 1V)) (source in (range -1V 1V))
       (load out (resistance 1k)))
     ''')
 
@@ -134,5 +134,6 @@ def test_structural_problems_are_findings_at_the_element(tmp_path, capsys):
     document = json.loads(capsys.readouterr().out)
     found = {(f["rule"], f["stage"], f["line"]) for s in document["files"][0]["stages"]
              for f in s["findings"] if f["rule"] in ("output-on-rail", "stage-unsolvable")}
-    # U1's line in the first stage; the ideal source on the supply net in the second.
+    # U1's line in the first stage; the two ideal sources on one net in the second (a
+    # source on a supply net is refused by the builder before any analysis).
     assert found == {("output-on-rail", "out-on-rail", 2), ("stage-unsolvable", "source-loop", 7)}

@@ -547,7 +547,8 @@ class Figures:
             T_local = T_all[part]
             local_phase = unwrapped_phase_deg(T_local)
             local_phase += 360.0 * np.round((phase[i] - local_phase[0]) / 360.0)
-            result.append((local, T_local, local_phase, -np.log10(np.abs(beta_all[part]))))
+            beta_magnitude = np.maximum(np.abs(beta_all[part]), np.finfo(float).tiny)
+            result.append((local, T_local, local_phase, -np.log10(beta_magnitude)))
         return result
 
     # -- sources: gain, input impedance, bandwidth -------------------------------------
@@ -909,7 +910,7 @@ def _gain_margin(frequencies: np.ndarray, j: int, phase: np.ndarray,
     """(phase crossover Hz, gain margin dB) where the phase falls through -180 deg
     between points j and j + 1: -20 log10 |T| there, log|T| linear in log f."""
     crossover = interpolate_log(frequencies, j, -180.0, phase)
-    log_mag = np.log10(magnitude)
+    log_mag = np.log10(np.maximum(magnitude, np.finfo(float).tiny))  # a zero has no log
     fraction = (np.log(crossover) - np.log(frequencies[j])) / (
         np.log(frequencies[j + 1]) - np.log(frequencies[j]))
     return crossover, float(-20 * (log_mag[j] + fraction * (log_mag[j + 1] - log_mag[j])))
@@ -985,7 +986,7 @@ def bandwidth_edges(frequencies: np.ndarray, gain: np.ndarray, at: int,
     edges), so its accuracy does not depend on the grid's density."""
     magnitude = np.abs(gain)
     reference = magnitude[at]
-    if reference == 0:
+    if reference == 0 or not math.isfinite(reference):  # no gain, or the net is held
         return None, None
     level = reference / math.sqrt(2)
     tiny = np.finfo(float).tiny  # a zero response has no log

@@ -21,9 +21,16 @@ import numpy as np
 
 
 def return_ratio(gain: np.ndarray, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """(T, beta) from A_k (F,) and the closed-loop response z (F,) (see module doc)."""
-    beta = z / (1 - gain * z)
-    return gain * beta, beta
+    """(T, beta) from A_k (F,) and the closed-loop response z (F,) (see module doc).
+    Where 1 - A z is exactly 0 (the stage with this gain taken out is singular, as when
+    other op-amps hold the nets) both are infinite: no finite loop gain describes it."""
+    gain, z = np.asarray(gain), np.asarray(z)
+    denominator = 1 - gain * z
+    beta = np.divide(z, denominator, out=np.full(denominator.shape, np.inf, dtype=complex),
+                     where=denominator != 0)
+    T = np.multiply(gain, beta, out=np.full(beta.shape, np.inf, dtype=complex),
+                    where=np.isfinite(beta))
+    return T, beta
 
 
 @dataclass(frozen=True)
@@ -53,7 +60,7 @@ def interpolate_log(f: np.ndarray, i: int, target: float, x_values: np.ndarray) 
 def unwrapped_phase_deg(T: np.ndarray) -> np.ndarray:
     """arg T in degrees, unwrapped from the lowest frequency along the last axis: each
     step's turn arg(T[i+1]/T[i]) taken in (-180, 180] and summed, as np.unwrap does."""
-    steps = np.angle(T[..., 1:] / T[..., :-1])
+    steps = np.angle(T[..., 1:] * np.conj(T[..., :-1]))  # arg(a/b), no division by 0
     return np.degrees(np.concatenate([np.angle(T[..., :1]), steps], axis=-1).cumsum(axis=-1))
 
 

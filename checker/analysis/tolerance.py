@@ -14,17 +14,10 @@ import numpy as np
 from checker.analysis.mna import solve, system_stack
 
 
-def _pattern(n: int, a: int, b: int) -> np.ndarray:
-    """The conductance stamp of a unit conductance between nodes a and b: (n, n)."""
-    pattern = np.zeros((n, n))
-    if a:
-        pattern[a - 1, a - 1] += 1
-    if b:
-        pattern[b - 1, b - 1] += 1
-    if a and b:
-        pattern[a - 1, b - 1] -= 1
-        pattern[b - 1, a - 1] -= 1
-    return pattern
+# Bytes of one batch of sample matrices: the (S, n, n) stack is built and solved in
+# batches of at most this size, so memory does not grow with the number of samples
+# (each matrix is solved alone, so the results are the same as in one piece).
+BATCH_BYTES = 16 * 1024 * 1024
 
 
 def transfer_samples(figures, values: dict[str, np.ndarray], sources: list[int],
@@ -42,24 +35,37 @@ def transfer_samples(figures, values: dict[str, np.ndarray], sources: list[int],
         base = system_stack(figures.ac_matrices, figures.open_loop_gains(frequencies),
                             2j * np.pi * frequencies)[0]
     count = len(next(iter(values.values()))) if values else 1
-    Y = np.broadcast_to(base, (count, n, n)).copy()
-    for ref, ohms in values.items():
-        resistor = stage.element(ref)
-        a, b = circuit.node(resistor.net_a), circuit.node(resistor.net_b)
-        delta = 1.0 / np.asarray(ohms, dtype=float) - 1.0 / resistor.value
-        Y += delta[:, None, None] * _pattern(n, a, b)[None]
     B = np.zeros((n, len(sources)))
     for j, i in enumerate(sources):
         if i in circuit.source_branch:
             B[circuit.row_of_branch(circuit.source_branch[i]), j] = 1.0
         else:
             B[circuit.row_of_node(circuit.source_node[i]), j] = 1.0
-    X = solve(Y, np.broadcast_to(B, (count,) + B.shape))
+    # Each resistor's change of conductance, stamped at its (up to) four entries.
+    stamps = []
+    for ref, ohms in values.items():
+        resistor = stage.element(ref)
+        a, b = circuit.node(resistor.net_a), circuit.node(resistor.net_b)
+        stamps.append((a, b, 1.0 / np.asarray(ohms, dtype=float) - 1.0 / resistor.value))
     rows = [circuit.node(net) - 1 for net in nets]
-    result = np.zeros((count, len(sources), len(nets)), dtype=X.dtype)
-    for k, row in enumerate(rows):
-        if row >= 0:
-            result[:, :, k] = X[:, row, :]
+    result = np.zeros((count, len(sources), len(nets)), dtype=base.dtype)
+    batch = max(1, BATCH_BYTES // max(1, n * n * base.itemsize))
+    for start in range(0, count, batch):
+        stop = min(count, start + batch)
+        Y = np.broadcast_to(base, (stop - start, n, n)).copy()
+        for a, b, delta in stamps:
+            part = delta[start:stop]
+            if a:
+                Y[:, a - 1, a - 1] += part
+            if b:
+                Y[:, b - 1, b - 1] += part
+            if a and b:
+                Y[:, a - 1, b - 1] -= part
+                Y[:, b - 1, a - 1] -= part
+        X = solve(Y, np.broadcast_to(B, (stop - start,) + B.shape))
+        for k, row in enumerate(rows):
+            if row >= 0:
+                result[start:stop, :, k] = X[:, row, :]
     return result
 
 

@@ -136,3 +136,39 @@ def source_gain_candidates(figures: Figures, index: int, ref: str, gains: np.nda
         return _pick(X, node, 0) - factor * _pick(X, node, 1)
 
     return voltage(figures.stage.output_net)
+
+
+def source_gain_with_each(figures: Figures, index: int, changes,
+                          frequency_hz: float) -> np.ndarray:
+    """Source ``index``'s signal gain (as SourceFigures.gain_from_source) at one frequency
+    (0 Hz: from the DC system) with each of
+    ``changes`` = [(net_a, net_b, y), ...] made alone (y the admittance added: 1/R' -
+    1/R for a resistor changed from R to R'), all from one solve of the source column
+    and a unit current between each pair (Sherman-Morrison): (len(changes),) complex.
+    The cost grows linearly with the number of changes, not with a solve per change."""
+    circuit = figures.circuit
+    if not changes:
+        return np.zeros(0, dtype=complex)
+    nodes = [(circuit.node(a), circuit.node(b)) for a, b, _y in changes]
+    added = np.array([y for _a, _b, y in changes], dtype=complex)
+    columns, B = figures._ac_columns
+    U = np.zeros((circuit.size, len(nodes)))
+    for j, (a, b) in enumerate(nodes):
+        if a:
+            U[a - 1, j] += 1.0
+        if b:
+            U[b - 1, j] -= 1.0
+    rhs = np.concatenate([B[:, [columns.index(("source", index))]], U], axis=1)
+    X = figures.solve_columns(np.array([float(frequency_hz)]), rhs)  # (1, n, 1 + k)
+    across = np.stack([_across(X, a, b)[0] for a, b in nodes])  # (k, 1 + k)
+    u_x0 = across[:, 0]
+    u_z = across[np.arange(len(nodes)), 1 + np.arange(len(nodes))]
+    factor = added * u_x0 / (1 + added * u_z)
+
+    def voltage(net: str) -> np.ndarray:
+        node = circuit.node(net)
+        if not node:
+            return np.zeros(len(nodes), dtype=complex)
+        return X[0, node - 1, 0] - factor * X[0, node - 1, 1:]
+
+    return voltage(figures.stage.output_net)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import stat
 from dataclasses import dataclass
 
 from checker.io.json_reader import read_json
@@ -31,16 +32,34 @@ def syntax_of(path: str) -> str:
 
 
 def read_text(path: str) -> str:
-    """The file's text as UTF-8; InputErrors for unreadable, oversized or non-UTF-8 files."""
+    """The file's text as UTF-8; InputErrors for unreadable, oversized or non-UTF-8 files
+    and for anything that is not a regular file (a FIFO would block, a device such as
+    /dev/zero never ends): only regular files are read."""
+    def refuse(message: str) -> InputErrors:
+        return InputErrors([InputProblem(path, 1, 1, message)])
+
     try:
-        size = os.path.getsize(path)
-        if size > MAX_FILE_BYTES:
-            raise InputErrors([InputProblem(path, 1, 1, f"file is {size / 1e6:.1f} MB; the"
-                                            f" limit is {MAX_FILE_BYTES / 1e6:.0f} MB")])
-        with open(path, "rb") as handle:
-            data = handle.read()
+        kind = _not_regular(os.stat(path).st_mode)
+        if kind:
+            raise refuse(f"not a regular file ({kind}); only regular files are read")
+        # Non-blocking, so a file swapped for a FIFO after the check cannot hang the run.
+        handle = os.open(path, os.O_RDONLY | getattr(os, "O_NONBLOCK", 0))
+        try:
+            details = os.fstat(handle)
+            kind = _not_regular(details.st_mode)
+            if kind:
+                raise refuse(f"not a regular file ({kind}); only regular files are read")
+            if details.st_size > MAX_FILE_BYTES:
+                raise refuse(f"file is {details.st_size / 1e6:.1f} MB; the limit is"
+                             f" {MAX_FILE_BYTES / 1e6:.0f} MB")
+            with os.fdopen(handle, "rb", closefd=False) as stream:
+                data = stream.read(MAX_FILE_BYTES + 1)
+        finally:
+            os.close(handle)
+        if len(data) > MAX_FILE_BYTES:
+            raise refuse(f"file is larger than the limit of {MAX_FILE_BYTES / 1e6:.0f} MB")
     except OSError as error:
-        raise InputErrors([InputProblem(path, 1, 1, f"cannot read: {error.strerror}")]) from None
+        raise refuse(f"cannot read: {error.strerror or error}") from None
     try:
         text = data.decode("utf-8")
     except UnicodeDecodeError as error:
@@ -50,6 +69,18 @@ def read_text(path: str) -> str:
                                         f"not UTF-8 text: byte 0x{data[error.start]:02x}"
                                         " cannot be decoded; save the file as UTF-8")]) from None
     return text.removeprefix("\ufeff")
+
+
+def _not_regular(mode: int) -> str | None:
+    """What a non-regular file is, for the message; None for a regular file."""
+    if stat.S_ISREG(mode):
+        return None
+    for test, name in ((stat.S_ISDIR, "a folder"), (stat.S_ISFIFO, "a FIFO"),
+                       (stat.S_ISCHR, "a character device"), (stat.S_ISBLK, "a block device"),
+                       (stat.S_ISSOCK, "a socket")):
+        if test(mode):
+            return name
+    return "not a plain file"
 
 
 def parse_text(text: str, path: str, syntax: str | None = None) -> ParsedFile:

@@ -6,7 +6,8 @@ from functools import lru_cache
 from importlib import resources
 
 from checker.build import build_parts
-from checker.io.load import parse_text, read_file
+from checker.io.load import PART_ENDINGS, parse_text, read_file
+from checker.io.positions import InputErrors, InputProblem
 from checker.model import OpAmpPart
 
 BUILTIN_FILE = "generic.parts"
@@ -23,10 +24,15 @@ def builtin_parts() -> dict[str, OpAmpPart]:
 def load_library(paths: list[str] = ()) -> dict[str, OpAmpPart]:
     """Built-in parts, overridden in order by the parts of each file in ``paths``.
 
-    Raises InputErrors for a part file that cannot be read.
+    Raises InputErrors for a part file that cannot be read. A file whose name does not
+    end in .parts or .parts.json is refused unread: it is not a part library, and its
+    contents must not turn up in error messages (a configured path may name any file).
     """
     library = dict(builtin_parts())
     for path in paths:
+        if not path.endswith(PART_ENDINGS):
+            raise InputErrors([InputProblem(path, 1, 1, "not a part library: a part file's"
+                                            " name ends in .parts or .parts.json")])
         for part in build_parts(read_file(path)):
             library[part.name] = part
     return library

@@ -14,6 +14,7 @@ from checker.findings import Finding
 from checker.records import BASES, STATUSES, Caution, Verdict
 from checker.report.context import ReportContext
 from checker.report import Writer as BaseWriter
+from checker.report.finite import finite_json
 from checker.review import FileResult
 
 FORMAT_NAME = "ampcheck-report"
@@ -90,7 +91,7 @@ def file_dict(result: FileResult) -> dict:
 
 
 def _indented(value, depth: int) -> str:
-    text = json.dumps(value, indent=2, ensure_ascii=False, allow_nan=False)
+    text = json.dumps(finite_json(value), indent=2, ensure_ascii=False, allow_nan=False)
     return text.replace("\n", "\n" + "  " * depth)
 
 

@@ -22,6 +22,7 @@ from checker.findings import Finding, Severity
 from checker.records import CAUTION_TAG, Caution
 from checker.report import Writer as BaseWriter
 from checker.report.context import ReportContext
+from checker.report.finite import finite_json
 from checker.review import FileResult
 
 LEVEL = {Severity.ERROR: "error", Severity.WARNING: "warning", Severity.INFO: "note"}
@@ -146,7 +147,8 @@ class Writer(BaseWriter):
         self.index = {rule_id: i for i, rule_id in enumerate(rule_ids)}
         driver = {"name": "ampcheck", "version": context.tool_version,
                   "rules": [_rule_entry(r, context) for r in rule_ids]}
-        tool = json.dumps({"driver": driver}, indent=2, ensure_ascii=False)
+        tool = json.dumps(finite_json({"driver": driver}), indent=2, ensure_ascii=False,
+                          allow_nan=False)
         out.write(f'{{\n  "$schema": "{SCHEMA_URI}",\n  "version": "2.1.0",\n  "runs": [\n'
                   f'    {{\n      "tool": {tool.replace(chr(10), chr(10) + "      ")},\n'
                   '      "columnKind": "unicodeCodePoints",\n      "results": [')
@@ -156,7 +158,8 @@ class Writer(BaseWriter):
         entries = [caution_result(c, self.root, self.index) for c in result.cautions()]
         entries += [result_entry(f, self.root, self.index) for f in result.findings()]
         for item in entries:
-            entry = json.dumps(item, indent=2, ensure_ascii=False)
+            entry = json.dumps(finite_json(item), indent=2, ensure_ascii=False,
+                               allow_nan=False)
             self.out.write(("," if self.count else "") + "\n        " +
                            entry.replace("\n", "\n        "))
             self.count += 1
