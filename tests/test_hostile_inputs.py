@@ -505,7 +505,7 @@ def test_gains_with_each_resistor_changed_match_a_solved_copy():
         # a rank-one update is exact (Sherman-Morrison; Golub and Van Loan, Matrix
         # Computations, section 2.1.4): the copy's own solve agrees to rounding
         assert signed_gain(complex(gain)) == pytest.approx(
-            signed_gain(copy.sources[0].gain_mid), rel=1e-9)
+            signed_gain(copy.sources[0].gain_from_source_mid), rel=1e-9)
 
 
 def test_preferred_values_solves_no_copy_per_resistor(monkeypatch):
