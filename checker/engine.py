@@ -114,10 +114,19 @@ def _builtin_modules() -> list[ModuleType]:
         package = importlib.import_module("checker.rules")
     except ModuleNotFoundError:
         # Run from a source checkout that is not installed (python -m checker in the
-        # repository): the rules folder sits beside the package, as it does in git.
+        # repository): the rules folder sits beside the package, as it does in git. Make
+        # it the checker.rules package, as the install does, so the rules' own imports
+        # of their shared helpers (checker.rules._isolation, ...) resolve.
         folder = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))),
                               "rules")
-        return _folder_modules(folder)
+        spec = importlib.util.spec_from_file_location(
+            "checker.rules", os.path.join(folder, "__init__.py"),
+            submodule_search_locations=[folder])
+        if spec is None or not os.path.isdir(folder):
+            raise RuleError(f"the built-in rules are missing: no folder {folder}") from None
+        package = importlib.util.module_from_spec(spec)
+        sys.modules["checker.rules"] = package
+        spec.loader.exec_module(package)
     names = sorted(info.name for info in pkgutil.iter_modules(package.__path__)
                    if not info.name.startswith("_"))
     return [importlib.import_module(f"checker.rules.{name}") for name in names]
