@@ -19,7 +19,9 @@ def rail_headroom(view):
         band), widened by the worst case of input offset voltage and bias currents; a
         source that moves the output but gives no range leaves its extremes unknown,
         and the rule says it could not check.
-        The output may swing to each rail less the part's output headroom: beyond that
+        The output may swing to each rail less the part's output headroom (which a
+        part states into its `headroom-load`; a heavier load on the output is noted as
+        not checked, since the swing is then smaller): beyond that
         it clips (error); within `margin_v` (or the stage's `headroom` requirement) of
         it, it is warned. The inputs' common-mode range is the `common-mode-range`
         rule's concern, and an op-amp with an input on a net with no DC path (no
@@ -60,7 +62,22 @@ def rail_headroom(view):
                                         f"part {part.name} gives no output headroom; the"
                                         " rails were used as the limits",
                                         opamp.origin, (opamp.ref,))
+            yield from _heavier_load(view, opamp)
             yield from _output(view, opamp, margin)
+
+
+def _heavier_load(view, opamp):
+    """A part's headroom holds into its `headroom-load` or more; a heavier load on the
+    output (a smaller resistance) makes it swing less than the figures assume."""
+    rated = opamp.part.headroom_load_ohm
+    loads = [load.resistance_ohm for load in view.stage.loads
+             if load.net == opamp.out and load.resistance_ohm]
+    if rated and loads and min(loads) < rated * (1 - 1e-9):
+        yield view.cannot_check(f"the full output swing of {opamp.ref}",
+                                f"part {opamp.part.name} states its output headroom into"
+                                f" {format_si(rated, 'Ω')} or more, and {opamp.out} carries"
+                                f" {format_si(min(loads), 'Ω')}: it swings less than the"
+                                " headroom used here", opamp.origin, (opamp.ref,))
 
 
 def _output(view, opamp, margin):

@@ -212,3 +212,12 @@ def test_the_fix_changes_the_stage_not_the_sensor():
     text = only(BOTH_SIDES, RULE).suggestion.text
     assert text.startswith("lower the gain by a factor 1.98")
     assert "widen the supplies" in text and "for reference" in text
+
+
+def test_a_load_heavier_than_the_headroom_load_is_noted_as_not_checked():
+    # the part states its headroom into 10 kOhm; 1 kOhm on its output makes it swing less
+    # than that headroom (common practice: headroom grows with the load current)
+    text = BOTH_SIDES.replace("(resistance 10k)", "(resistance 1k)")
+    notes = [f for f in findings(text, RULE) if f.details.get("unchecked")]
+    assert len(notes) == 1 and "into 10 kΩ or more" in notes[0].message
+    assert not [f for f in findings(BOTH_SIDES, RULE) if f.details.get("unchecked")]

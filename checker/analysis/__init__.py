@@ -1,7 +1,9 @@
 """The numeric core: modified nodal analysis of a Stage with an op-amp macro-model.
 
-Pure functions over numpy arrays; knows matrices and physics, nothing of files, rules or
-output. Entry point: :func:`analyse`, which returns lazily computed :class:`Figures`.
+Knows matrices and physics, nothing of files, rules or output. solution.py owns the
+solves of one stage; the figure modules (loops, sources, ranges, network, noise,
+spread, signal, poles, dc_error) are functions of it; figures.py is the thin cache the
+rules read. Entry point: :func:`analyse`, which returns lazily computed :class:`Figures`.
 """
 
 from checker.analysis.figures import AnalysisOptions, Figures, analyse

@@ -1,6 +1,6 @@
 """Expand a Stage into stamped primitives: the op-amp macro-model lives here.
 
-Each primitive knows how to stamp itself into the MNA matrices (see mna.py). Node 0 is
+The primitives are plain records that mna.assemble stamps into the matrices. Node 0 is
 the ground net; every other net, and each op-amp's internal output node, gets an index.
 Each voltage source, inductor and op-amp gain block adds a branch-current unknown.
 
@@ -21,7 +21,7 @@ import numpy as np
 
 from checker.model import OpAmp, Stage
 
-DEFAULT_OPEN_LOOP_GAIN = 1e6  # used only where a part gives none; recorded as an assumption
+DEFAULT_OPEN_LOOP_GAIN = 1e6  # used only where a part gives none
 
 
 @dataclass(frozen=True)
@@ -93,8 +93,6 @@ class Circuit:
     supply_branch: dict[str, int] = field(default_factory=dict)  # net -> branch index
     source_branch: dict[int, int] = field(default_factory=dict)  # source index -> branch
     source_node: dict[int, int] = field(default_factory=dict)  # source index -> its net
-    load_elements: list[str] = field(default_factory=list)
-    assumptions: list[str] = field(default_factory=list)
 
     @property
     def node_count(self) -> int:
@@ -171,11 +169,9 @@ def build_circuit(stage: Stage, stray_capacitance_f: float = 0.0) -> Circuit:
         if load.resistance_ohm:
             circuit.conductances.append(Conductance(node, 0, 1 / load.resistance_ohm,
                                                     f"load {load.net}"))
-            circuit.load_elements.append(f"load {load.net}")
         if load.capacitance_f:
             circuit.capacitances.append(Capacitance(node, 0, load.capacitance_f,
                                                     f"load {load.net}"))
-            circuit.load_elements.append(f"load {load.net}")
 
     for opamp in stage.opamps:
         _expand_opamp(circuit, index, opamp, stray_capacitance_f)
@@ -199,14 +195,10 @@ def _expand_opamp(circuit: Circuit, index: dict[str, int], opamp: OpAmp,
     if stray_capacitance_f:
         circuit.capacitances.append(Capacitance(in_neg, 0, stray_capacitance_f,
                                                 f"{opamp.ref}.stray"))
-    open_loop_gain = part.open_loop_gain
-    if open_loop_gain is None:
-        open_loop_gain = DEFAULT_OPEN_LOOP_GAIN
-        circuit.assumptions.append(f"{opamp.ref}: part gives no open-loop gain;"
-                                   f" assumed {DEFAULT_OPEN_LOOP_GAIN:.0e}")
-    if part.gbw_hz is None:
-        circuit.assumptions.append(f"{opamp.ref}: part gives no GBW; its gain is taken as"
-                                   " flat with frequency, so no loop figures")
+    # A part without an open-loop gain is taken at DEFAULT_OPEN_LOOP_GAIN; one without a
+    # GBW has a flat gain, so no loop figures (the rules that need them say so).
+    open_loop_gain = part.open_loop_gain if part.open_loop_gain is not None \
+        else DEFAULT_OPEN_LOOP_GAIN
     resistance = part.output_resistance_ohm or 0.0
     if resistance > 0:
         out_int = len(circuit.node_names)

@@ -30,7 +30,7 @@ def transfer_samples(figures, values: dict[str, np.ndarray], sources: list[int],
     n = circuit.size
     frequencies = np.array([frequency_hz], dtype=float)
     if frequency_hz == 0.0:
-        base = figures._dc_system()
+        base = figures.solution.dc_system()
     else:
         base = system_stack(figures.ac_matrices, figures.open_loop_gains(frequencies),
                             2j * np.pi * frequencies)[0]

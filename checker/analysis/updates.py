@@ -19,8 +19,10 @@ import weakref
 
 import numpy as np
 
-from checker.analysis.figures import Figures, _pick
+from checker.analysis.figures import Figures
+from checker.analysis.grid import pick
 from checker.analysis.loop import Margins, return_ratio
+from checker.analysis.solution import OUTPUT, Excitation
 
 # Per Figures: the loop column and unit pair currents solved on its own grid, kept
 # because a search tries many values of the same element against them.
@@ -50,21 +52,17 @@ def _loop_and_pairs(figures: Figures, ref: str, nodes: list[tuple[int, int]],
     key = (ref, tuple(nodes))
     if on_grid and key in cache:
         return cache[key]
-    columns, B = figures._ac_columns
+    solution = figures.solution
     out = figures.circuit.node(figures.stage.output_net)
-    if on_grid and "_ac" in figures.__dict__ and out and all(p == (out, 0) for p in nodes):
+    if on_grid and solution.grid_solved and out and all(p == (out, 0) for p in nodes):
         # 1 A into the output net is a column of the grid's solve already
-        picked = [columns.index(("loop", ref))] + [columns.index(("output",))] * len(nodes)
-        cache[key] = figures._ac[:, :, picked]
+        picked = [solution.column(Excitation.loop(ref))] + \
+            [solution.column(OUTPUT)] * len(nodes)
+        cache[key] = solution.grid[:, :, picked]
         return cache[key]
-    U = np.zeros((figures.circuit.size, len(nodes)))
-    for j, (a, b) in enumerate(nodes):
-        if a:
-            U[a - 1, j] += 1.0
-        if b:
-            U[b - 1, j] -= 1.0
-    rhs = np.concatenate([B[:, [columns.index(("loop", ref))]], U], axis=1)
-    X = figures.solve_columns(frequencies, rhs)
+    rhs = np.concatenate([solution.excitations([Excitation.loop(ref)]),
+                          solution.unit_currents(nodes)], axis=1)
+    X = solution.solve(frequencies, rhs)
     if on_grid:
         cache[key] = X
     return X
@@ -125,7 +123,8 @@ def source_gain_candidates(figures: Figures, index: int, ref: str, gains: np.nda
     the source and loop columns (Sherman-Morrison): (V, F) complex."""
     circuit = figures.circuit
     k, block = _opamp(figures, ref)
-    X = figures._solve_ac(frequencies, only=[("source", index), ("loop", ref)])
+    X = figures.solution.solve_excitations(frequencies, [Excitation.source(index),
+                                                         Excitation.loop(ref)])
     delta = -(gains - figures.open_loop_gains(frequencies)[:, k])
     w_x0, w_z = _across(X, block.in_pos, block.in_neg).T
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -133,7 +132,7 @@ def source_gain_candidates(figures: Figures, index: int, ref: str, gains: np.nda
 
     def voltage(net: str) -> np.ndarray:
         node = circuit.node(net)
-        return _pick(X, node, 0) - factor * _pick(X, node, 1)
+        return pick(X, node, 0) - factor * pick(X, node, 1)
 
     return voltage(figures.stage.output_net)
 
@@ -151,15 +150,10 @@ def source_gain_with_each(figures: Figures, index: int, changes,
         return np.zeros(0, dtype=complex)
     nodes = [(circuit.node(a), circuit.node(b)) for a, b, _y in changes]
     added = np.array([y for _a, _b, y in changes], dtype=complex)
-    columns, B = figures._ac_columns
-    U = np.zeros((circuit.size, len(nodes)))
-    for j, (a, b) in enumerate(nodes):
-        if a:
-            U[a - 1, j] += 1.0
-        if b:
-            U[b - 1, j] -= 1.0
-    rhs = np.concatenate([B[:, [columns.index(("source", index))]], U], axis=1)
-    X = figures.solve_columns(np.array([float(frequency_hz)]), rhs)  # (1, n, 1 + k)
+    solution = figures.solution
+    rhs = np.concatenate([solution.excitations([Excitation.source(index)]),
+                          solution.unit_currents(nodes)], axis=1)
+    X = solution.solve(np.array([float(frequency_hz)]), rhs)  # (1, n, 1 + k)
     across = np.stack([_across(X, a, b)[0] for a, b in nodes])  # (k, 1 + k)
     u_x0 = across[:, 0]
     u_z = across[np.arange(len(nodes)), 1 + np.arange(len(nodes))]

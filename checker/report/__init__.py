@@ -9,7 +9,6 @@ maps a format name to its module, imported on first use.
 from __future__ import annotations
 
 import importlib
-import io
 
 FORMATS = {
     "text": "checker.report.text",
@@ -48,13 +47,3 @@ def writer(name: str, out, context, **options) -> Writer:
     """A writer of format ``name`` to the text stream ``out`` (``folder=`` for a format
     that writes a folder)."""
     return importlib.import_module(FORMATS[name]).Writer(out, context, **options)
-
-
-def render(name: str, results, context) -> str:
-    """The whole report of ``results`` in format ``name``, as a string."""
-    out = io.StringIO()
-    target = writer(name, out, context)
-    for result in results:
-        target.add(result)
-    target.close()
-    return out.getvalue()

@@ -1,0 +1,152 @@
+"""The frequency grid and what is read on it: bands, local grids that pin a crossing
+down, -3 dB edges, and the small array helpers the figure modules share.
+
+Every crossing a figure is read at (loop crossover, phase crossover, -3 dB edges) is
+bracketed on the grid, then pinned down on a local grid of REFINE_POINTS solved between
+the two bracketing points, so no figure depends on the grid's density.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from checker.analysis.loop import crossing_index, interpolate_log
+from checker.model import Source, Stage
+
+REFINE_POINTS = 17  # points of the local grid that pins down each crossover
+_REFINE_STEPS = np.linspace(0.0, 1.0, REFINE_POINTS)
+
+
+def frequency_grid(stage: Stage, points: int) -> np.ndarray:
+    """Log grid from well below the band to well above every op-amp's GBW, plus each
+    source's band edges and centre. Shape (F,), sorted, no repeats."""
+    high = 1e6
+    low = 1e-2
+    for opamp in stage.opamps:
+        for value in (opamp.part.gbw_hz, opamp.part.second_pole_hz):
+            if value:
+                high = max(high, 30 * value)
+    extra = []
+    for source in stage.sources:
+        extra.extend(f for f in (source.band_low_hz, source.band_high_hz,
+                                 band_centre(source)) if f and f > 0)
+        if source.band_low_hz:
+            low = min(low, source.band_low_hz / 100)
+        if source.band_high_hz:
+            high = max(high, source.band_high_hz * 1000)
+    grid = np.logspace(math.log10(low), math.log10(high), points)
+    values = np.sort(np.concatenate([grid, extra]))
+    # sorted and without repeats, as np.unique (which would import numpy.ma)
+    return values[np.concatenate([[True], values[1:] != values[:-1]])]
+
+
+def local_grid(start: float, stop: float) -> np.ndarray:
+    """REFINE_POINTS log-spaced frequencies from ``start`` to ``stop`` (either order)."""
+    return start * (stop / start) ** _REFINE_STEPS
+
+
+def signed_gain(gain: complex) -> float:
+    """A mid-band gain as a real number: its magnitude with the sign of its real part."""
+    return math.copysign(abs(gain), gain.real) if gain.real else abs(gain)
+
+
+def pick(X: np.ndarray, node: int, column: int) -> np.ndarray:
+    """Node ``node``'s voltage in column ``column`` of a solution X (F, n, m): (F,)
+    (zeros for ground, node 0)."""
+    if node == 0:
+        return np.zeros(X.shape[0], dtype=X.dtype)
+    return X[:, node - 1, column]
+
+
+def safe_divide(a, b):
+    """a / b elementwise, infinite where b is 0 (an open circuit's impedance)."""
+    a = np.asarray(a, dtype=complex)
+    b = np.asarray(b, dtype=complex)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        result = a / b
+    return np.where(b == 0, np.inf, result)
+
+
+def reference_frequency(source: Source) -> float:
+    """The frequency a source's single-number figures are read at: the geometric centre
+    of its band, or 0 Hz (DC) for a source with no band or a band from 0 Hz."""
+    return band_centre(source) or 0.0
+
+
+def band_centre(source: Source) -> float | None:
+    if source.band_high_hz and source.band_low_hz:
+        return math.sqrt(source.band_low_hz * source.band_high_hz)
+    return None
+
+
+def band_mask(frequencies: np.ndarray, source: Source) -> np.ndarray:
+    """The grid points inside a source's band (every point where it gives none)."""
+    if source.band_high_hz:
+        low = source.band_low_hz or frequencies[0]
+        mask = (frequencies >= low * (1 - 1e-12)) & \
+            (frequencies <= source.band_high_hz * (1 + 1e-12))
+        if mask.any():
+            return mask
+    return np.ones(frequencies.shape, dtype=bool)
+
+
+def grid_upper_edges(frequencies: np.ndarray, gains: np.ndarray, at: int) -> np.ndarray:
+    """-3 dB upper edges of many gains (V, F) above grid index ``at``, read on the grid
+    alone (log-log interpolation, no local solve); NaN where the response stays up.
+    For ranking candidates; reported edges come from bandwidth_edges."""
+    if at >= frequencies.size - 1:
+        return np.full(gains.shape[0], np.nan)
+    magnitude = np.maximum(np.abs(gains[:, at:]), np.finfo(float).tiny)
+    level = magnitude[:, :1] / math.sqrt(2)
+    above = magnitude >= level
+    falls = above[:, :-1] & ~above[:, 1:]
+    found = falls.any(axis=1)
+    i = np.argmax(falls, axis=1)
+    rows = np.arange(gains.shape[0])
+    log_f = np.log(frequencies[at:])
+    m0, m1 = np.log(magnitude[rows, i]), np.log(magnitude[rows, i + 1])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        fraction = np.where(found & (m1 != m0), (np.log(level[:, 0]) - m0) / (m1 - m0), 0.0)
+    edge = np.exp(log_f[i] + fraction * (log_f[np.minimum(i + 1, log_f.size - 1)] - log_f[i]))
+    return np.where(found, edge, np.nan)
+
+
+def bandwidth_edges(frequencies: np.ndarray, gain: np.ndarray, at: int,
+                    gain_at=None) -> tuple[float | None, float | None]:
+    """-3 dB edges of |gain| around index ``at`` (None where the response stays up).
+
+    Each edge is bracketed on the grid, then pinned down on a local grid of
+    REFINE_POINTS solved by ``gain_at(frequencies)`` (when given; one call for both
+    edges), so its accuracy does not depend on the grid's density."""
+    magnitude = np.abs(gain)
+    reference = magnitude[at]
+    if reference == 0 or not math.isfinite(reference):  # no gain, or the net is held
+        return None, None
+    level = reference / math.sqrt(2)
+    tiny = np.finfo(float).tiny  # a zero response has no log
+    sides = [(frequencies[at:], magnitude[at:]),  # upwards from the reference
+             (frequencies[: at + 1][::-1], magnitude[: at + 1][::-1])]  # downwards
+    brackets = [crossing_index(values, level) for _freqs, values in sides]
+    locals_ = [local_grid(freqs[i], freqs[i + 1])
+               for (freqs, _values), i in zip(sides, brackets) if i is not None]
+    solved = iter(np.split(np.maximum(np.abs(gain_at(np.concatenate(locals_))), tiny),
+                           len(locals_))) if gain_at is not None and locals_ else None
+    local_grids = iter(locals_)
+    edges = []
+    for (freqs, values), i in zip(sides, brackets):
+        if i is None:
+            edges.append(None)
+            continue
+        if solved is not None:
+            local, local_values = next(local_grids), next(solved)
+            j = crossing_index(local_values, level)
+            if j is not None:
+                edges.append(interpolate_log(local, j, math.log10(level),
+                                             np.log10(local_values)))
+                continue
+        edges.append(interpolate_log(freqs, i, math.log10(level),
+                                     np.log10(np.maximum(values, tiny))))
+    high, low = edges
+    return low, high

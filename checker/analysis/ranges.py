@@ -1,0 +1,153 @@
+"""DC extremes over the sources' ranges: a net's voltage, a voltage across two nets, the
+input window that fits, and each op-amp's output current.
+
+The DC solution is linear in every excitation (supplies, sources, offsets, bias
+currents), so an extreme is the rails' operating point plus each source's half-span
+times |its transfer| (an AC amplitude at its peak gain over the band), and the worst
+case of the error terms adds with the sign that hurts (superposition; DC error terms as
+in Eggleston, Basic Electronics for Scientists and Engineers, Cambridge University
+Press 2011, section 6.4). Volts and amperes, SI.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from checker.analysis.grid import band_mask
+from checker.analysis.results import NodeRange, OutputCurrent
+from checker.analysis.solution import Excitation, Solution
+from checker.model import Source
+
+
+def _source_terms(solution: Solution) -> list[tuple[Excitation, float, float, Source]]:
+    """Per source with a range: (excitation, midpoint, half-span, source)."""
+    terms = []
+    for i, source in enumerate(solution.stage.sources):
+        if source.low is None:
+            continue
+        terms.append((Excitation.source(i), (source.low + source.high) / 2,
+                      (source.high - source.low) / 2, source))
+    return terms
+
+
+def _swing_transfer(solution: Solution, net: str, i: int, source: Source) -> float:
+    """|transfer| from source i to ``net`` for its swing: the DC transfer for a range,
+    the peak over its band for an AC amplitude."""
+    name = Excitation.source(i)
+    if source.amplitude is not None and source.band_high_hz:
+        band = band_mask(solution.frequencies_hz, source)
+        return float(np.max(np.abs(solution.node_response(net, name)[band])))
+    return abs(solution.dc_transfer(net, name))
+
+
+def linear_range(solution: Solution, transfer, swing_transfer) -> tuple[float, float, float]:
+    """(nominal low, nominal high, worst-case error) of a DC quantity linear in the
+    excitations; ``transfer(name)`` is its DC transfer from one excitation and
+    ``swing_transfer(i, source)`` its transfer for source i's swing."""
+    stage = solution.stage
+    rails = stage.rail_voltages
+    base = sum(rails[n] * transfer(Excitation("supply", n))
+               for n in solution.circuit.supply_branch)
+    swing = 0.0
+    for name, mid, half, source in _source_terms(solution):
+        base += mid * transfer(name)
+        swing += half * swing_transfer(name.key, source)
+    error = 0.0
+    for opamp in stage.opamps:
+        part = opamp.part
+        if part.offset_voltage_v:
+            error += abs(part.offset_voltage_v * transfer(Excitation("vos", opamp.ref)))
+        plus = transfer(Excitation("ib+", opamp.ref))
+        minus = transfer(Excitation("ib-", opamp.ref))
+        if part.bias_current_a:
+            error += abs(part.bias_current_a * (plus + minus))
+        if part.offset_current_a:
+            error += abs(part.offset_current_a / 2 * (plus - minus))
+    return base - swing, base + swing, error
+
+
+def node_range(solution: Solution, net: str) -> NodeRange:
+    """DC extremes of ``net`` over the sources' ranges, with offset and bias errors; an
+    op-amp output's clip limits are its rails less the part's headroom."""
+    low, high, error = linear_range(
+        solution, lambda name: solution.dc_transfer(net, name),
+        lambda i, source: _swing_transfer(solution, net, i, source))
+    rails = solution.stage.rail_voltages
+    clip_low = clip_high = None
+    for opamp in solution.stage.opamps:
+        if opamp.out == net:
+            clip_low = rails[opamp.v_neg] + (opamp.part.output_headroom_low_v or 0.0)
+            clip_high = rails[opamp.v_pos] - (opamp.part.output_headroom_high_v or 0.0)
+    return NodeRange(net, low, high, error, clip_low, clip_high)
+
+
+def difference_range(solution: Solution, net_a: str, net_b: str) -> NodeRange:
+    """DC extremes of V(net_a) - V(net_b) (across a resistor, say), like node_range."""
+
+    def transfer(name) -> float:
+        return solution.dc_transfer(net_a, name) - solution.dc_transfer(net_b, name)
+
+    def swing(i: int, source: Source) -> float:
+        name = Excitation.source(i)
+        if source.amplitude is not None and source.band_high_hz:
+            band = band_mask(solution.frequencies_hz, source)
+            response = solution.node_response(net_a, name) - solution.node_response(net_b, name)
+            return float(np.max(np.abs(response[band])))
+        return abs(transfer(name))
+
+    low, high, error = linear_range(solution, transfer, swing)
+    return NodeRange(f"{net_a}-{net_b}", low, high, error)
+
+
+def unranged_sources(solution: Solution, nets) -> list[str]:
+    """The names of the sources that give no range or amplitude yet move one of
+    ``nets`` at DC: the DC extremes there count them at 0 and are not the extremes."""
+    found = []
+    for i, source in enumerate(solution.stage.sources):
+        if source.low is None and any(
+                abs(solution.dc_transfer(net, Excitation.source(i))) > 1e-12 for net in nets):
+            found.append(source.name)
+    return found
+
+
+def input_window(solution: Solution, net: str, index: int) -> tuple[float, float] | None:
+    """The values of source ``index`` (volts or amperes) that keep ``net`` inside its
+    clip limits, the other sources over their ranges and the errors included; None
+    where the net has no clip limits or does not depend on the source."""
+    source = solution.stage.sources[index]
+    node = node_range(solution, net)
+    if node.clip_low is None or source.low is None:
+        return None
+    transfer = solution.dc_transfer(net, Excitation.source(index))
+    if abs(transfer) < 1e-15:
+        return None
+    mid = (source.low + source.high) / 2
+    half = (source.high - source.low) / 2
+    centre_other = (node.nominal_low + node.nominal_high) / 2 - mid * transfer
+    spread_other = (node.nominal_high - node.nominal_low) / 2 - half * abs(transfer) \
+        + node.error
+    ends = sorted(((node.clip_low + spread_other - centre_other) / transfer,
+                   (node.clip_high - spread_other - centre_other) / transfer))
+    return ends[0], ends[1]
+
+
+def output_currents(solution: Solution) -> dict[str, OutputCurrent]:
+    """Each op-amp's most sourced and most sunk output current over the sources' ranges
+    (load plus feedback network), nominal parts: the gain block's branch current."""
+    circuit = solution.circuit
+    rails = solution.stage.rail_voltages
+    result = {}
+    for block in circuit.gain_blocks:
+        row = circuit.row_of_branch(circuit.gain_branch[block.ref])
+
+        def current(name) -> float:
+            return -solution.dc_unknown(row, name)
+
+        base = sum(rails[n] * current(Excitation("supply", n)) for n in circuit.supply_branch)
+        swing = 0.0
+        for name, mid, half, _source in _source_terms(solution):
+            base += mid * current(name)
+            swing += half * abs(current(name))
+        result[block.ref] = OutputCurrent(block.ref, max(base + swing, 0.0),
+                                          max(-(base - swing), 0.0))
+    return result

@@ -1,0 +1,299 @@
+"""One stage's solved equations: the circuit, the AC solve over the grid and the DC
+solve, each right-hand side a named excitation, and the solves the what-if figures
+(checker/analysis/updates.py) build on.
+
+An excitation is named by a typed pair (kind, key): ``source`` i (its EMF or current,
+unit), ``output`` (1 A into the output net), ``loop`` ref (a unit at op-amp ref's gain
+block: its return ratio), and at DC also ``supply`` net (1 V), ``vos`` ref (the op-amp's
+offset voltage, 1 V at its input), ``ib+`` / ``ib-`` ref (1 A drawn out of an input).
+Plain tuples of the same two items name the same excitation.
+
+Shapes: unknowns x (n,) are node voltages (ground excluded) then branch currents; the
+grid solution is X (F, n, m) for F frequencies and m excitations; the DC solution X
+(n, m'). The AC system drops the supply rails (exact: mna.without_rails); rail voltages
+read 0 and supply currents are not solved there.
+"""
+
+from __future__ import annotations
+
+from functools import cached_property
+from typing import NamedTuple
+
+import numpy as np
+
+from checker.analysis.circuit import Circuit, build_circuit
+from checker.analysis.grid import frequency_grid, pick
+from checker.analysis.mna import (Matrices, SingularCircuit, assemble, solve, source_loops,
+                                  system_stack, unreferenced_nodes, without_rails)
+from checker.analysis.results import AnalysisOptions, AnalysisProblem
+from checker.model import Stage
+
+
+class Excitation(NamedTuple):
+    """A right-hand side of the solves, by kind and key (see the module docstring)."""
+
+    kind: str
+    key: object = None
+
+    @classmethod
+    def source(cls, index: int) -> "Excitation":
+        return cls("source", index)
+
+    @classmethod
+    def loop(cls, ref: str) -> "Excitation":
+        return cls("loop", ref)
+
+
+OUTPUT = Excitation("output")
+
+
+def _named(name) -> Excitation:
+    return name if isinstance(name, Excitation) else Excitation(*name)
+
+
+class Solution:
+    """The solves of one stage, each computed on first use."""
+
+    def __init__(self, stage: Stage, options: AnalysisOptions):
+        self.stage = stage
+        self.options = options
+        self._unreferenced_cache: dict[bool, tuple[int, ...]] = {}
+
+    # -- structure -------------------------------------------------------------------
+    @cached_property
+    def circuit(self) -> Circuit:
+        return build_circuit(self.stage, self.options.stray_capacitance_f)
+
+    @cached_property
+    def problems(self) -> list[AnalysisProblem]:
+        """Structural problems: loops of voltage sources, outputs on supplies, nets with
+        no path to ground at DC (the solve then ties them with a tiny conductance)."""
+        circuit = self.circuit
+        problems = []
+        loops = source_loops(circuit)
+        if loops:
+            problems.append(AnalysisProblem(
+                "a loop of voltage sources and inductors (" + ", ".join(loops) +
+                ") fixes one net at two voltages; the equations are singular",
+                elements=tuple(loops)))
+        rails = self.stage.rail_voltages
+        for opamp in self.stage.opamps:
+            if opamp.out in rails:
+                problems.append(AnalysisProblem(
+                    f"{opamp.ref}'s output is tied to the rail {opamp.out}: the op-amp fights"
+                    " the supply, and its output current is limited only by the part",
+                    nets=(opamp.out,), elements=(opamp.ref,), fatal=False,
+                    kind="output-on-rail"))
+        floating = sorted(self.floating_nets, key=circuit.node)
+        if floating:
+            problems.append(AnalysisProblem(
+                "no DC path to ground from net " + ", ".join(floating) +
+                " (only capacitors or op-amp inputs touch it)", nets=tuple(floating),
+                fatal=False, kind="floating"))
+        return problems
+
+    @cached_property
+    def floating_nets(self) -> frozenset[str]:
+        """Nets with no DC path to ground (only capacitors or op-amp inputs touch them)."""
+        return frozenset(self.circuit.node_names[n] for n in self.unreferenced(at_dc=True))
+
+    def unreferenced(self, at_dc: bool) -> tuple[int, ...]:
+        """Nodes with no path to ground (at DC, or with capacitors counted too)."""
+        if at_dc not in self._unreferenced_cache:
+            self._unreferenced_cache[at_dc] = tuple(unreferenced_nodes(self.circuit,
+                                                                       at_dc=at_dc))
+        return self._unreferenced_cache[at_dc]
+
+    @property
+    def solvable(self) -> bool:
+        return not any(p.fatal for p in self.problems)
+
+    def require_solvable(self) -> None:
+        if not self.solvable:
+            raise SingularCircuit(self.problems[0].message)
+
+    # -- the grid and the op-amps' gains ------------------------------------------------
+    @cached_property
+    def frequencies_hz(self) -> np.ndarray:
+        """The analysis grid, (F,) Hz (grid.frequency_grid)."""
+        return frequency_grid(self.stage, self.options.points)
+
+    def open_loop_gains(self, frequencies: np.ndarray) -> np.ndarray:
+        """A_k(j 2 pi f) of every op-amp: (F, K) complex."""
+        s = 2j * np.pi * np.asarray(frequencies)
+        blocks = self.circuit.gain_blocks
+        if len(blocks) == 1:
+            return blocks[0].gain(s)[:, None]
+        return np.stack([block.gain(s) for block in blocks], axis=1) if blocks else \
+            np.zeros((s.size, 0), dtype=complex)
+
+    # -- excitations -------------------------------------------------------------------
+    def excitation_vector(self, name) -> np.ndarray:
+        """The right-hand side (n,) of one excitation (AC or DC)."""
+        circuit = self.circuit
+        name = _named(name)
+        vector = np.zeros(circuit.size)
+        kind, key = name
+        if kind == "source":
+            if key in circuit.source_branch:
+                vector[circuit.row_of_branch(circuit.source_branch[key])] = 1.0
+            else:
+                vector[circuit.row_of_node(circuit.source_node[key])] = 1.0
+        elif kind == "output":
+            out = circuit.node(self.stage.output_net)
+            if out:
+                vector[circuit.row_of_node(out)] = 1.0
+        elif kind in ("loop", "vos"):
+            block = next(b for b in circuit.gain_blocks if b.ref == key)
+            row = circuit.row_of_branch(circuit.gain_branch[key])
+            vector[row] = block.open_loop_gain if kind == "vos" else 1.0
+        elif kind in ("ib+", "ib-"):
+            block = next(b for b in circuit.gain_blocks if b.ref == key)
+            node = block.in_pos if kind == "ib+" else block.in_neg
+            if node:
+                vector[node - 1] = -1.0
+        elif kind == "supply":
+            vector[circuit.row_of_branch(circuit.supply_branch[key])] = 1.0
+        else:
+            raise ValueError(f"{name!r} is not an excitation")
+        return vector
+
+    def excitations(self, names) -> np.ndarray:
+        """Right-hand sides (n, m) of ``names``."""
+        return np.stack([self.excitation_vector(name) for name in names], axis=1)
+
+    @cached_property
+    def grid_excitations(self) -> tuple[Excitation, ...]:
+        """The excitations of the grid solve, in column order."""
+        names = [Excitation.source(i) for i in range(len(self.stage.sources))]
+        names.append(OUTPUT)
+        names.extend(Excitation.loop(block.ref) for block in self.circuit.gain_blocks)
+        return tuple(names)
+
+    @cached_property
+    def _grid_index(self) -> dict[Excitation, int]:
+        return {name: k for k, name in enumerate(self.grid_excitations)}
+
+    def column(self, name) -> int:
+        """The column of excitation ``name`` in the grid solution."""
+        try:
+            return self._grid_index[_named(name)]
+        except (KeyError, TypeError):
+            raise ValueError(f"{name!r} is not a column of the grid solve") from None
+
+    # -- AC solves ---------------------------------------------------------------------
+    @cached_property
+    def ac_matrices(self) -> Matrices:
+        """G, C and the gain-block pattern of the AC system (floating nets tied)."""
+        return assemble(self.circuit, self.unreferenced(at_dc=False))
+
+    @cached_property
+    def reduced(self) -> tuple[Matrices, np.ndarray, np.ndarray]:
+        """The AC system without the supply rails (see mna.without_rails): (matrices,
+        kept unknowns, dropped unknowns)."""
+        return without_rails(self.ac_matrices, self.circuit)
+
+    def solve(self, frequencies: np.ndarray, B: np.ndarray) -> np.ndarray:
+        """Solve the AC system at ``frequencies`` (F,) for right-hand sides ``B``, either
+        (n, m) for every frequency or (F, n, m); returns X (F, n, m)."""
+        self.require_solvable()
+        frequencies = np.asarray(frequencies, dtype=float)
+        s = 2j * np.pi * frequencies
+        gains = self.open_loop_gains(frequencies)
+        matrices, keep, dropped = self.reduced
+        n = self.circuit.size
+        if not dropped.size or B[..., dropped, :].any():
+            # nothing to drop, or an excitation on a rail: solve the whole system
+            Y = system_stack(self.ac_matrices, gains, s)
+            if B.ndim == 2:
+                B = np.broadcast_to(B, (frequencies.size,) + B.shape)
+            return solve(Y, B)
+        Y = system_stack(matrices, gains, s)
+        B = B[..., keep, :]
+        if B.ndim == 2:
+            B = np.broadcast_to(B, (frequencies.size,) + B.shape)
+        X = np.zeros((frequencies.size, n, B.shape[-1]), dtype=complex)
+        X[:, keep, :] = solve(Y, B)
+        return X
+
+    def solve_excitations(self, frequencies: np.ndarray, names) -> np.ndarray:
+        """X (F, n, len(names)) for the named excitations at ``frequencies``."""
+        return self.solve(frequencies, self.excitations(names))
+
+    @cached_property
+    def grid(self) -> np.ndarray:
+        """X (F, n, m) over the grid for every grid excitation."""
+        return self.solve(self.frequencies_hz, self.excitations(self.grid_excitations))
+
+    @property
+    def grid_solved(self) -> bool:
+        """True once the grid solve has been paid for (what-if figures may reuse it)."""
+        return "grid" in self.__dict__
+
+    def net_response(self, X: np.ndarray, net: str, column: int) -> np.ndarray:
+        """V(net) in column ``column`` of a solution X (F, n, m): (F,)."""
+        return pick(X, self.circuit.node(net), column)
+
+    def node_response(self, net: str, name) -> np.ndarray:
+        """AC voltage at ``net`` over the grid per unit of excitation ``name``."""
+        return self.net_response(self.grid, net, self.column(name))
+
+    def branch_response(self, branch: int, name) -> np.ndarray:
+        """The current of branch ``branch`` over the grid per unit of ``name`` (F,)."""
+        return self.grid[:, self.circuit.row_of_branch(branch), self.column(name)]
+
+    def unit_currents(self, pairs: list[tuple[int, int]]) -> np.ndarray:
+        """Right-hand sides (n, k): 1 A into node a and out of node b for each pair (the
+        vectors u = e_a - e_b of a two-terminal element's stamp)."""
+        U = np.zeros((self.circuit.size, len(pairs)))
+        for j, (a, b) in enumerate(pairs):
+            if a:
+                U[a - 1, j] += 1.0
+            if b:
+                U[b - 1, j] -= 1.0
+        return U
+
+    # -- the DC solve ------------------------------------------------------------------
+    @cached_property
+    def dc_excitations(self) -> tuple[Excitation, ...]:
+        circuit = self.circuit
+        names = [Excitation("supply", net) for net in circuit.supply_branch]
+        names.extend(Excitation.source(i) for i in range(len(self.stage.sources)))
+        for block in circuit.gain_blocks:
+            names.extend([Excitation("vos", block.ref), Excitation("ib+", block.ref),
+                          Excitation("ib-", block.ref), Excitation.loop(block.ref)])
+        return tuple(names)
+
+    def dc_system(self) -> np.ndarray:
+        """The DC system matrix Y(0), real (n, n) (floating nets tied)."""
+        matrices = assemble(self.circuit, self.unreferenced(at_dc=True))
+        gains = self.open_loop_gains(np.zeros(1)).real
+        return system_stack(matrices, gains, np.zeros(1)).real[0]
+
+    @cached_property
+    def dc(self) -> np.ndarray:
+        """X (n, m') at DC for every DC excitation, in dc_excitations order."""
+        self.require_solvable()
+        B = self.excitations(self.dc_excitations)
+        return solve(self.dc_system()[None], B[None])[0]
+
+    @cached_property
+    def _dc_table(self):
+        """The DC solution as Python floats, for the many single reads of dc_transfer."""
+        index = {name: k for k, name in enumerate(self.dc_excitations)}
+        return index, self.dc.tolist()
+
+    def dc_column(self, name) -> int:
+        return self._dc_table[0][_named(name)]
+
+    def dc_transfer(self, net: str, name) -> float:
+        """DC voltage at ``net`` per unit of excitation ``name``."""
+        index, rows = self._dc_table
+        node = self.circuit.node(net)
+        return 0.0 if node == 0 else rows[node - 1][index[_named(name)]]
+
+    def dc_unknown(self, row: int, name) -> float:
+        """Unknown ``row`` (a node voltage or a branch current) at DC per unit of
+        ``name``."""
+        index, rows = self._dc_table
+        return rows[row][index[_named(name)]]
