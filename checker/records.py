@@ -6,7 +6,9 @@ alone.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+
+from checker.findings import Finding, Severity
 
 MET = "met"
 NOT_MET = "not-met"
@@ -123,3 +125,43 @@ class StageSheet:
     elements: tuple[ElementRow, ...] = ()
     plots: tuple[Plot, ...] = ()
     notes: tuple[str, ...] = ()
+
+
+@dataclass
+class StageResult:
+    """What a report needs of one stage: small and picklable (no model, no arrays), so a
+    worker process can send it back and a long audit keeps little in memory."""
+
+    name: str
+    line: int
+    findings: list[Finding]
+    summary: dict = field(default_factory=dict)  # key figures, SI floats or None
+    amplifiers: dict = field(default_factory=dict)  # per op-amp figures
+    verdicts: list[Verdict] = field(default_factory=list)  # one per stated requirement
+    cautions: list[Caution] = field(default_factory=list)  # safety cautions, always
+    sheet: StageSheet | None = None  # element list and plots, for the HTML review only
+
+
+@dataclass
+class FileResult:
+    path: str
+    problems: list[Finding] = field(default_factory=list)  # input-invalid findings
+    stages: list[StageResult] = field(default_factory=list)
+
+    def findings(self) -> list[Finding]:
+        found = list(self.problems)
+        for result in self.stages:
+            found.extend(result.findings)
+        return sorted(found, key=Finding.sort_key)
+
+    def cautions(self) -> list[Caution]:
+        """Every stage's safety cautions, in file order."""
+        found = [caution for result in self.stages for caution in result.cautions]
+        return sorted(found, key=Caution.sort_key)
+
+
+def count_by_severity(findings: list[Finding]) -> dict[str, int]:
+    counts = {severity.label: 0 for severity in sorted(Severity, reverse=True)}
+    for finding in findings:
+        counts[finding.severity.label] += 1
+    return counts

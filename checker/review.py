@@ -4,7 +4,6 @@ reporters render. Never raises for a bad file: its problems become findings."""
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -16,42 +15,8 @@ from checker.analysis.signal import stage_signals
 from checker.analysis.topology import classify
 from checker.engine import Rule, RunOptions, check_file_stages
 from checker.files import load_file
-from checker.findings import Finding, Severity
 from checker.model import OpAmpPart, Stage
-from checker.records import Caution, StageSheet, Verdict
-
-
-@dataclass
-class StageResult:
-    """What a report needs of one stage: small and picklable (no model, no arrays), so a
-    worker process can send it back and a long audit keeps little in memory."""
-
-    name: str
-    line: int
-    findings: list[Finding]
-    summary: dict = field(default_factory=dict)  # key figures, SI floats or None
-    amplifiers: dict = field(default_factory=dict)  # per op-amp figures
-    verdicts: list[Verdict] = field(default_factory=list)  # one per stated requirement
-    cautions: list[Caution] = field(default_factory=list)  # safety cautions, always
-    sheet: StageSheet | None = None  # element list and plots, for the HTML review only
-
-
-@dataclass
-class FileResult:
-    path: str
-    problems: list[Finding] = field(default_factory=list)  # input-invalid findings
-    stages: list[StageResult] = field(default_factory=list)
-
-    def findings(self) -> list[Finding]:
-        found = list(self.problems)
-        for result in self.stages:
-            found.extend(result.findings)
-        return sorted(found, key=Finding.sort_key)
-
-    def cautions(self) -> list[Caution]:
-        """Every stage's safety cautions, in file order."""
-        found = [caution for result in self.stages for caution in result.cautions]
-        return sorted(found, key=Caution.sort_key)
+from checker.records import FileResult, StageResult, StageSheet, count_by_severity  # noqa: F401
 
 
 def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
@@ -189,10 +154,3 @@ def _pole_figures(figures: Figures) -> dict:
                       pole_damping=_finite(pair.damping), pole_q=_finite(pair.q),
                       step_overshoot=_finite(pair.overshoot), peaking_db=_finite(pair.peaking_db))
     return result
-
-
-def count_by_severity(findings: list[Finding]) -> dict[str, int]:
-    counts = {severity.label: 0 for severity in sorted(Severity, reverse=True)}
-    for finding in findings:
-        counts[finding.severity.label] += 1
-    return counts

@@ -30,7 +30,7 @@ from checker.findings import Finding, Severity
 from checker.records import DEFERRAL, MET, NOT_MET
 from checker.report import Writer as BaseWriter
 from checker.report.context import ReportContext
-from checker.review import FileResult, StageResult, count_by_severity
+from checker.records import FileResult, StageResult, count_by_severity
 from checker.units import format_si
 
 MARKER = '<meta name="generator" content="ampcheck'  # an index page of ours begins so

@@ -15,7 +15,7 @@ from checker.records import BASES, STATUSES, Caution, Verdict
 from checker.report.context import ReportContext
 from checker.report import Writer as BaseWriter
 from checker.report.finite import finite_json
-from checker.review import FileResult
+from checker.records import FileResult
 
 FORMAT_NAME = "ampcheck-report"
 FORMAT_VERSION = 3

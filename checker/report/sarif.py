@@ -17,13 +17,13 @@ import json
 import os
 
 from checker.cautions import KINDS as CAUTION_KINDS
-from checker.engine import ENGINE_RULES, ENGINE_SEVERITIES
+from checker.catalogue import ENGINE_RULES, ENGINE_SEVERITIES
 from checker.findings import Finding, Severity
 from checker.records import CAUTION_TAG, Caution
 from checker.report import Writer as BaseWriter
 from checker.report.context import ReportContext
 from checker.report.finite import finite_json
-from checker.review import FileResult
+from checker.records import FileResult
 
 LEVEL = {Severity.ERROR: "error", Severity.WARNING: "warning", Severity.INFO: "note"}
 SCHEMA_URI = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/sarif-schema-2.1.0.json"

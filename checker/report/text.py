@@ -14,7 +14,7 @@ from checker.findings import Finding, Severity
 from checker.records import DEFERRAL, MET, NOT_MET, Caution, Verdict
 from checker.report.context import ReportContext
 from checker.report import Writer as BaseWriter
-from checker.review import FileResult, StageResult, count_by_severity
+from checker.records import FileResult, StageResult, count_by_severity
 from checker.units import format_si
 
 STYLE = {Severity.ERROR: "bold red", Severity.WARNING: "yellow", Severity.INFO: "cyan"}
