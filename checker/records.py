@@ -140,6 +140,7 @@ class StageResult:
     verdicts: list[Verdict] = field(default_factory=list)  # one per stated requirement
     cautions: list[Caution] = field(default_factory=list)  # safety cautions, always
     sheet: StageSheet | None = None  # element list and plots, for the HTML review only
+    gain_unit: str = "V/V"  # the summary gain's unit: "Ω" (V/A) from a current source
 
 
 @dataclass

@@ -42,8 +42,15 @@ def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
                                          summary, amplifiers, check.verdicts,
                                          check.cautions,
                                          _sheet(stage, stage_figures, check, options,
-                                                catalogue, plots_wanted)))
+                                                catalogue, plots_wanted),
+                                         _gain_unit(stage)))
     return result
+
+
+def _gain_unit(stage: Stage) -> str:
+    """The summary gain's unit: that of the first signal (analysis/signal.py), V/A from
+    a current source (a transimpedance, printed in Ω), V/V otherwise."""
+    return "Ω" if stage.sources and stage.sources[0].kind == "current" else "V/V"
 
 
 def _sheet(stage, figures, check, options, catalogue, plots_wanted) -> StageSheet | None:

@@ -283,6 +283,17 @@ _FORMAT_PREFIXES = [
 ]
 
 
+def format_gain(value: float, digits: int = 4) -> str:
+    """A dimensionless gain or ratio as a plain number, never an exponent from 1e-4 to
+    1e12: -9.8031 -> '-9.803', -18412.7 -> '-18410' (``digits`` significant)."""
+    magnitude = abs(value)
+    if not math.isfinite(value) or magnitude == 0 or magnitude >= 1e12 or magnitude < 1e-4:
+        return f"{value:.{digits}g}"
+    if magnitude >= 10 ** digits:  # more integer digits than asked: round, print whole
+        return f"{float(f'{value:.{max(digits - 1, 0)}e}'):.0f}"
+    return f"{value:.{digits}g}"
+
+
 def format_si(value: float | None, unit: str = "", digits: int = 3) -> str:
     """Format an SI float in engineering notation: 4700 -> '4.7 kΩ' (unit 'Ω')."""
     if value is None:
@@ -292,7 +303,9 @@ def format_si(value: float | None, unit: str = "", digits: int = 3) -> str:
     if unit in ("", "%", "°", "dB", "V/V"):
         if unit == "%":
             return f"{value * 100:.{digits}g} %"
-        return f"{value:.{digits}g}{' ' + unit if unit else ''}"
+        if unit in ("", "V/V"):
+            return f"{format_gain(value, digits)}{' ' + unit if unit else ''}"
+        return f"{value:.{digits}g} {unit}"
     magnitude = abs(value)
     if magnitude == 0:
         return f"0 {unit}"

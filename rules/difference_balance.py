@@ -12,7 +12,7 @@ from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.limits import reaches
 from checker.requirements import differential_pair, rejection_spread
-from checker.units import format_si
+from checker.units import format_gain, format_si
 
 MATCH_STEPS = (0.001, 0.0025, 0.005, 0.01, 0.02, 0.05)  # stock resistor tolerances
 
@@ -100,7 +100,7 @@ def difference_balance(view):
     nominal = ("infinite" if math.isinf(solver.nominal_cmrr)
                else f"{_db(solver.nominal_cmrr):.1f} dB")
     message = (f"{amp.ref} (difference) rejects common-mode signals by only"
-               f" {_db(worst.cmrr):.1f} dB ({worst.cmrr:.3g}) {how} of its resistors"
+               f" {_db(worst.cmrr):.1f} dB ({format_gain(worst.cmrr, 3)}) {how} of its resistors"
                f" ({listed}; {gains}), below {against} {limit_db:.1f} dB; nominal"
                f" {nominal}"
                + (f"; {share * 100:.1f} % of {int(settings['samples'])} Monte Carlo boards"
@@ -133,7 +133,7 @@ def _suggest(solver, refs, tolerances, limit, options) -> Suggestion:
                 return Suggestion(
                     f"use matched {format_si(step, '%')} resistors for {', '.join(changed)}"
                     f"{also}: the solved worst corner then rejects {_db(worst.cmrr):.1f} dB"
-                    f" ({worst.cmrr:.3g}), reaching {_db(limit):.1f} dB",
+                    f" ({format_gain(worst.cmrr, 3)}), reaching {_db(limit):.1f} dB",
                     value=step, unit="%", changes=(SetTolerance(tuple(changed), step),))
     nominal = ("infinite" if math.isinf(solver.nominal_cmrr)
                else f"{_db(solver.nominal_cmrr):.1f} dB")

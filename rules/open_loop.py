@@ -9,7 +9,7 @@ from checker.engine import rule
 from checker.findings import Suggestion
 from checker.preferred import nearest
 from checker.rules._feedback import looks_swapped
-from checker.units import format_si
+from checker.units import format_gain, format_si
 
 
 @rule("open-loop", "warning",
@@ -67,7 +67,7 @@ def open_loop(view):
             text += "; keep the hysteresis network on the comparator"
         topology = classify(stage, opamp, loop.feedback)
         yield view.finding(
-            f"{opamp.ref} has {kind} (loop gain at DC {loop.loop_gain_dc:.3g}): it is used as"
+            f"{opamp.ref} has {kind} (loop gain at DC {format_gain(loop.loop_gain_dc, 3)}): it is used as"
             f" a comparator ({topology.name}); its output will sit at a rail, recover slowly,"
             " and is not a logic level",
             opamp.origin, elements=(opamp.ref,), measured=loop.loop_gain_dc, limit=1.0,

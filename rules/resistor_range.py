@@ -11,7 +11,7 @@ from checker.engine import rule
 from checker.findings import Suggestion
 from checker.limits import above, below
 from checker.rules._resistor_networks import best_factor, gain_kept, network_of, scaled
-from checker.units import format_si
+from checker.units import format_gain, format_si
 
 
 @rule("resistor-range", "warning",
@@ -185,7 +185,7 @@ def _scale(view, network, limits, flagged) -> tuple[Suggestion, dict[str, float]
     if k_min > k_max:
         return Suggestion(f"no single factor puts every one of {refs} within its limits"
                           f" (it would have to be at least {k_min:.3g} and at most"
-                          f" {k_max:.3g}): the ratio is too wide for one stage; use a"
+                          f" {format_gain(k_max, 3)}): the ratio is too wide for one stage; use a"
                           " T-network or split the gain over two stages"), None
     tolerance = stage.require.gain_tolerance or settings["gain_tolerance"]
     # A current limit moves with the rounded gain: leave it the gain tolerance of room.

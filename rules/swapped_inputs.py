@@ -9,6 +9,7 @@ from checker.changes import SwapInputs, apply_changes
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.rules._feedback import CLOSED_LOOP_REQUIREMENTS, looks_swapped
+from checker.units import format_gain
 
 
 @rule("swapped-inputs", "error",
@@ -52,7 +53,7 @@ def swapped_inputs(view):
         why = (f"the stage states {', '.join(stated)}" if stated
                else f"its output is wired straight to in+ ({opamp.in_pos})")
         yield view.finding(
-            f"{opamp.ref}'s loop is regenerative (loop gain at DC {loop.loop_gain_dc:.3g}:"
+            f"{opamp.ref}'s loop is regenerative (loop gain at DC {format_gain(loop.loop_gain_dc, 3)}:"
             f" positive feedback), but {why}: in+ ({opamp.in_pos}) and in- ({opamp.in_neg})"
             " look swapped; the output will latch at a rail",
             opamp.origin, elements=(opamp.ref,), measured=loop.loop_gain_dc, limit=1.0,
@@ -69,7 +70,7 @@ def _swap(view, opamp) -> Suggestion:
         if not loop.negative_somewhere:
             return Suggestion(text + "; solved, the loop still has no negative feedback:"
                               " look for another wiring mistake", element=opamp.ref)
-        text += f"; solved, the loop then has negative feedback (loop gain at DC {loop.loop_gain_dc:.3g})"
+        text += f"; solved, the loop then has negative feedback (loop gain at DC {format_gain(loop.loop_gain_dc, 3)})"
         signals = stage_signals(result)
         if signals and signals[0].unit == "V/V":
             text += f" and the gain from {signals[0].label} is {signed_gain(signals[0].gain):.4g}"

@@ -221,9 +221,20 @@ def test_format_si_writes_a_fraction_as_percent():
     assert format_si(0.01, "%") == "1 %"
 
 
-def test_format_si_keeps_a_ratio_unprefixed():
-    # three significant digits of 1e5 in general format
-    assert format_si(1e5, "V/V") == "1e+05 V/V"
+def test_format_si_keeps_a_ratio_unprefixed_and_plain():
+    # a gain keeps no prefix and no exponent: 1e5 V/V written out (project's own layout)
+    assert format_si(1e5, "V/V") == "100000 V/V"
+    assert format_si(99990.0, "", digits=4) == "99990"
+
+
+def test_format_gain_is_a_plain_number():
+    # project's own layout: 4 significant digits, no exponent between 1e-4 and 1e12
+    from checker.units import format_gain
+    assert format_gain(-9.8031) == "-9.803"
+    assert format_gain(-18412.7) == "-18410"
+    assert format_gain(1090.4, digits=3) == "1090"
+    assert format_gain(1e7) == "10000000"
+    assert format_gain(2.5e-5) == "2.5e-05"  # below 1e-4 the exponent is clearer
 
 
 def test_format_si_honours_the_number_of_digits():

@@ -31,6 +31,7 @@ from checker.records import DEFERRAL, MET, NOT_MET
 from checker.report import Writer as BaseWriter
 from checker.report.context import ReportContext
 from checker.records import FileResult, StageResult, count_by_severity
+from checker.report.values import measure, measured_line, stage_gain
 from checker.units import format_si
 
 MARKER = '<meta name="generator" content="ampcheck'  # an index page of ours begins so
@@ -63,19 +64,6 @@ def slug(text: str) -> str:
     return re.sub(r"[^a-z0-9]+", "-", text.lower()).strip("-")[:60] or "stage"
 
 
-def _value(value: float | None, unit: str | None) -> str:
-    if value is None:
-        return "—"
-    if unit == "°":
-        return f"{value:.1f}°"
-    if unit == "dB":
-        return f"{value:.2f} dB"
-    if unit == "V/V":
-        return f"{value:.4g}"
-    if unit == "V/s":
-        return f"{value / 1e6:.3g} V/µs"
-    return format_si(value, unit or "")
-
 
 def _finding(finding: Finding) -> dict:
     s = finding.suggestion
@@ -83,10 +71,7 @@ def _finding(finding: Finding) -> dict:
     if s is not None:
         fix = {"text": s.text, "withheld": s.withheld,
                "check": s.check.summary() if s.check is not None else None}
-    measured = None
-    if finding.measured is not None or finding.limit is not None:
-        measured = (f"measured {_value(finding.measured, finding.unit)}, limit"
-                    f" {_value(finding.limit, finding.unit)}")
+    measured = measured_line(finding.measured, finding.limit, finding.unit)
     return {"severity": finding.severity.label, "rule": finding.rule,
             "message": finding.message, "elements": ", ".join(finding.elements),
             "where": f"{finding.path}:{finding.line}:{finding.column}", "measured": measured,
@@ -97,23 +82,23 @@ VERDICT_MARKS = {MET: "✓", NOT_MET: "✗"}
 
 
 def _verdict(verdict) -> dict:
-    measured = _value(verdict.measured, verdict.unit) if verdict.measured is not None else None
+    measured = measure(verdict.measured, verdict.unit) if verdict.measured is not None else None
     return {"status": verdict.status, "mark": VERDICT_MARKS.get(verdict.status, "?"),
             "requirement": verdict.requirement, "required": verdict.required,
             "statement": verdict.statement, "reason": verdict.reason, "measured": measured,
             "explained_by": ", ".join(verdict.explained_by)}
 
 
-def _figures(summary: dict) -> list[tuple[str, str]]:
+def _figures(summary: dict, gain_unit: str = "V/V") -> list[tuple[str, str]]:
     """The stage's key figures as (name, value) pairs, for its heading."""
     s = summary
     rows = []
     if s.get("topology"):
         rows.append(("topology", s["topology"]))
     if s.get("gain") is not None:
-        gain = f"{s['gain']:.4g}"
+        gain = stage_gain(s["gain"], gain_unit)
         if s.get("gain_from_net") is not None:
-            gain += f" (from its net {s['gain_from_net']:.4g})"
+            gain += f" (from its net {stage_gain(s['gain_from_net'], gain_unit)})"
         rows.append(("gain", gain))
     for key, name, unit in (("input_resistance", "input resistance", "Ω"),
                             ("bandwidth", "bandwidth", "Hz"),
@@ -139,8 +124,7 @@ def _caution(caution) -> dict:
     measured = None
     if caution.measured is not None:
         kind = "DC" if caution.basis == "dc" else "AC peak"
-        measured = (f"measured {_value(caution.measured, caution.unit)}, limit"
-                    f" {_value(caution.limit, caution.unit)} {kind}")
+        measured = f"{measured_line(caution.measured, caution.limit, caution.unit)} {kind}"
     return {"caution": caution.caution, "statement": caution.statement,
             "where": f"{caution.path}:{caution.line}:{caution.column}",
             "stage": caution.stage, "elements": ", ".join(caution.elements),
@@ -233,7 +217,7 @@ class Writer(BaseWriter):
                                        "not_met": counted.get(NOT_MET, 0),
                                        "unchecked": len(stage.verdicts) - counted.get(MET, 0)
                                        - counted.get(NOT_MET, 0)},
-                "figures": _figures(stage.summary), "verdicts": verdicts,
+                "figures": _figures(stage.summary, stage.gain_unit), "verdicts": verdicts,
                 "cautions": [_caution(c) for c in stage.cautions], "deferral": DEFERRAL,
                 "findings": [_finding(f) for f in sorted(stage.findings, key=Finding.sort_key)],
                 "elements": list(sheet.elements) if sheet else [],

@@ -15,12 +15,17 @@ from checker.records import DEFERRAL, MET, NOT_MET, Caution, Verdict
 from checker.report.context import ReportContext
 from checker.report import Writer as BaseWriter
 from checker.records import FileResult, StageResult, count_by_severity
+from checker.report.wrap import print_wrapped
+from checker.report.values import measure, measured_line, stage_gain
 from checker.units import format_si
 
 STYLE = {Severity.ERROR: "bold red", Severity.WARNING: "yellow", Severity.INFO: "cyan"}
 HEADING = {Severity.ERROR: "Errors", Severity.WARNING: "Warnings", Severity.INFO: "Notes"}
 MARK = {Severity.ERROR: "✗", Severity.WARNING: "!", Severity.INFO: "·"}
 CAUTION_STYLE, CAUTION_MARK = "bold magenta", "⚠"
+STAGE_LEGEND = ("  (✓ clean · ✗ an error or an unmet requirement · ! warnings · · notes only"
+                f" · {CAUTION_MARK} a safety caution; requirements: ✓ met · ✗ not met ·"
+                " ? could not check)")
 STAGE_LINES_LIMIT = 60  # above this, the per-stage lines give way to the audit summary
 WORST = 5
 
@@ -66,19 +71,6 @@ def _audit_summary(console: Console, results: list[FileResult], every: list[Find
     console.print()
 
 
-def _value(value: float | None, unit: str | None) -> str:
-    if value is None:
-        return "—"
-    if unit == "°":
-        return f"{value:.1f}°"
-    if unit == "dB":
-        return f"{value:.2f} dB"
-    if unit == "V/V":  # a gain: a plain number
-        return f"{value:.4g}"
-    if unit == "V/s":  # the trade quotes slew rates in V/µs
-        return f"{value / 1e6:.3g} V/µs"
-    return format_si(value, unit or "")
-
 
 def _finding(console: Console, finding: Finding) -> None:
     head = Text("  ")
@@ -93,11 +85,11 @@ def _finding(console: Console, finding: Finding) -> None:
         head.append(f"  waived: {finding.waiver}", style="dim")
     elif finding.baselined:
         head.append("  in baseline", style="dim")
-    console.print(head)
-    console.print(Text("      " + finding.message))
-    if finding.measured is not None or finding.limit is not None:
-        console.print(Text(f"      measured {_value(finding.measured, finding.unit)},"
-                           f" limit {_value(finding.limit, finding.unit)}", style="dim"))
+    print_wrapped(console, head, hang=6)
+    print_wrapped(console, Text("      " + finding.message))
+    measured = measured_line(finding.measured, finding.limit, finding.unit)
+    if measured is not None:
+        print_wrapped(console, Text(f"      {measured}", style="dim"))
     if finding.suggestion is not None:
         suggestion = finding.suggestion
         if suggestion.withheld:
@@ -107,16 +99,16 @@ def _finding(console: Console, finding: Finding) -> None:
         else:
             line = Text("      fix: ", style="green")
             line.append(suggestion.text)
-        console.print(line)
+        print_wrapped(console, line)
         if suggestion.check is not None:
-            console.print(Text("      " + suggestion.check.summary(), style="dim"))
+            print_wrapped(console, Text("      " + suggestion.check.summary(), style="dim"))
 
 
 def _cautions(console: Console, cautions: list[Caution]) -> None:
     """The run's safety cautions under their own heading, before any finding; the
     deferral once, then each caution (acknowledged ones marked with their reason)."""
     console.print(Text(f"Cautions ({len(cautions)})", style=CAUTION_STYLE))
-    console.print(Text(f"  {DEFERRAL[0].upper()}{DEFERRAL[1:]}.", style=CAUTION_STYLE))
+    print_wrapped(console, Text(f"  {DEFERRAL[0].upper()}{DEFERRAL[1:]}.", style=CAUTION_STYLE))
     for caution in cautions:
         head = Text("  ")
         head.append(f"{caution.path}:{caution.line}:{caution.column}", style="bold")
@@ -127,13 +119,12 @@ def _cautions(console: Console, cautions: list[Caution]) -> None:
             head.append(f"  [{', '.join(caution.elements)}]", style="dim")
         if caution.acknowledged is not None:
             head.append(f"  acknowledged: {caution.acknowledged}", style="dim")
-        console.print(head)
-        console.print(Text("      " + caution.statement))
+        print_wrapped(console, head, hang=6)
+        print_wrapped(console, Text("      " + caution.statement))
         if caution.measured is not None:
             kind = "DC" if caution.basis == "dc" else "AC peak"
-            console.print(Text(f"      measured {_value(caution.measured, caution.unit)},"
-                               f" limit {_value(caution.limit, caution.unit)} {kind}",
-                               style="dim"))
+            measured = measured_line(caution.measured, caution.limit, caution.unit)
+            print_wrapped(console, Text(f"      {measured} {kind}", style="dim"))
     console.print()
 
 
@@ -148,7 +139,7 @@ def _verdict(line: Text, verdict: Verdict) -> None:
     line.append(mark, style=style)
     line.append(f" {verdict.requirement} {verdict.required}")
     if verdict.not_met and verdict.measured is not None:
-        line.append(f" ({_value(verdict.measured, verdict.unit)})", style=style)
+        line.append(f" ({measure(verdict.measured, verdict.unit)})", style=style)
     elif verdict.unchecked:
         line.append(" (could not check)", style="dim")
 
@@ -159,7 +150,7 @@ def _verdict_line(console: Console, verdicts: list[Verdict]) -> None:
         if i:
             line.append(" · ")
         _verdict(line, verdict)
-    console.print(line)
+    print_wrapped(console, line)
 
 
 def _stage_line(console: Console, result: FileResult) -> None:
@@ -179,9 +170,9 @@ def _stage_line(console: Console, result: FileResult) -> None:
         line.append(f"  {result.path}:{item.line}", style="dim")
         parts = [s.get("topology") or "?"]
         if s.get("gain") is not None:
-            gain = f"gain {s['gain']:.4g}"
+            gain = f"gain {stage_gain(s['gain'], item.gain_unit)}"
             if s.get("gain_from_net") is not None:
-                gain += f" (from its net {s['gain_from_net']:.4g})"
+                gain += f" (from its net {stage_gain(s['gain_from_net'], item.gain_unit)})"
             parts.append(gain)
         if s.get("input_resistance") is not None:
             parts.append(f"Rin {format_si(s['input_resistance'], 'Ω')}")
@@ -197,7 +188,7 @@ def _stage_line(console: Console, result: FileResult) -> None:
         if s.get("output_low") is not None:
             parts.append(f"out {format_si(s['output_low'], 'V')} … {format_si(s['output_high'], 'V')}")
         line.append("  " + " · ".join(parts))
-        console.print(line)
+        print_wrapped(console, line, hang=6)
         if item.verdicts:
             _verdict_line(console, item.verdicts)
 
@@ -217,7 +208,8 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
         console.print()
     stage_total = sum(len(result.stages) for result in results)
     if 0 < stage_total <= STAGE_LINES_LIMIT:
-        console.print(Text("Stages", style="bold"))
+        print_wrapped(console, Text("Stages", style="bold").append(STAGE_LEGEND, style="dim"),
+                      hang=2)
         for result in results:
             _stage_line(console, result)
         console.print()
@@ -267,7 +259,8 @@ class Writer(BaseWriter):
         keep_figures = self.stage_count <= STAGE_LINES_LIMIT
         stages = [StageResult(s.name, s.line, s.findings,
                               s.summary if keep_figures else {}, {},
-                              s.verdicts if keep_figures else [], s.cautions)
+                              s.verdicts if keep_figures else [], s.cautions,
+                              gain_unit=s.gain_unit)
                   for s in result.stages]
         self.kept.append(FileResult(result.path, result.problems, stages))
 
