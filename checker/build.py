@@ -16,9 +16,10 @@ from checker.io.positions import InputErrors, InputProblem, Path, locate
 from checker.model import (PART_ATTRIBUTES, REQUIREMENT_ATTRIBUTES, Load, OpAmp, OpAmpPart,
                            Origin, Passive, Requirements, Source, Stage, Supply, Waiver)
 from checker.stage_limits import MAX_PARTS, MAX_STAGES, stage_too_large
-from checker.units import UnitError, check_plausible, parse_value
+from checker.units import UnitError, check_plausible, format_si, parse_value
 
 MAX_NET_HINTS = 20  # "did you mean" hints per stage: each costs a fuzzy search
+MAX_RANGED_SUPPLIES = 3  # supplies with a range per stage: 2^n combinations of ends are checked
 
 # Passive values must be positive; these kinds of parameter must not be negative.
 _NON_NEGATIVE = {"resistance", "capacitance", "inductance", "frequency", "current",
@@ -97,8 +98,13 @@ class _Builder:
                 self.fail(item_path, f"supply {item['net']} is the ground net of {where};"
                                      " the ground is 0 V by definition")
             elif voltage is not None:
+                ends = self.supply_range(item, voltage, item_path)
                 supplies.append(Supply(item["net"], voltage, self.origin(item_path),
-                                       mains=item.get("mains")))
+                                       mains=item.get("mains"), low_v=ends[0], high_v=ends[1]))
+        if sum(1 for s in supplies if s.ranged) > MAX_RANGED_SUPPLIES:
+            self.fail(path, f"{where} gives a range to more than {MAX_RANGED_SUPPLIES}"
+                            " supplies; each combination of their ends is checked, so give"
+                            " ranges to the supplies that move most")
         opamps = [self.opamp(item, path + ("opamps", i), parts)
                   for i, item in enumerate(node.get("opamps", []))]
         passives = []
@@ -221,6 +227,29 @@ class _Builder:
                       label=node.get("label"), low=low, high=high, amplitude=amplitude,
                       band_low_hz=band_low, band_high_hz=band_high,
                       impedance_ohm=impedance, capacitance_f=capacitance)
+
+    def supply_range(self, item: dict, voltage: float, path: Path
+                     ) -> tuple[float | None, float | None]:
+        """(low, high) of a supply's (range LOW HIGH), which must hold its nominal voltage
+        and keep its sign; (None, None) without a range or when it is refused."""
+        if "range" not in item:
+            return None, None
+        where = f"supply {item['net']}"
+        ends = [self.pair_value(item["range"], i, "voltage", path + ("range",), where)
+                for i in range(2)]
+        if None in ends:
+            return None, None
+        low, high = min(ends), max(ends)
+        if not low <= voltage <= high:
+            self.fail(path + ("range",), f"the range of {where} ({format_si(low, 'V')} to"
+                                         f" {format_si(high, 'V')}) must hold its nominal"
+                                         f" {format_si(voltage, 'V')}")
+            return None, None
+        if low < 0 < high:
+            self.fail(path + ("range",), f"the range of {where} crosses 0 V; a rail keeps"
+                                         " its sign")
+            return None, None
+        return low, high
 
     def pair_value(self, pair: list, i: int, kind: str, path: Path, where: str) -> float | None:
         try:

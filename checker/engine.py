@@ -29,6 +29,7 @@ from checker.findings import Finding, FixCheck, Severity, Suggestion
 from checker.model import Origin, Stage
 from checker.records import Caution, Verdict
 from checker.requirements import judge_requirements
+from checker.supply_ends import merged_cautions, merged_findings, merged_verdicts, supply_ends
 
 # Enough points to bracket each loop crossover, which is then refined on a local grid:
 # for a copy of a stage that a rule reads only phase margins from.
@@ -267,10 +268,29 @@ def check_file_stages(stages: list[Stage], rules: list[Rule], options: RunOption
     are not selected)."""
     figures = {stage.name: analyse(stage, options.analysis) for stage in stages}
     catalogue = catalogue or {item.id: item for item in rules}
-    checks = {stage.name: check_stage(stage, figures[stage.name], rules, options, figures,
-                                      catalogue)
+    checks = {stage.name: _checked_over_supply_ends(stage, figures, rules, options, catalogue)
               for stage in stages}
     return figures, checks
+
+
+def _checked_over_supply_ends(stage: Stage, figures: dict[str, Figures], rules: list[Rule],
+                              options: RunOptions, catalogue: dict[str, Rule]) -> StageCheck:
+    """The stage checked at its nominal supplies and, where a supply has a range, at every
+    combination of the ranged supplies' ends (checker/supply_ends.py)."""
+    nominal = check_stage(stage, figures[stage.name], rules, options, figures, catalogue)
+    ends = supply_ends(stage)
+    if not ends:
+        return nominal
+    at_ends = []
+    for label, variant in ends:
+        siblings = dict(figures, **{stage.name: analyse(variant, options.analysis)})
+        at_ends.append((label, check_stage(variant, siblings[stage.name], rules, options,
+                                           siblings, catalogue)))
+    return StageCheck(
+        sorted(merged_findings(nominal.findings, [(l, c.findings) for l, c in at_ends]),
+               key=Finding.sort_key),
+        merged_verdicts(nominal.verdicts, [(l, c.verdicts) for l, c in at_ends]),
+        merged_cautions(nominal.cautions, [(l, c.cautions) for l, c in at_ends]))
 
 
 def _structural_findings(stage: Stage, figures: Figures) -> list[Finding]:

@@ -138,6 +138,12 @@ class Supply:
     voltage_v: float
     origin: Origin
     mains: str | None = None  # "isolated" | "not-isolated": declared derived from the mains
+    low_v: float | None = None  # (range LOW HIGH): the lowest and highest voltage it takes
+    high_v: float | None = None
+
+    @property
+    def ranged(self) -> bool:
+        return self.low_v is not None and self.high_v is not None
 
 
 @dataclass(frozen=True)

@@ -104,9 +104,11 @@ FORMS: dict[str, Form] = {
         "mains": Child("mains", "scalar"),
         **_WAIVE,
     }),
-    # (supply NET VOLTAGE (mains isolated|not-isolated)): a rail, and whether it is
-    # derived from the mains, through isolation or not (a caution either way).
-    "supply": Form(("net", "voltage"), {"mains": Child("mains", "scalar")}),
+    # (supply NET VOLTAGE (range LOW HIGH) (mains isolated|not-isolated)): a rail, the
+    # span it may take (a battery), and whether it is derived from the mains, through
+    # isolation or not (a caution either way).
+    "supply": Form(("net", "voltage"), {"mains": Child("mains", "scalar"),
+                                        "range": Child("range", "pair")}),
     "opamp": Form(("ref",), {
         "part": Child("part", "scalar"),
         "params": Child("params", "params"),

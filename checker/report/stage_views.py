@@ -343,8 +343,10 @@ def element_rows(stage: Stage) -> tuple[ElementRow, ...]:
     """The stage's elements as the review lists them, in the order written."""
     rows = []
     for supply in stage.supplies:
-        rows.append(ElementRow(supply.net, "supply", supply.net,
-                               format_si(supply.voltage_v, "V"), supply.origin.line))
+        value = format_si(supply.voltage_v, "V")
+        if supply.ranged:
+            value += f" ({format_si(supply.low_v, 'V')} to {format_si(supply.high_v, 'V')})"
+        rows.append(ElementRow(supply.net, "supply", supply.net, value, supply.origin.line))
     for opamp in stage.opamps:
         pins = (f"in+ {opamp.in_pos}, in- {opamp.in_neg}, out {opamp.out},"
                 f" v+ {opamp.v_pos}, v- {opamp.v_neg}")
