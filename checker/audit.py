@@ -73,6 +73,16 @@ def _run_wide(request: Request, key: str):
     return config_at(config_file, request.trust_config_rules).get(key) if config_file else None
 
 
+def run_wide_source(request: Request) -> tuple[str | None, Config]:
+    """The file the run-wide keys come from (--config, else the working folder's) and
+    its configuration, as ``check`` reads them."""
+    if not request.use_config:
+        return None, Config()
+    config_file = request.config_file or find_config_file(os.getcwd())
+    return config_file, config_at(config_file, request.trust_config_rules) if config_file \
+        else Config()
+
+
 @lru_cache(maxsize=64)
 def _library(paths: tuple[str, ...]):
     from checker.parts.library import load_library

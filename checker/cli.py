@@ -86,6 +86,8 @@ def _stdout_closed() -> bool:
 
 
 def build_parser() -> argparse.ArgumentParser:
+    from checker.options import BY_NAME, help_for
+
     parser = argparse.ArgumentParser(
         prog="ampcheck",
         description="Review op-amp stages before layout: numeric analysis, design rules,"
@@ -101,19 +103,21 @@ def build_parser() -> argparse.ArgumentParser:
                        help="report format on standard output (default text)")
     check.add_argument("--output", action="append", default=[], metavar="FORMAT:PATH",
                        help="also write a report to a new file (repeatable), e.g. sarif:out.sarif")
-    check.add_argument("--fail-on", choices=["error", "warning", "info", "never"],
-                       help="exit 1 when a finding reaches this severity (default error)")
-    check.add_argument("--select", metavar="IDS",
-                       help="run only these rules (comma-separated ids)")
-    check.add_argument("--ignore", metavar="IDS", help="skip these rules (comma-separated ids)")
+    check.add_argument("--fail-on", choices=BY_NAME["fail-on"].allowed,
+                       help=help_for("--fail-on"))
+    check.add_argument("--select", action="append", metavar="IDS",
+                       help=help_for("--select"))
+    check.add_argument("--ignore", action="append", metavar="IDS", help=help_for("--ignore"))
     check.add_argument("--rules-dir", action="append", default=[], metavar="DIR",
-                       help="also load rules from this folder (repeatable)")
+                       help=help_for("--rules-dir"))
     check.add_argument("--parts", action="append", default=[], metavar="FILE",
-                       help="a part library file (repeatable); its parts override built-ins")
+                       help=help_for("--parts"))
     check.add_argument("--netlist-map", metavar="FILE",
-                       help="the netlist map for netlist files (see docs/netlist.md)")
+                       help=help_for("--netlist-map"))
     check.add_argument("--stray-capacitance", metavar="VALUE",
-                       help="stray capacitance added at every inverting input (default 1p)")
+                       help=help_for("--stray-capacitance"))
+    check.add_argument("--exclude", action="append", default=[], metavar="GLOB",
+                       help=help_for("--exclude"))
     check.add_argument("--config", metavar="FILE",
                        help="use this configuration file for every path")
     check.add_argument("--no-config", action="store_true",
@@ -122,13 +126,11 @@ def build_parser() -> argparse.ArgumentParser:
                        help="load the rule folders (Python code) that configuration files"
                             " name in rules-dirs (also: AMPCHECK_TRUST_CONFIG_RULES=1)")
     check.add_argument("--jobs", type=int, metavar="N",
-                       help="worker processes (default: one per CPU)")
+                       help=help_for("--jobs"))
     check.add_argument("--time-budget", type=float, metavar="SECONDS",
-                       help="stop one file's review after this long and report it"
-                            " (default 60, 0 for none)")
+                       help=help_for("--time-budget"))
     check.add_argument("--memory-limit", type=float, metavar="MB",
-                       help="memory one file's review may add to its process (default"
-                            " 1024, 0 for none; Linux)")
+                       help=help_for("--memory-limit"))
     check.add_argument("--no-progress", action="store_true",
                        help="no progress bar (it is off anyway when stderr is not a terminal)")
     check.add_argument("--baseline", metavar="FILE",
@@ -253,10 +255,12 @@ def _request(args):
     from checker.config import trusted_by_environment
     from checker.units import UnitError, check_plausible, parse_value
 
-    def ids(text):
-        if text is None:
+    def ids(texts):
+        """Repeated options accumulate: --select A --select B runs A and B."""
+        if texts is None:
             return None
-        return frozenset(part.strip() for part in text.split(",") if part.strip())
+        return frozenset(part.strip() for text in texts for part in text.split(",")
+                         if part.strip())
 
     stray = None
     if args.stray_capacitance is not None:
@@ -409,43 +413,50 @@ def _progress(args, total: int):
 
 
 def cmd_config(args) -> int:
-    from checker.audit import Request, config_for, rules_for
-    from checker.config import ConfigError, find_config_file
-
-    from checker.audit import forget
-
-    from checker.config import trusted_by_environment
+    """What `check PATH` would use, run from this folder: each option of the table in
+    checker.options with its origin, and every rule setting by its kebab-case key."""
+    from checker.audit import Request, config_for, forget, rules_for, run_wide_source
+    from checker.config import ConfigError, find_config_file, trusted_by_environment
+    from checker.options import OPTIONS, rule_settings
+    from checker.units import format_si
 
     forget()
+    if not os.path.exists(args.path):
+        raise UsageError(f"{args.path}: no such file or directory")
     request = Request(config_file=args.config,
                       trust_config_rules=args.trust_config_rules or trusted_by_environment())
+    probe = os.path.join(args.path, "x") if os.path.isdir(args.path) else args.path
     try:
-        config = config_for(os.path.join(args.path, "x") if os.path.isdir(args.path)
-                            else args.path, request)
+        config = config_for(probe, request)
+        wide_file, wide = run_wide_source(request)
         rules = rules_for(tuple(config.get("rules-dirs", [])))
     except ConfigError as error:
         raise UsageError(str(error)) from None
-    source = args.config or find_config_file(
-        args.path if os.path.isdir(args.path) else os.path.dirname(os.path.abspath(args.path)))
+    source = args.config or find_config_file(os.path.dirname(os.path.abspath(probe)))
     print(f"configuration for {args.path}: {source or 'none found (defaults)'}")
-    defaults = {"fail-on": "error", "select": "all rules", "ignore": "none",
-                "rules-dirs": "none", "parts": "none", "netlist-map": "none",
-                "stray-capacitance": "1p", "jobs": "CPU count", "time-budget": "60",
-                "memory-limit": "1024"}
-    for key, default in defaults.items():
-        item = config.values.get(key)
-        value = default if item is None else item.value
+    if wide_file != source:
+        print(f"run-wide keys from the working folder's configuration: {wide_file or 'none'}")
+    for option in OPTIONS:
+        item = (wide if option.run_wide else config).values.get(option.name)
+        if item is None:
+            value, origin = option.default_text or option.default, "default"
+        else:
+            value, origin = item.value, item.origin
         if isinstance(value, frozenset):
             value = ", ".join(sorted(value))
-        origin = "default" if item is None else item.origin
-        print(f"  {key} = {value}    ({origin})")
+        elif isinstance(value, list):
+            value = ", ".join(value) or "none"
+        if option.type == "quantity" and item is not None:
+            value = format_si(value, "F")
+        print(f"  {option.name} = {value}    ({origin})")
     for rule_id, rule in rules.items():
-        for name, default in rule.settings.items():
-            item = config.rules.get(rule_id, {}).get(name)
-            value = default if item is None else item.value
-            print(f"  rules.{rule_id}.{name} = {value:g}    "
+        configured = config.rules.get(rule_id, {})
+        for key, setting in rule_settings(rule).items():
+            item = configured.get(setting.name)
+            value = setting.default if item is None else item.value
+            print(f"  rules.{rule_id}.{key} = {setting.show(value)}    "
                   f"({'default' if item is None else item.origin})")
-        item = config.rules.get(rule_id, {}).get("severity")
+        item = configured.get("severity")
         if item is not None:
             print(f"  rules.{rule_id}.severity = {item.value.label}    ({item.origin})")
     return EXIT_OK
@@ -499,8 +510,11 @@ def cmd_explain(args) -> int:
         close = difflib.get_close_matches(args.rule, list(rules) + list(CAUTION_KINDS), n=1)
         hint = f"; did you mean {close[0]}?" if close else "; `ampcheck rules` lists them"
         raise UsageError(f"no rule {args.rule!r}{hint}")
+    from checker.options import rule_settings
+
     rule = rules[args.rule]
-    settings = ", ".join(f"{k} = {v:g}" for k, v in rule.settings.items()) or "none"
+    settings = ", ".join(f"{key} = {setting.show(setting.default)}"
+                         for key, setting in rule_settings(rule).items()) or "none"
     print(f"{rule.id} ({rule.severity.label})\n{rule.summary}\n\nSettings: {settings}\n")
     print(rule.doc)
     return EXIT_OK
