@@ -99,14 +99,18 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("paths", nargs="+", metavar="PATH",
                        help="stage files, netlists or directories (searched for *.stage,"
                             " *.stage.json, and netlists where a netlist map governs them)")
-    check.add_argument("--format", choices=FORMAT_NAMES, default="text",
+    check.add_argument("-f", "--format", choices=FORMAT_NAMES, default="text",
                        help="report format on standard output (default text)")
-    check.add_argument("--output", action="append", default=[], metavar="FORMAT:PATH",
-                       help="also write a report to a new file (repeatable), e.g. sarif:out.sarif")
+    check.add_argument("-o", "--output", action="append", default=[], metavar="[FORMAT:]PATH",
+                       help="also write a report to a new file (repeatable), e.g."
+                            " sarif:out.sarif; a path ending in .json, .csv, .sarif, .html or"
+                            " .txt takes its format from the ending")
     check.add_argument("--fail-on", choices=BY_NAME["fail-on"].allowed,
                        help=help_for("--fail-on"))
     check.add_argument("--select", action="append", metavar="IDS",
                        help=help_for("--select"))
+    check.add_argument("--also-select", action="append", metavar="IDS",
+                       help="add these rules to the configured selection (repeatable)")
     check.add_argument("--ignore", action="append", metavar="IDS", help=help_for("--ignore"))
     check.add_argument("--rules-dir", action="append", default=[], metavar="DIR",
                        help=help_for("--rules-dir"))
@@ -125,7 +129,7 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("--trust-config-rules", action="store_true",
                        help="load the rule folders (Python code) that configuration files"
                             " name in rules-dirs (also: AMPCHECK_TRUST_CONFIG_RULES=1)")
-    check.add_argument("--jobs", type=int, metavar="N",
+    check.add_argument("-j", "--jobs", type=int, metavar="N",
                        help=help_for("--jobs"))
     check.add_argument("--time-budget", type=float, metavar="SECONDS",
                        help=help_for("--time-budget"))
@@ -133,6 +137,13 @@ def build_parser() -> argparse.ArgumentParser:
                        help=help_for("--memory-limit"))
     check.add_argument("--no-progress", action="store_true",
                        help="no progress bar (it is off anyway when stderr is not a terminal)")
+    check.add_argument("-q", "--quiet", action="store_true",
+                       help="no report on standard output and no progress bar: the exit code"
+                            " and the --output files only (safety cautions still go to"
+                            " standard error)")
+    check.add_argument("--color", choices=["auto", "always", "never"], default="auto",
+                       help="colour in terminal output (auto: at a terminal, honouring"
+                            " NO_COLOR and FORCE_COLOR)")
     check.add_argument("--baseline", metavar="FILE",
                        help="findings recorded in this baseline do not fail the run")
     check.add_argument("--write-baseline", metavar="FILE",
@@ -272,12 +283,13 @@ def _request(args):
     config_file = getattr(args, "config", None)
     if config_file and not os.path.isfile(config_file):
         raise UsageError(f"--config: no such file {config_file}")
-    formats = {args.format} | {item.partition(":")[0] for item in args.output}
+    formats = {args.format} | {name for name, _ in _outputs(args)}
     for name, value in (("--time-budget", args.time_budget),
                         ("--memory-limit", args.memory_limit)):
         if value is not None and not 0 <= value <= 1e9:
             raise UsageError(f"{name} takes a number from 0 (no limit) upwards")
     return Request(config_file=config_file, select=ids(args.select), ignore=ids(args.ignore),
+                   also_select=ids(args.also_select) or frozenset(),
                    stray_capacitance_f=stray, parts=tuple(args.parts),
                    rules_dirs=tuple(args.rules_dir), use_config=not args.no_config,
                    figures_wanted=bool(formats & FIGURE_FORMATS),
@@ -291,9 +303,8 @@ def _plots_wanted(args) -> str:
     only what bears on findings when it is only a folder (an audit), else nothing."""
     from checker.report import writes_folder
 
-    html = ([None] if args.format == "html" else []) + [
-        path for name, _, path in (item.partition(":") for item in args.output)
-        if name == "html"]
+    html = ([None] if args.format == "html" and not args.quiet else []) + [
+        path for name, path in (output_item(item) for item in args.output) if name == "html"]
     if not html:
         return ""
     if any(not writes_folder("html", path) for path in html):
@@ -306,7 +317,7 @@ def _check_html_extra(args) -> None:
     `html` extra (matplotlib and jinja2); nothing is imported here."""
     import importlib.util
 
-    if args.format != "html" and not any(item.partition(":")[0] == "html"
+    if args.format != "html" and not any(output_item(item)[0] == "html"
                                          for item in args.output):
         return
     missing = [name for name in HTML_MODULES if importlib.util.find_spec(name) is None]
@@ -317,13 +328,29 @@ def _check_html_extra(args) -> None:
                          " '.[html]')")
 
 
+OUTPUT_ENDINGS = {".json": "json", ".csv": "csv", ".sarif": "sarif", ".html": "html",
+                  ".txt": "text"}
+
+
+def output_item(item: str) -> tuple[str, str]:
+    """(format, path) of one --output: FORMAT:PATH, or a PATH whose ending names it."""
+    name, colon, path = item.partition(":")
+    if colon and name in FORMAT_NAMES:
+        return name, path
+    ending = os.path.splitext(item)[1].lower()
+    if ending in OUTPUT_ENDINGS:
+        return OUTPUT_ENDINGS[ending], item
+    return name, path
+
+
 def _outputs(args) -> list[tuple[str, str]]:
     outputs = []
     for item in args.output:
-        name, _, path = item.partition(":")
+        name, path = output_item(item)
         if name not in FORMAT_NAMES or not path:
             raise UsageError(f"--output {item!r}: write FORMAT:PATH with FORMAT one of"
-                             f" {', '.join(FORMAT_NAMES)}")
+                             f" {', '.join(FORMAT_NAMES)}, or a PATH ending in"
+                             f" {', '.join(OUTPUT_ENDINGS)}")
         outputs.append((name, path))
     return outputs
 
@@ -332,13 +359,13 @@ def _caution_notice_wanted(args) -> bool:
     """Cautions go to standard error as well, unless the text report is read at a
     terminal (its Cautions heading shows them): always under a commit hook, which
     shows a passing hook's output only when verbose."""
-    if os.environ.get("PRE_COMMIT"):
+    if os.environ.get("PRE_COMMIT") or args.quiet:
         return True
     return not (args.format == "text" and sys.stdout.isatty())
 
 
 def _progress_wanted(args) -> bool:
-    return (not args.no_progress and sys.stderr.isatty() and not os.environ.get("PRE_COMMIT")
+    return (not args.no_progress and not args.quiet and sys.stderr.isatty() and not os.environ.get("PRE_COMMIT")
             and not os.environ.get("CI"))
 
 
@@ -352,6 +379,10 @@ def cmd_check(args) -> int:
     from checker.report.context import ReportContext
 
     audit.forget()
+    _set_colour(args.color)
+    absent = [path for path in args.paths if not os.path.exists(path)]
+    if absent:
+        raise UsageError(f"no such file or directory: {', '.join(absent)}")
     request = _request(args)
     outputs = _outputs(args)
     _check_html_extra(args)
@@ -362,6 +393,7 @@ def cmd_check(args) -> int:
                                   lambda path: audit.netlist_map_path(path, request) is not None)
     except ConfigError as error:
         raise UsageError(str(error)) from None
+    paths = _without_excluded(paths, args, request)
     if not paths and not missing:
         raise UsageError("no stage files (*.stage, *.stage.json) found in "
                          + ", ".join(args.paths))
@@ -386,7 +418,8 @@ def cmd_check(args) -> int:
         for path in (args.write_baseline, args.baseline if args.prune_baseline else None):
             if path:
                 probe_output(path, paths)
-        sinks = open_sinks([(args.format, None)] + outputs, context, paths)
+        report = [] if args.quiet else [(args.format, None)]
+        sinks = open_sinks(report + outputs, context, paths)
         run = CheckRun(context, sinks, baseline, args.prune_baseline, args.write_baseline,
                        caution_notice=_caution_notice_wanted(args))
         failing = run.run(paths, missing, request, jobs, _progress(args, len(paths)))
@@ -397,6 +430,38 @@ def cmd_check(args) -> int:
     if run.review_failed:
         return EXIT_REVIEW_FAILED
     return EXIT_FINDINGS if failing else EXIT_OK
+
+
+def _set_colour(choice: str) -> None:
+    """--color: always and never set FORCE_COLOR / NO_COLOR, which every console reads."""
+    if choice == "always":
+        os.environ.pop("NO_COLOR", None)
+        os.environ["FORCE_COLOR"] = "1"
+    elif choice == "never":
+        os.environ.pop("FORCE_COLOR", None)
+        os.environ["NO_COLOR"] = "1"
+
+
+def _without_excluded(paths: list[str], args, request) -> list[str]:
+    """The found paths less those an exclude pattern matches: --exclude relative to the
+    working folder, the configuration's exclude relative to its file; a named file is
+    never excluded."""
+    from checker import audit
+    from checker.config import matches_any
+
+    named = {os.path.normpath(p) for p in args.paths if not os.path.isdir(p)}
+    kept = []
+    for path in paths:
+        if path not in named:
+            if matches_any(path, os.getcwd(), args.exclude):
+                continue
+            config = audit.config_for(path, request)
+            patterns = config.get("exclude") or []
+            if patterns and matches_any(path, os.path.dirname(os.path.abspath(config.path)),
+                                        patterns):
+                continue
+        kept.append(path)
+    return kept
 
 
 def _progress(args, total: int):

@@ -92,6 +92,18 @@ class Config:
         return result
 
 
+def matches_any(path: str, base: str, patterns) -> bool:
+    """True when a glob of ``patterns`` matches ``path`` relative to ``base`` (forward
+    slashes), or any trailing part of it from a folder boundary ("build/*" matches
+    "a/build/x.stage")."""
+    relative = os.path.relpath(os.path.abspath(path), base).replace(os.sep, "/")
+    parts = relative.split("/")
+    tails = ["/".join(parts[i:]) for i in range(len(parts))]
+    return any(fnmatch.fnmatch(tail, pattern.rstrip("/")) or
+               fnmatch.fnmatch(tail, pattern.rstrip("/") + "/*")
+               for pattern in patterns for tail in tails)
+
+
 def _key_lines(text: str) -> dict[tuple, int]:
     """Line of each key, by (table path..., key): a light scan, as tomllib keeps none."""
     lines: dict[tuple, int] = {}
