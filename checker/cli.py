@@ -386,6 +386,9 @@ def cmd_check(args) -> int:
     request = _request(args)
     outputs = _outputs(args)
     _check_html_extra(args)
+    args.paths, governing_only = _governed_paths(args.paths, request)
+    if governing_only and not args.paths:
+        return EXIT_OK  # a configuration or part library that governs no stage file
     if args.prune_baseline and not args.baseline:
         raise UsageError("--prune-baseline goes with --baseline FILE")
     try:
@@ -400,7 +403,8 @@ def cmd_check(args) -> int:
     try:
         audit.preflight(paths or ["."], request)
         fail_on = audit.fail_on_for(request, args.fail_on)
-        jobs = audit.jobs_for(request, args.jobs)
+        jobs = audit.jobs_for(request, 1 if args.jobs is None and os.environ.get("PRE_COMMIT")
+                              else args.jobs)
         request = audit.limits_for(request, args.time_budget, args.memory_limit)
         rules = audit.setup_for(paths[0] if paths else "x", request).all_rules
         baseline = baselines.load_baseline(args.baseline) if args.baseline else None
@@ -430,6 +434,28 @@ def cmd_check(args) -> int:
     if run.review_failed:
         return EXIT_REVIEW_FAILED
     return EXIT_FINDINGS if failing else EXIT_OK
+
+
+def _governed_paths(paths: list[str], request) -> tuple[list[str], bool]:
+    """Named configuration files and part libraries replaced by the stage files they
+    govern (checker.governed); the second value says every path was one of them."""
+    from checker import audit
+    from checker.config import ConfigError
+    from checker.governed import governed_by, is_governing
+
+    result, governing = [], 0
+    for path in paths:
+        if os.path.isfile(path) and is_governing(path):
+            governing += 1
+            try:
+                found = governed_by(path, lambda stage: audit.config_for(stage, request),
+                                    os.getcwd())
+            except ConfigError as error:
+                raise UsageError(str(error)) from None
+            result += [p for p in found if p not in result]
+        elif path not in result:
+            result.append(path)
+    return result, governing == len(paths)
 
 
 def _set_colour(choice: str) -> None:
