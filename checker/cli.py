@@ -141,6 +141,13 @@ def build_parser() -> argparse.ArgumentParser:
                        help="no report on standard output and no progress bar: the exit code"
                             " and the --output files only (safety cautions still go to"
                             " standard error)")
+    check.add_argument("--show", choices=["errors", "warnings", "all"], default="all",
+                       help="the standard-output report shows only findings of this"
+                            " severity and above (default all); --fail-on, --output files"
+                            " and safety cautions are not filtered")
+    check.add_argument("--stdin-name", metavar="NAME", default="stdin.stage",
+                       help="with PATH '-': the name the stage read from standard input"
+                            " takes in messages and reports (its ending picks the syntax)")
     check.add_argument("--color", choices=["auto", "always", "never"], default="auto",
                        help="colour in terminal output (auto: at a terminal, honouring"
                             " NO_COLOR and FORCE_COLOR)")
@@ -380,6 +387,8 @@ def cmd_check(args) -> int:
 
     audit.forget()
     _set_colour(args.color)
+    if "-" in args.paths:
+        return _check_stdin(args)
     absent = [path for path in args.paths if not os.path.exists(path)]
     if absent:
         raise UsageError(f"no such file or directory: {', '.join(absent)}")
@@ -424,6 +433,10 @@ def cmd_check(args) -> int:
                 probe_output(path, paths)
         report = [] if args.quiet else [(args.format, None)]
         sinks = open_sinks(report + outputs, context, paths)
+        if report and args.show != "all":
+            from checker.shown import SHOW_CHOICES, ShownWriter
+
+            sinks[0].writer = ShownWriter(sinks[0].writer, SHOW_CHOICES[args.show])
         run = CheckRun(context, sinks, baseline, args.prune_baseline, args.write_baseline,
                        caution_notice=_caution_notice_wanted(args))
         failing = run.run(paths, missing, request, jobs, _progress(args, len(paths)))
@@ -434,6 +447,56 @@ def cmd_check(args) -> int:
     if run.review_failed:
         return EXIT_REVIEW_FAILED
     return EXIT_FINDINGS if failing else EXIT_OK
+
+
+def _check_stdin(args) -> int:
+    """PATH '-': the stage on standard input is written to a private temporary folder
+    under --stdin-name, checked from there (so messages and reports name it by that
+    name), and removed afterwards. The configuration is the working folder's."""
+    import shutil
+    import tempfile
+
+    if args.paths != ["-"]:
+        raise UsageError("'-' (standard input) is checked on its own, not with other paths")
+    name = args.stdin_name
+    if os.path.isabs(name) or ".." in name.replace("\\", "/").split("/") or not name.strip():
+        raise UsageError("--stdin-name is a relative file name, e.g. board/filter.stage")
+    data = sys.stdin.buffer.read() if hasattr(sys.stdin, "buffer") else \
+        sys.stdin.read().encode()
+    folder = tempfile.mkdtemp(prefix="ampcheck-stdin-")
+    here = os.getcwd()
+    try:
+        target = os.path.join(folder, name)
+        os.makedirs(os.path.dirname(target), exist_ok=True)
+        with open(target, "wb") as handle:
+            handle.write(data)
+        if args.config is None and not args.no_config:
+            from checker.config import find_config_file
+
+            args.config = find_config_file(here)
+        args.output = [_absolute_output(item, here) for item in args.output]
+        for key in ("write_baseline", "baseline"):
+            if getattr(args, key):
+                setattr(args, key, os.path.join(here, getattr(args, key)))
+        args.parts = [os.path.join(here, p) for p in args.parts]
+        args.rules_dir = [os.path.join(here, p) for p in args.rules_dir]
+        if args.netlist_map:
+            args.netlist_map = os.path.join(here, args.netlist_map)
+        if args.config:
+            args.config = os.path.join(here, args.config)
+        args.paths = [name]
+        os.chdir(folder)
+        return cmd_check(args)
+    finally:
+        os.chdir(here)
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+def _absolute_output(item: str, here: str) -> str:
+    name, path = output_item(item)
+    if item == path:
+        return os.path.join(here, path)
+    return f"{name}:{os.path.join(here, path)}"
 
 
 def _governed_paths(paths: list[str], request) -> tuple[list[str], bool]:

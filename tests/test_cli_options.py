@@ -73,3 +73,31 @@ def test_color_always_and_never(project, capsys, monkeypatch):
     assert "\x1b[" in coloured
     _, plain, _ = run(capsys, "check", "a.stage", "--color", "never")
     assert "\x1b[" not in plain and "input-resistance" in plain
+
+
+def test_show_errors_filters_the_display_not_the_exit_code(project, capsys):
+    # input-resistance on LOADED is a warning: shown by default, hidden by --show errors,
+    # and still failing the run with --fail-on warning either way.
+    code, out, _ = run(capsys, "check", "a.stage", "-f", "json", "--fail-on", "warning",
+                       "--show", "errors", "-o", "all.json")
+    assert code == 1 and rule_ids(out) == []
+    assert rule_ids((project / "all.json").read_text()) == ["input-resistance"]
+    code, out, _ = run(capsys, "check", "a.stage", "--fail-on", "warning", "--show", "warnings")
+    assert code == 1 and "input-resistance" in out
+
+
+def test_a_stage_from_standard_input_is_named_for_messages(project, capsys, monkeypatch):
+    import io
+
+    class Stdin(io.StringIO):
+        buffer = io.BytesIO(LOADED.encode())
+
+    monkeypatch.setattr("sys.stdin", Stdin())
+    code, out, _ = run(capsys, "check", "-", "--stdin-name", "boards/front.stage",
+                       "-f", "json", "--fail-on", "warning", "-o", "front.csv")
+    assert code == 1
+    assert [f["path"] for f in json.loads(out)["files"]] == ["boards/front.stage"]
+    assert "boards/front.stage" in (project / "front.csv").read_text()
+    assert sorted(p.name for p in project.iterdir()) == ["a.stage", "front.csv"]
+    code, _, err = run(capsys, "check", "-", "a.stage")
+    assert code == 2 and "on its own" in err
