@@ -74,3 +74,21 @@ def test_explain_and_config_take_a_user_rule_with_a_list_setting(tmp_path, monke
         '''))
     code, out, _ = run(capsys, "explain", "band-list", "--rules-dir", str(folder))
     assert code == 0 and "Settings: corners = [10, 1000]" in out
+
+
+def test_a_list_setting_is_configured_as_a_list_of_numbers(tmp_path, monkeypatch, capsys):
+    folder = tmp_path / "mine"
+    folder.mkdir()
+    (folder / "bands.py").write_text(
+        'from checker.engine import rule\n\n'
+        '@rule("band-list", "info", "Checks nothing.", corners=[10.0, 1000.0])\n'
+        'def band_list(view):\n    """Checks nothing."""\n    return []\n')
+    (tmp_path / "ampcheck.toml").write_text('rules-dirs = ["mine"]\n[rules.band-list]\n'
+                                            'corners = [20, "1k"]\n')
+    monkeypatch.chdir(tmp_path)
+    code, out, _ = run(capsys, "config", ".", "--trust-config-rules")
+    assert code == 0 and "rules.band-list.corners = [20, 1000]    (" in out
+    (tmp_path / "ampcheck.toml").write_text('rules-dirs = ["mine"]\n[rules.band-list]\n'
+                                            'corners = 20\n')
+    code, _, err = run(capsys, "config", ".", "--trust-config-rules")
+    assert code == 2 and "band-list.corners is a list of numbers" in err
