@@ -31,6 +31,7 @@ class Request:
 
     config_file: str | None = None  # --config: use this one file for every path
     select: frozenset[str] | None = None
+    also_select: frozenset[str] = frozenset()  # --also-select: added to the configured select
     ignore: frozenset[str] | None = None
     stray_capacitance_f: float | None = None
     parts: tuple[str, ...] = ()
@@ -71,6 +72,16 @@ def _run_wide(request: Request, key: str):
         return None
     config_file = request.config_file or find_config_file(os.getcwd())
     return config_at(config_file, request.trust_config_rules).get(key) if config_file else None
+
+
+def run_wide_source(request: Request) -> tuple[str | None, Config]:
+    """The file the run-wide keys come from (--config, else the working folder's) and
+    its configuration, as ``check`` reads them."""
+    if not request.use_config:
+        return None, Config()
+    config_file = request.config_file or find_config_file(os.getcwd())
+    return config_file, config_at(config_file, request.trust_config_rules) if config_file \
+        else Config()
 
 
 @lru_cache(maxsize=64)
@@ -115,6 +126,12 @@ def setup_for(path: str, request: Request) -> FileSetup:
     folders = tuple(config.get("rules-dirs", [])) + request.rules_dirs
     rules = rules_for(folders)
     select = request.select if request.select is not None else config.get("select")
+    if select is not None and request.also_select:
+        select = frozenset(select) | request.also_select
+    for ids in (request.also_select,):
+        unknown = sorted(set(ids) - set(rules) - set(ENGINE_RULES))
+        if unknown:
+            raise RuleError(f"unknown rule id {', '.join(unknown)}; `ampcheck rules` lists them")
     ignore = request.ignore if request.ignore is not None else config.get("ignore", frozenset())
     for ids in (select or (), ignore):
         cautions = sorted(set(ids) & set(CAUTION_KINDS))

@@ -86,6 +86,8 @@ def _stdout_closed() -> bool:
 
 
 def build_parser() -> argparse.ArgumentParser:
+    from checker.options import BY_NAME, help_for
+
     parser = argparse.ArgumentParser(
         prog="ampcheck",
         description="Review op-amp stages before layout: numeric analysis, design rules,"
@@ -97,23 +99,29 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("paths", nargs="+", metavar="PATH",
                        help="stage files, netlists or directories (searched for *.stage,"
                             " *.stage.json, and netlists where a netlist map governs them)")
-    check.add_argument("--format", choices=FORMAT_NAMES, default="text",
+    check.add_argument("-f", "--format", choices=FORMAT_NAMES, default="text",
                        help="report format on standard output (default text)")
-    check.add_argument("--output", action="append", default=[], metavar="FORMAT:PATH",
-                       help="also write a report to a new file (repeatable), e.g. sarif:out.sarif")
-    check.add_argument("--fail-on", choices=["error", "warning", "info", "never"],
-                       help="exit 1 when a finding reaches this severity (default error)")
-    check.add_argument("--select", metavar="IDS",
-                       help="run only these rules (comma-separated ids)")
-    check.add_argument("--ignore", metavar="IDS", help="skip these rules (comma-separated ids)")
+    check.add_argument("-o", "--output", action="append", default=[], metavar="[FORMAT:]PATH",
+                       help="also write a report to a new file (repeatable), e.g."
+                            " sarif:out.sarif; a path ending in .json, .csv, .sarif, .html or"
+                            " .txt takes its format from the ending")
+    check.add_argument("--fail-on", choices=BY_NAME["fail-on"].allowed,
+                       help=help_for("--fail-on"))
+    check.add_argument("--select", action="append", metavar="IDS",
+                       help=help_for("--select"))
+    check.add_argument("--also-select", action="append", metavar="IDS",
+                       help="add these rules to the configured selection (repeatable)")
+    check.add_argument("--ignore", action="append", metavar="IDS", help=help_for("--ignore"))
     check.add_argument("--rules-dir", action="append", default=[], metavar="DIR",
-                       help="also load rules from this folder (repeatable)")
+                       help=help_for("--rules-dir"))
     check.add_argument("--parts", action="append", default=[], metavar="FILE",
-                       help="a part library file (repeatable); its parts override built-ins")
+                       help=help_for("--parts"))
     check.add_argument("--netlist-map", metavar="FILE",
-                       help="the netlist map for netlist files (see docs/netlist.md)")
+                       help=help_for("--netlist-map"))
     check.add_argument("--stray-capacitance", metavar="VALUE",
-                       help="stray capacitance added at every inverting input (default 1p)")
+                       help=help_for("--stray-capacitance"))
+    check.add_argument("--exclude", action="append", default=[], metavar="GLOB",
+                       help=help_for("--exclude"))
     check.add_argument("--config", metavar="FILE",
                        help="use this configuration file for every path")
     check.add_argument("--no-config", action="store_true",
@@ -121,16 +129,28 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("--trust-config-rules", action="store_true",
                        help="load the rule folders (Python code) that configuration files"
                             " name in rules-dirs (also: AMPCHECK_TRUST_CONFIG_RULES=1)")
-    check.add_argument("--jobs", type=int, metavar="N",
-                       help="worker processes (default: one per CPU)")
+    check.add_argument("-j", "--jobs", type=int, metavar="N",
+                       help=help_for("--jobs"))
     check.add_argument("--time-budget", type=float, metavar="SECONDS",
-                       help="stop one file's review after this long and report it"
-                            " (default 60, 0 for none)")
+                       help=help_for("--time-budget"))
     check.add_argument("--memory-limit", type=float, metavar="MB",
-                       help="memory one file's review may add to its process (default"
-                            " 1024, 0 for none; Linux)")
+                       help=help_for("--memory-limit"))
     check.add_argument("--no-progress", action="store_true",
                        help="no progress bar (it is off anyway when stderr is not a terminal)")
+    check.add_argument("-q", "--quiet", action="store_true",
+                       help="no report on standard output and no progress bar: the exit code"
+                            " and the --output files only (safety cautions still go to"
+                            " standard error)")
+    check.add_argument("--show", choices=["errors", "warnings", "all"], default="all",
+                       help="the standard-output report shows only findings of this"
+                            " severity and above (default all); --fail-on, --output files"
+                            " and safety cautions are not filtered")
+    check.add_argument("--stdin-name", metavar="NAME", default="stdin.stage",
+                       help="with PATH '-': the name the stage read from standard input"
+                            " takes in messages and reports (its ending picks the syntax)")
+    check.add_argument("--color", choices=["auto", "always", "never"], default="auto",
+                       help="colour in terminal output (auto: at a terminal, honouring"
+                            " NO_COLOR and FORCE_COLOR)")
     check.add_argument("--baseline", metavar="FILE",
                        help="findings recorded in this baseline do not fail the run")
     check.add_argument("--write-baseline", metavar="FILE",
@@ -253,10 +273,12 @@ def _request(args):
     from checker.config import trusted_by_environment
     from checker.units import UnitError, check_plausible, parse_value
 
-    def ids(text):
-        if text is None:
+    def ids(texts):
+        """Repeated options accumulate: --select A --select B runs A and B."""
+        if texts is None:
             return None
-        return frozenset(part.strip() for part in text.split(",") if part.strip())
+        return frozenset(part.strip() for text in texts for part in text.split(",")
+                         if part.strip())
 
     stray = None
     if args.stray_capacitance is not None:
@@ -268,12 +290,13 @@ def _request(args):
     config_file = getattr(args, "config", None)
     if config_file and not os.path.isfile(config_file):
         raise UsageError(f"--config: no such file {config_file}")
-    formats = {args.format} | {item.partition(":")[0] for item in args.output}
+    formats = {args.format} | {name for name, _ in _outputs(args)}
     for name, value in (("--time-budget", args.time_budget),
                         ("--memory-limit", args.memory_limit)):
         if value is not None and not 0 <= value <= 1e9:
             raise UsageError(f"{name} takes a number from 0 (no limit) upwards")
     return Request(config_file=config_file, select=ids(args.select), ignore=ids(args.ignore),
+                   also_select=ids(args.also_select) or frozenset(),
                    stray_capacitance_f=stray, parts=tuple(args.parts),
                    rules_dirs=tuple(args.rules_dir), use_config=not args.no_config,
                    figures_wanted=bool(formats & FIGURE_FORMATS),
@@ -287,9 +310,8 @@ def _plots_wanted(args) -> str:
     only what bears on findings when it is only a folder (an audit), else nothing."""
     from checker.report import writes_folder
 
-    html = ([None] if args.format == "html" else []) + [
-        path for name, _, path in (item.partition(":") for item in args.output)
-        if name == "html"]
+    html = ([None] if args.format == "html" and not args.quiet else []) + [
+        path for name, path in (output_item(item) for item in args.output) if name == "html"]
     if not html:
         return ""
     if any(not writes_folder("html", path) for path in html):
@@ -302,7 +324,7 @@ def _check_html_extra(args) -> None:
     `html` extra (matplotlib and jinja2); nothing is imported here."""
     import importlib.util
 
-    if args.format != "html" and not any(item.partition(":")[0] == "html"
+    if args.format != "html" and not any(output_item(item)[0] == "html"
                                          for item in args.output):
         return
     missing = [name for name in HTML_MODULES if importlib.util.find_spec(name) is None]
@@ -313,13 +335,29 @@ def _check_html_extra(args) -> None:
                          " '.[html]')")
 
 
+OUTPUT_ENDINGS = {".json": "json", ".csv": "csv", ".sarif": "sarif", ".html": "html",
+                  ".txt": "text"}
+
+
+def output_item(item: str) -> tuple[str, str]:
+    """(format, path) of one --output: FORMAT:PATH, or a PATH whose ending names it."""
+    name, colon, path = item.partition(":")
+    if colon and name in FORMAT_NAMES:
+        return name, path
+    ending = os.path.splitext(item)[1].lower()
+    if ending in OUTPUT_ENDINGS:
+        return OUTPUT_ENDINGS[ending], item
+    return name, path
+
+
 def _outputs(args) -> list[tuple[str, str]]:
     outputs = []
     for item in args.output:
-        name, _, path = item.partition(":")
+        name, path = output_item(item)
         if name not in FORMAT_NAMES or not path:
             raise UsageError(f"--output {item!r}: write FORMAT:PATH with FORMAT one of"
-                             f" {', '.join(FORMAT_NAMES)}")
+                             f" {', '.join(FORMAT_NAMES)}, or a PATH ending in"
+                             f" {', '.join(OUTPUT_ENDINGS)}")
         outputs.append((name, path))
     return outputs
 
@@ -328,13 +366,13 @@ def _caution_notice_wanted(args) -> bool:
     """Cautions go to standard error as well, unless the text report is read at a
     terminal (its Cautions heading shows them): always under a commit hook, which
     shows a passing hook's output only when verbose."""
-    if os.environ.get("PRE_COMMIT"):
+    if os.environ.get("PRE_COMMIT") or args.quiet:
         return True
     return not (args.format == "text" and sys.stdout.isatty())
 
 
 def _progress_wanted(args) -> bool:
-    return (not args.no_progress and sys.stderr.isatty() and not os.environ.get("PRE_COMMIT")
+    return (not args.no_progress and not args.quiet and sys.stderr.isatty() and not os.environ.get("PRE_COMMIT")
             and not os.environ.get("CI"))
 
 
@@ -348,9 +386,18 @@ def cmd_check(args) -> int:
     from checker.report.context import ReportContext
 
     audit.forget()
+    _set_colour(args.color)
+    if "-" in args.paths:
+        return _check_stdin(args)
+    absent = [path for path in args.paths if not os.path.exists(path)]
+    if absent:
+        raise UsageError(f"no such file or directory: {', '.join(absent)}")
     request = _request(args)
     outputs = _outputs(args)
     _check_html_extra(args)
+    args.paths, governing_only = _governed_paths(args.paths, request)
+    if governing_only and not args.paths:
+        return EXIT_OK  # a configuration or part library that governs no stage file
     if args.prune_baseline and not args.baseline:
         raise UsageError("--prune-baseline goes with --baseline FILE")
     try:
@@ -358,13 +405,15 @@ def cmd_check(args) -> int:
                                   lambda path: audit.netlist_map_path(path, request) is not None)
     except ConfigError as error:
         raise UsageError(str(error)) from None
+    paths = _without_excluded(paths, args, request)
     if not paths and not missing:
         raise UsageError("no stage files (*.stage, *.stage.json) found in "
                          + ", ".join(args.paths))
     try:
         audit.preflight(paths or ["."], request)
         fail_on = audit.fail_on_for(request, args.fail_on)
-        jobs = audit.jobs_for(request, args.jobs)
+        jobs = audit.jobs_for(request, 1 if args.jobs is None and os.environ.get("PRE_COMMIT")
+                              else args.jobs)
         request = audit.limits_for(request, args.time_budget, args.memory_limit)
         rules = audit.setup_for(paths[0] if paths else "x", request).all_rules
         baseline = baselines.load_baseline(args.baseline) if args.baseline else None
@@ -382,7 +431,12 @@ def cmd_check(args) -> int:
         for path in (args.write_baseline, args.baseline if args.prune_baseline else None):
             if path:
                 probe_output(path, paths)
-        sinks = open_sinks([(args.format, None)] + outputs, context, paths)
+        report = [] if args.quiet else [(args.format, None)]
+        sinks = open_sinks(report + outputs, context, paths)
+        if report and args.show != "all":
+            from checker.shown import SHOW_CHOICES, ShownWriter
+
+            sinks[0].writer = ShownWriter(sinks[0].writer, SHOW_CHOICES[args.show])
         run = CheckRun(context, sinks, baseline, args.prune_baseline, args.write_baseline,
                        caution_notice=_caution_notice_wanted(args))
         failing = run.run(paths, missing, request, jobs, _progress(args, len(paths)))
@@ -393,6 +447,110 @@ def cmd_check(args) -> int:
     if run.review_failed:
         return EXIT_REVIEW_FAILED
     return EXIT_FINDINGS if failing else EXIT_OK
+
+
+def _check_stdin(args) -> int:
+    """PATH '-': the stage on standard input is written to a private temporary folder
+    under --stdin-name, checked from there (so messages and reports name it by that
+    name), and removed afterwards. The configuration is the working folder's."""
+    import shutil
+    import tempfile
+
+    if args.paths != ["-"]:
+        raise UsageError("'-' (standard input) is checked on its own, not with other paths")
+    name = args.stdin_name
+    if os.path.isabs(name) or ".." in name.replace("\\", "/").split("/") or not name.strip():
+        raise UsageError("--stdin-name is a relative file name, e.g. board/filter.stage")
+    data = sys.stdin.buffer.read() if hasattr(sys.stdin, "buffer") else \
+        sys.stdin.read().encode()
+    folder = tempfile.mkdtemp(prefix="ampcheck-stdin-")
+    here = os.getcwd()
+    try:
+        target = os.path.join(folder, name)
+        os.makedirs(os.path.dirname(target), exist_ok=True)
+        with open(target, "wb") as handle:
+            handle.write(data)
+        if args.config is None and not args.no_config:
+            from checker.config import find_config_file
+
+            args.config = find_config_file(here)
+        args.output = [_absolute_output(item, here) for item in args.output]
+        for key in ("write_baseline", "baseline"):
+            if getattr(args, key):
+                setattr(args, key, os.path.join(here, getattr(args, key)))
+        args.parts = [os.path.join(here, p) for p in args.parts]
+        args.rules_dir = [os.path.join(here, p) for p in args.rules_dir]
+        if args.netlist_map:
+            args.netlist_map = os.path.join(here, args.netlist_map)
+        if args.config:
+            args.config = os.path.join(here, args.config)
+        args.paths = [name]
+        os.chdir(folder)
+        return cmd_check(args)
+    finally:
+        os.chdir(here)
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+def _absolute_output(item: str, here: str) -> str:
+    name, path = output_item(item)
+    if item == path:
+        return os.path.join(here, path)
+    return f"{name}:{os.path.join(here, path)}"
+
+
+def _governed_paths(paths: list[str], request) -> tuple[list[str], bool]:
+    """Named configuration files and part libraries replaced by the stage files they
+    govern (checker.governed); the second value says every path was one of them."""
+    from checker import audit
+    from checker.config import ConfigError
+    from checker.governed import governed_by, is_governing
+
+    result, governing = [], 0
+    for path in paths:
+        if os.path.isfile(path) and is_governing(path):
+            governing += 1
+            try:
+                found = governed_by(path, lambda stage: audit.config_for(stage, request),
+                                    os.getcwd())
+            except ConfigError as error:
+                raise UsageError(str(error)) from None
+            result += [p for p in found if p not in result]
+        elif path not in result:
+            result.append(path)
+    return result, governing == len(paths)
+
+
+def _set_colour(choice: str) -> None:
+    """--color: always and never set FORCE_COLOR / NO_COLOR, which every console reads."""
+    if choice == "always":
+        os.environ.pop("NO_COLOR", None)
+        os.environ["FORCE_COLOR"] = "1"
+    elif choice == "never":
+        os.environ.pop("FORCE_COLOR", None)
+        os.environ["NO_COLOR"] = "1"
+
+
+def _without_excluded(paths: list[str], args, request) -> list[str]:
+    """The found paths less those an exclude pattern matches: --exclude relative to the
+    working folder, the configuration's exclude relative to its file; a named file is
+    never excluded."""
+    from checker import audit
+    from checker.config import matches_any
+
+    named = {os.path.normpath(p) for p in args.paths if not os.path.isdir(p)}
+    kept = []
+    for path in paths:
+        if path not in named:
+            if matches_any(path, os.getcwd(), args.exclude):
+                continue
+            config = audit.config_for(path, request)
+            patterns = config.get("exclude") or []
+            if patterns and matches_any(path, os.path.dirname(os.path.abspath(config.path)),
+                                        patterns):
+                continue
+        kept.append(path)
+    return kept
 
 
 def _progress(args, total: int):
@@ -409,43 +567,50 @@ def _progress(args, total: int):
 
 
 def cmd_config(args) -> int:
-    from checker.audit import Request, config_for, rules_for
-    from checker.config import ConfigError, find_config_file
-
-    from checker.audit import forget
-
-    from checker.config import trusted_by_environment
+    """What `check PATH` would use, run from this folder: each option of the table in
+    checker.options with its origin, and every rule setting by its kebab-case key."""
+    from checker.audit import Request, config_for, forget, rules_for, run_wide_source
+    from checker.config import ConfigError, find_config_file, trusted_by_environment
+    from checker.options import OPTIONS, rule_settings
+    from checker.units import format_si
 
     forget()
+    if not os.path.exists(args.path):
+        raise UsageError(f"{args.path}: no such file or directory")
     request = Request(config_file=args.config,
                       trust_config_rules=args.trust_config_rules or trusted_by_environment())
+    probe = os.path.join(args.path, "x") if os.path.isdir(args.path) else args.path
     try:
-        config = config_for(os.path.join(args.path, "x") if os.path.isdir(args.path)
-                            else args.path, request)
+        config = config_for(probe, request)
+        wide_file, wide = run_wide_source(request)
         rules = rules_for(tuple(config.get("rules-dirs", [])))
     except ConfigError as error:
         raise UsageError(str(error)) from None
-    source = args.config or find_config_file(
-        args.path if os.path.isdir(args.path) else os.path.dirname(os.path.abspath(args.path)))
+    source = args.config or find_config_file(os.path.dirname(os.path.abspath(probe)))
     print(f"configuration for {args.path}: {source or 'none found (defaults)'}")
-    defaults = {"fail-on": "error", "select": "all rules", "ignore": "none",
-                "rules-dirs": "none", "parts": "none", "netlist-map": "none",
-                "stray-capacitance": "1p", "jobs": "CPU count", "time-budget": "60",
-                "memory-limit": "1024"}
-    for key, default in defaults.items():
-        item = config.values.get(key)
-        value = default if item is None else item.value
+    if wide_file != source:
+        print(f"run-wide keys from the working folder's configuration: {wide_file or 'none'}")
+    for option in OPTIONS:
+        item = (wide if option.run_wide else config).values.get(option.name)
+        if item is None:
+            value, origin = option.default_text or option.default, "default"
+        else:
+            value, origin = item.value, item.origin
         if isinstance(value, frozenset):
             value = ", ".join(sorted(value))
-        origin = "default" if item is None else item.origin
-        print(f"  {key} = {value}    ({origin})")
+        elif isinstance(value, list):
+            value = ", ".join(value) or "none"
+        if option.type == "quantity" and item is not None:
+            value = format_si(value, "F")
+        print(f"  {option.name} = {value}    ({origin})")
     for rule_id, rule in rules.items():
-        for name, default in rule.settings.items():
-            item = config.rules.get(rule_id, {}).get(name)
-            value = default if item is None else item.value
-            print(f"  rules.{rule_id}.{name} = {value:g}    "
+        configured = config.rules.get(rule_id, {})
+        for key, setting in rule_settings(rule).items():
+            item = configured.get(setting.name)
+            value = setting.default if item is None else item.value
+            print(f"  rules.{rule_id}.{key} = {setting.show(value)}    "
                   f"({'default' if item is None else item.origin})")
-        item = config.rules.get(rule_id, {}).get("severity")
+        item = configured.get("severity")
         if item is not None:
             print(f"  rules.{rule_id}.severity = {item.value.label}    ({item.origin})")
     return EXIT_OK
@@ -499,8 +664,11 @@ def cmd_explain(args) -> int:
         close = difflib.get_close_matches(args.rule, list(rules) + list(CAUTION_KINDS), n=1)
         hint = f"; did you mean {close[0]}?" if close else "; `ampcheck rules` lists them"
         raise UsageError(f"no rule {args.rule!r}{hint}")
+    from checker.options import rule_settings
+
     rule = rules[args.rule]
-    settings = ", ".join(f"{k} = {v:g}" for k, v in rule.settings.items()) or "none"
+    settings = ", ".join(f"{key} = {setting.show(setting.default)}"
+                         for key, setting in rule_settings(rule).items()) or "none"
     print(f"{rule.id} ({rule.severity.label})\n{rule.summary}\n\nSettings: {settings}\n")
     print(rule.doc)
     return EXIT_OK

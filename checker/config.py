@@ -5,7 +5,8 @@ across levels); the search stops at the repository root (the first folder holdin
 .git). Command-line options override it. Every value remembers where it came
 from, so ``ampcheck config`` can show it, and every error names the file and line.
 
-Keys (top level):
+Keys (top level; the table of them, with types, units and defaults, is
+checker.options.OPTIONS, which this reader checks values against):
     fail-on            "error" | "warning" | "info" | "never"
     select, ignore     lists of rule ids
     rules-dirs         folders of user rules (relative to the configuration file); they
@@ -17,6 +18,7 @@ Keys (top level):
     jobs               worker processes for `check` (0: one per CPU)
     time-budget        seconds one file's review may take (0: no limit)
     memory-limit       megabytes one file's review may add to its process (0: no cap)
+    exclude            glob patterns of paths a folder search skips
     [rules.RULE-ID]    severity = "error" | "warning" | "info", and the rule's settings
     [[overrides]]      paths = [globs, relative to the file]; select, ignore,
                        stray-capacitance and [overrides.rules.RULE-ID] for those files
@@ -25,7 +27,6 @@ Keys (top level):
 from __future__ import annotations
 
 import fnmatch
-import math
 import os
 import re
 import sys
@@ -40,16 +41,16 @@ else:  # pragma: no cover - Python 3.10
 from checker.cautions import KINDS as CAUTION_KINDS
 from checker.cautions import not_a_rule
 from checker.findings import Severity
-from checker.units import UnitError, check_plausible, parse_value
+from checker.options import BY_NAME as OPTION_TABLE
+from checker.options import TABLE_KEYS, OptionError, parse_option, rule_settings
 
 CONFIG_FILE = "ampcheck.toml"
-TOP_KEYS = {"fail-on", "select", "ignore", "rules-dirs", "parts", "stray-capacitance", "jobs",
-            "time-budget", "memory-limit", "rules", "overrides", "netlist-map"}
+TOP_KEYS = set(OPTION_TABLE) | set(TABLE_KEYS)
 TRUST_VARIABLE = "AMPCHECK_TRUST_CONFIG_RULES"
 TRUST_FLAG = "--trust-config-rules"
 MAX_CONFIG_BYTES = 1024 * 1024
-OVERRIDE_KEYS = {"paths", "select", "ignore", "stray-capacitance", "rules"}
-FAIL_ON = ("error", "warning", "info", "never")
+OVERRIDE_KEYS = {o.name for o in OPTION_TABLE.values() if o.in_overrides} | {"paths", "rules"}
+FAIL_ON = OPTION_TABLE["fail-on"].allowed
 
 
 class ConfigError(Exception):
@@ -89,6 +90,18 @@ class Config:
                 for rule_id, settings in override["rules"].items():
                     result.rules.setdefault(rule_id, {}).update(settings)
         return result
+
+
+def matches_any(path: str, base: str, patterns) -> bool:
+    """True when a glob of ``patterns`` matches ``path`` relative to ``base`` (forward
+    slashes), or any trailing part of it from a folder boundary ("build/*" matches
+    "a/build/x.stage")."""
+    relative = os.path.relpath(os.path.abspath(path), base).replace(os.sep, "/")
+    parts = relative.split("/")
+    tails = ["/".join(parts[i:]) for i in range(len(parts))]
+    return any(fnmatch.fnmatch(tail, pattern.rstrip("/")) or
+               fnmatch.fnmatch(tail, pattern.rstrip("/") + "/*")
+               for pattern in patterns for tail in tails)
 
 
 def _key_lines(text: str) -> dict[tuple, int]:
@@ -216,54 +229,45 @@ def _unknown(key: str, allowed) -> str:
 
 
 def _values(table: dict, keys: tuple, where, fail, base: str, known_rules, top: bool) -> dict:
+    """The option values of one table, checked against checker.options.OPTIONS."""
     values: dict[str, Valued] = {}
     for key, value in table.items():
         if key in ("rules", "overrides", "paths"):
             continue
         origin = where(*keys, key)
-        if key == "fail-on":
-            if value not in FAIL_ON:
-                fail(keys + (key,), f"fail-on must be one of {', '.join(FAIL_ON)}, not {value!r}")
-        elif key in ("select", "ignore"):
-            if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
-                fail(keys + (key,), f"{key} is a list of rule ids")
-            cautions = [v for v in value if v in CAUTION_KINDS]
+        option = OPTION_TABLE[key]
+        try:
+            value = parse_option(option, value, known_rules)
+        except OptionError as error:
+            fail(keys + (key,), str(error))
+        if option.type == "rule-ids":
+            cautions = [v for v in sorted(value) if v in CAUTION_KINDS]
             if cautions:
                 fail(keys + (key,), not_a_rule(cautions[0]))
-            unknown = [v for v in value if v not in known_rules]
+            unknown = [v for v in sorted(value) if v not in known_rules]
             if unknown:
                 fail(keys + (key,), f"unknown rule id {', '.join(unknown)} in {key}")
-            value = frozenset(value)
-        elif key in ("rules-dirs", "parts"):
-            if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
-                fail(keys + (key,), f"{key} is a list of paths")
+        elif option.type == "paths":
             value = [os.path.normpath(os.path.join(base, v)) for v in value]
-        elif key == "netlist-map":
-            if not isinstance(value, str) or not value:
-                fail(keys + (key,), "netlist-map is the path of one netlist map file")
+        elif option.type == "path":
             value = os.path.normpath(os.path.join(base, value))
-        elif key == "stray-capacitance":
-            try:
-                value = parse_value(value, "capacitance")
-                check_plausible(value, "capacitance", value)
-            except UnitError as error:
-                fail(keys + (key,), f"stray-capacitance: {error}")
-            if value < 0:
-                fail(keys + (key,), "stray-capacitance cannot be negative")
-        elif key == "jobs":
-            if not isinstance(value, int) or isinstance(value, bool) or not 0 <= value <= 1024:
-                fail(keys + (key,), "jobs is a whole number, 0 for one per CPU")
-        elif key in ("time-budget", "memory-limit"):
-            if isinstance(value, bool) or not isinstance(value, (int, float)) or \
-                    not math.isfinite(value) or not 0 <= value <= 1e9:
-                unit = "seconds" if key == "time-budget" else "megabytes"
-                fail(keys + (key,), f"{key} is a number of {unit}, 0 for no limit")
-            value = float(value)
         values[key] = Valued(value, origin)
     return values
 
 
+def deprecation(note: str) -> None:
+    """Tell the user once per run about an old spelling (standard error)."""
+    if note not in _NOTED:
+        _NOTED.add(note)
+        print(f"ampcheck: note: {note}", file=sys.stderr)
+
+
+_NOTED: set[str] = set()
+
+
 def _rule_tables(table: dict, keys: tuple, where, fail, known_rules) -> dict:
+    """[rules.ID] tables: severity and the rule's settings (by kebab-case key, the old
+    snake_case spelling accepted with a note), stored by the name the rule reads."""
     if not isinstance(table, dict):
         fail(keys, "rules is a table of [rules.RULE-ID] tables")
     result: dict[str, dict[str, Valued]] = {}
@@ -274,28 +278,31 @@ def _rule_tables(table: dict, keys: tuple, where, fail, known_rules) -> dict:
             fail(keys + (rule_id,), _unknown(rule_id, known_rules).replace("key", "rule id"))
         if not isinstance(settings, dict):
             fail(keys + (rule_id,), f"[rules.{rule_id}] must be a table")
-        rule = known_rules[rule_id]
-        allowed = set(getattr(rule, "settings", {})) | {"severity"}
+        declared = rule_settings(known_rules[rule_id])
+        by_old = {s.name: s for s in declared.values()}
+        allowed = set(declared) | {"severity"}
         checked: dict[str, Valued] = {}
         for name, value in settings.items():
             path = keys + (rule_id, name)
-            if name not in allowed:
-                fail(path, _unknown(name, allowed).replace("key", f"setting of {rule_id}"))
             if name == "severity":
                 try:
                     value = Severity.parse(str(value))
                 except ValueError as error:
                     fail(path, str(error))
-            elif isinstance(value, bool) or not isinstance(value, (int, float)):
-                fail(path, f"{rule_id}.{name} must be a number, not {value!r}")
-            else:
-                try:
-                    value = float(value)
-                except OverflowError:
-                    value = math.inf
-                if not math.isfinite(value):
-                    fail(path, f"{rule_id}.{name} must be a finite number")
-            checked[name] = Valued(value, where(*path))
+                checked[name] = Valued(value, where(*path))
+                continue
+            setting = declared.get(name)
+            if setting is None and name in by_old and name != by_old[name].key:
+                setting = by_old[name]
+                deprecation(f"{where(*path)}: {rule_id} setting {name!r} is spelt"
+                            f" {setting.key!r} now (the old spelling still works)")
+            if setting is None:
+                fail(path, _unknown(name, allowed).replace("key", f"setting of {rule_id}"))
+            try:
+                value = setting.parse(value)
+            except OptionError as error:
+                fail(path, str(error))
+            checked[setting.name] = Valued(value, where(*path))
         result[rule_id] = checked
     return result
 

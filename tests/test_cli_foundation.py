@@ -115,11 +115,11 @@ def test_check_reports_every_problem_of_a_bad_file(tmp_path, capsys):
         (6, 24, "input-invalid"), (7, 25, "input-invalid")]
 
 
-def test_check_of_a_missing_path_reports_it_and_exits_1(tmp_path, capsys):
+def test_check_of_a_missing_path_is_a_usage_error(tmp_path, capsys):
     missing = tmp_path / "nowhere.stage"
-    code, files, _err = check_json(capsys, str(missing))
-    assert code == 1
-    assert files[str(missing)]["problems"][0]["message"] == "no such file or directory"
+    code, out, err = run(capsys, "check", str(missing))
+    assert code == 2 and out == ""
+    assert f"no such file or directory: {missing}" in err
 
 
 def test_check_of_a_folder_without_stage_files_is_a_usage_error(tmp_path, capsys):
