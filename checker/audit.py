@@ -19,6 +19,7 @@ from checker.cautions import KINDS as CAUTION_KINDS
 from checker.cautions import not_a_rule
 from checker.config import Config, ConfigError, find_config_file, parse_config
 from checker.engine import ENGINE_RULES, RuleError, RunOptions, load_rules, selected
+from checker.catalogue import engine_severity
 from checker.findings import Finding, Severity
 from checker.review import FileResult, review_file
 
@@ -173,7 +174,7 @@ def review_failed(path: str, kind: str, text: str) -> FileResult:
     text = " ".join(text.split())
     if len(text) > MAX_MESSAGE:
         text = text[:MAX_MESSAGE] + "..."
-    finding = Finding(rule=REVIEW_FAILED, severity=Severity.ERROR,
+    finding = Finding(rule=REVIEW_FAILED, severity=engine_severity(REVIEW_FAILED),
                       message=f"the review of this file stopped: {kind}: {text}", path=path,
                       line=1, column=1, details={"kind": kind})
     return FileResult(path, problems=[finding])

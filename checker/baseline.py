@@ -13,7 +13,8 @@ import os
 from collections import Counter
 from dataclasses import dataclass, replace
 
-from checker.findings import Finding, Severity
+from checker.catalogue import engine_severity
+from checker.findings import Finding
 from checker.io.write import write_new_file
 
 FORMAT_NAME = "ampcheck-baseline"
@@ -90,7 +91,7 @@ def stale_entries(baseline: Baseline, matched: Counter, checked: set[str]) -> li
             continue
         where = os.path.join(baseline.folder, path)
         stale.append(Finding(
-            rule="baseline-stale", severity=Severity.INFO,
+            rule="baseline-stale", severity=engine_severity("baseline-stale"),
             message=f"baseline entry for {rule} on {', '.join(elements) or 'the stage'} in stage"
                     f" {stage} no longer matches ({count - matched[key]} of {count} unused);"
                     " prune the baseline", path=os.path.relpath(where), line=1, column=1,

@@ -655,8 +655,11 @@ def cmd_explain(args) -> int:
         return EXIT_OK
     rules = _rules(args.rules_dir)
     if args.rule in ENGINE_RULES:
+        from checker.catalogue import ENGINE_CATALOGUE
+
         print(f"{args.rule} ({ENGINE_SEVERITIES[args.rule].label}, built into the engine)"
-              f"\n\n{ENGINE_RULES[args.rule]}")
+              f"\n{ENGINE_RULES[args.rule]}\n")
+        print(ENGINE_CATALOGUE[args.rule].doc)
         return EXIT_OK
     if args.rule not in rules:
         import difflib

@@ -38,7 +38,7 @@ RULE_ID = re.compile(r"^[a-z][a-z0-9]*(-[a-z0-9]+)*$")
 DOC_SECTIONS = ("What it checks", "Why it matters", "How the fix is computed", "Sources")
 # The engine's own findings: their ids, summaries and severities (checker/catalogue.py).
 from checker.catalogue import (ENGINE_RULES, ENGINE_SEVERITIES, REQUIREMENT_UNCHECKED,  # noqa: E402,F401
-                               REQUIREMENT_UNMET)
+                               REQUIREMENT_UNMET, engine_severity)
 
 
 class RuleError(Exception):
@@ -298,7 +298,8 @@ def _structural_findings(stage: Stage, figures: Figures) -> list[Finding]:
     for problem in figures.problems:
         if problem.kind == "output-on-rail":
             origin = stage.element(problem.elements[0]).origin
-            results.append(Finding(rule="output-on-rail", severity=Severity.ERROR,
+            results.append(Finding(rule="output-on-rail",
+                                   severity=engine_severity("output-on-rail"),
                                    message=problem.message, path=origin.path,
                                    line=origin.line, column=origin.column, stage=stage.name,
                                    elements=problem.elements))
@@ -314,7 +315,8 @@ def _structural_findings(stage: Stage, figures: Figures) -> list[Finding]:
                     break
                 except KeyError:
                     continue
-            results.append(Finding(rule="stage-unsolvable", severity=Severity.ERROR,
+            results.append(Finding(rule="stage-unsolvable",
+                                   severity=engine_severity("stage-unsolvable"),
                                    message=problem.message, path=origin.path, line=origin.line,
                                    column=origin.column, stage=stage.name,
                                    elements=problem.elements))
@@ -322,7 +324,7 @@ def _structural_findings(stage: Stage, figures: Figures) -> list[Finding]:
 
 
 def _failure(stage: Stage, what: str, error: Exception) -> Finding:
-    return Finding(rule="rule-failed", severity=Severity.ERROR,
+    return Finding(rule="rule-failed", severity=engine_severity("rule-failed"),
                    message=f"{what} failed: {type(error).__name__}: {error}", path=stage.path,
                    line=stage.origin.line, column=stage.origin.column, stage=stage.name)
 
@@ -382,7 +384,7 @@ def _cautions(stage: Stage) -> tuple[list[Caution], list[Finding]]:
     notes = []
     for waiver in stale:
         target = f"on {waiver.element}" if waiver.element else f"on stage {stage.name}"
-        notes.append(Finding(rule="waiver-stale", severity=Severity.INFO,
+        notes.append(Finding(rule="waiver-stale", severity=engine_severity("waiver-stale"),
                              message=f"waiver of {waiver.rule} {target} matched no caution;"
                                      " remove it", path=waiver.origin.path,
                              line=waiver.origin.line, column=waiver.origin.column,
@@ -533,11 +535,11 @@ def _answer_verdicts(stage: Stage, verdicts: list[Verdict], findings: list[Findi
         verdict = replace(verdict, explained_by=explaining)
         answered.append(verdict)
         if verdict.not_met and not explaining:
-            rule_id, severity = REQUIREMENT_UNMET, Severity.ERROR
+            rule_id = REQUIREMENT_UNMET
             message = (f"requirement {verdict.requirement} {verdict.required} is not met:"
                        f" {verdict.statement}; {verdict.reason}")
         elif verdict.unchecked:
-            rule_id, severity = REQUIREMENT_UNCHECKED, Severity.INFO
+            rule_id = REQUIREMENT_UNCHECKED
             message = (f"could not check requirement {verdict.requirement}"
                        f" {verdict.required}: {verdict.reason}")
         else:
@@ -545,7 +547,7 @@ def _answer_verdicts(stage: Stage, verdicts: list[Verdict], findings: list[Findi
         if (options.select is not None and rule_id not in options.select) \
                 or rule_id in options.ignore:
             continue
-        extra.append(Finding(rule=rule_id, severity=severity, message=message,
+        extra.append(Finding(rule=rule_id, severity=engine_severity(rule_id), message=message,
                              path=verdict.path, line=verdict.line, column=verdict.column,
                              stage=stage.name, measured=verdict.measured, limit=verdict.limit,
                              unit=verdict.unit,
@@ -564,8 +566,8 @@ def apply_waivers(stage: Stage, findings: list[Finding], ran: set[str],
         origin = waiver.origin
         target = f"on {waiver.element}" if waiver.element else f"on stage {stage.name}"
 
-        def report(rule_id: str, severity: Severity, message: str) -> None:
-            extra.append(Finding(rule=rule_id, severity=severity, message=message,
+        def report(rule_id: str, message: str) -> None:
+            extra.append(Finding(rule=rule_id, severity=engine_severity(rule_id), message=message,
                                  path=origin.path, line=origin.line, column=origin.column,
                                  stage=stage.name,
                                  elements=(waiver.element,) if waiver.element else ()))
@@ -577,11 +579,11 @@ def apply_waivers(stage: Stage, findings: list[Finding], ran: set[str],
             close = difflib.get_close_matches(waiver.rule, sorted(set(known) | set(CAUTION_KINDS)),
                                               n=1)
             hint = f"; did you mean {close[0]!r}?" if close else ""
-            report("waiver-invalid", Severity.ERROR,
+            report("waiver-invalid",
                    f"waiver {target} names no known rule {waiver.rule!r}{hint}")
             continue
         if waiver.reason is None:
-            report("waiver-invalid", Severity.ERROR,
+            report("waiver-invalid",
                    f"waiver of {waiver.rule} {target} gives no reason: write"
                    f' (waive {waiver.rule} "why this is acceptable")')
             continue
@@ -594,6 +596,6 @@ def apply_waivers(stage: Stage, findings: list[Finding], ran: set[str],
                 result[i] = replace(finding, waiver=waiver.reason)
                 matched = True
         if not matched and waiver.rule in ran:
-            report("waiver-stale", Severity.INFO,
+            report("waiver-stale",
                    f"waiver of {waiver.rule} {target} matched no finding; remove it")
     return result + extra

@@ -103,6 +103,8 @@ INPUT_RULE = "input-invalid"
 
 def input_finding(problem) -> Finding:
     """A reader or builder problem as a finding of the ``input-invalid`` rule."""
-    return Finding(rule=INPUT_RULE, severity=Severity.ERROR, message=problem.message,
+    from checker.catalogue import engine_severity  # the catalogue imports this module
+
+    return Finding(rule=INPUT_RULE, severity=engine_severity(INPUT_RULE), message=problem.message,
                    path=problem.path, line=problem.line, column=problem.column,
                    elements=(problem.element,) if problem.element else ())

@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 from checker.cautions import KINDS as CAUTION_KINDS
-from checker.engine import DOC_SECTIONS, ENGINE_RULES, ENGINE_SEVERITIES, Rule
+from checker.catalogue import ENGINE_CATALOGUE
+from checker.engine import DOC_SECTIONS, Rule
 
 
 def rules_markdown(rules: dict[str, Rule]) -> str:
@@ -13,8 +14,9 @@ def rules_markdown(rules: dict[str, Rule]) -> str:
              "| id | default severity | summary |", "|---|---|---|"]
     for rule in rules.values():
         lines.append(f"| [`{rule.id}`](#{rule.id}) | {rule.severity.label} | {rule.summary} |")
-    for rid, summary in ENGINE_RULES.items():
-        lines.append(f"| `{rid}` | {ENGINE_SEVERITIES[rid].label} | {summary} (engine) |")
+    for item in ENGINE_CATALOGUE.values():
+        lines.append(f"| [`{item.id}`](#{item.id}) | {item.severity.label} | {item.summary}"
+                     " (engine) |")
     for kind in CAUTION_KINDS.values():
         lines.append(f"| [`{kind.id}`](#{kind.id}) | caution | {kind.summary} (safety"
                      " caution) |")
@@ -27,6 +29,15 @@ def rules_markdown(rules: dict[str, Rule]) -> str:
         sections = rule.sections()
         for heading in DOC_SECTIONS:
             text = " ".join(sections.get(heading, "").split())
+            lines += ["", f"### {heading}", "", text]
+    lines += ["", "## Engine findings", "",
+              "The engine emits these itself (a file it cannot read, a waiver or baseline"
+              " entry that matched nothing, a requirement no rule explains); each is"
+              " emitted with the severity shown."]
+    for item in ENGINE_CATALOGUE.values():
+        lines += ["", f"## {item.id}", "", f"*{item.summary}* Emitted as"
+                  f" **{item.severity.label}** by the engine."]
+        for heading, text in item.sections().items():
             lines += ["", f"### {heading}", "", text]
     lines += ["", "## Safety cautions", "",
               "Cautions are not rules: no selection, ignore list, configuration or severity"
