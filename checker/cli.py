@@ -197,6 +197,9 @@ def build_parser() -> argparse.ArgumentParser:
     parts = commands.add_parser("parts", help="list the op-amp parts in the library")
     parts.add_argument("--parts", action="append", default=[], metavar="FILE",
                        help="also load this part library file (repeatable)")
+    from checker import mend_command
+
+    mend_command.register(commands)
     return parser
 
 
@@ -737,6 +740,15 @@ def cmd_parts(args) -> int:
     return EXIT_OK
 
 
-COMMANDS = {"check": cmd_check, "schema": cmd_schema, "convert": cmd_convert,
+def cmd_mend(args) -> int:
+    from checker.mend_command import MendError, run
+
+    try:
+        return run(args)
+    except MendError as error:
+        raise UsageError(str(error)) from None
+
+
+COMMANDS = {"mend": cmd_mend, "check": cmd_check, "schema": cmd_schema, "convert": cmd_convert,
             "parts": cmd_parts, "rules": cmd_rules, "explain": cmd_explain,
             "config": cmd_config, "extract": cmd_extract}

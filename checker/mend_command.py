@@ -1,0 +1,107 @@
+"""`ampcheck mend FILE`: a stage file's verified fixes written into a new file, shown as
+a unified diff, or (with --in-place only) written over the file itself."""
+
+from __future__ import annotations
+
+import difflib
+import os
+import sys
+
+from checker.io.load import STAGE_ENDINGS
+
+EXIT_OK, EXIT_FINDINGS, EXIT_USAGE = 0, 1, 2
+
+
+class MendError(Exception):
+    """A usage problem, for cli.py to print (exit 2)."""
+
+
+def register(commands) -> None:
+    """The subcommand's arguments, on cli.py's subparsers."""
+    mend = commands.add_parser("mend", help="write a stage file's verified fixes into a"
+                               " new file, or show them as a diff")
+    mend.add_argument("file", metavar="FILE", help="a stage file (.stage or .stage.json)")
+    where = mend.add_mutually_exclusive_group()
+    where.add_argument("--to", metavar="PATH", help="the new file (default: NAME.mended"
+                       ".stage beside the input)")
+    where.add_argument("--diff", action="store_true",
+                       help="print a unified diff instead of writing a file")
+    where.add_argument("--in-place", action="store_true",
+                       help="write the fixes over FILE itself")
+    mend.add_argument("--parts", action="append", default=[], metavar="FILE",
+                      help="a part library file (repeatable)")
+    mend.add_argument("--config", metavar="FILE", help="use this configuration file")
+    mend.add_argument("--no-config", action="store_true", help="ignore configuration files")
+
+
+def mended_path(path: str) -> str:
+    """conductivity.stage -> conductivity.mended.stage (x.stage.json ->
+    x.mended.stage.json)."""
+    for ending in sorted(STAGE_ENDINGS, key=len, reverse=True):
+        if path.endswith(ending):
+            return path[: -len(ending)] + ".mended" + ending
+    return path + ".mended"
+
+
+def run(args) -> int:
+    from checker import audit
+    from checker.config import ConfigError
+    from checker.engine import RuleError
+    from checker.io.load import parse_text, read_text
+    from checker.io.positions import InputErrors
+    from checker.io.write import write_new_file
+    from checker.mend import mend_text
+
+    path = args.file
+    if not os.path.exists(path):
+        raise MendError(f"no such file {path}")
+    if not path.endswith(STAGE_ENDINGS):
+        raise MendError(f"{path} is not a stage file (*.stage, *.stage.json): mend edits"
+                        " stage files only; for a netlist, `ampcheck extract` writes its"
+                        " stages as stage files, or change the schematic")
+    if args.config and not os.path.isfile(args.config):
+        raise MendError(f"--config: no such file {args.config}")
+    request = audit.Request(config_file=args.config, parts=tuple(args.parts),
+                            use_config=not args.no_config, figures_wanted=False)
+    try:
+        text = read_text(path)
+        parsed = parse_text(text, path)
+    except InputErrors as errors:
+        for problem in errors.problems:
+            print(problem, file=sys.stderr)
+        print(f"ampcheck mend: {path} is not mended: it does not read", file=sys.stderr)
+        return EXIT_FINDINGS
+    try:
+        result = audit.reviewed(path, request)
+    except (ConfigError, RuleError) as error:
+        raise MendError(str(error)) from None
+    if result.problems:
+        for finding in result.problems:
+            print(f"{finding.path}:{finding.line}:{finding.column}: {finding.message}",
+                  file=sys.stderr)
+        print(f"ampcheck mend: {path} is not mended: it does not build", file=sys.stderr)
+        return EXIT_FINDINGS
+    mended = mend_text(text, parsed, {s.name: s.findings for s in result.stages})
+    for outcome in mended.outcomes:
+        where = f"{path}:{outcome.line}: {outcome.rule} [{', '.join(outcome.elements)}]"
+        if outcome.applied:
+            print(f"applied  {where}: {outcome.text}", file=sys.stderr)
+        else:
+            print(f"left out {where}: {outcome.why}", file=sys.stderr)
+    if not mended.applied:
+        print(f"ampcheck mend: no verified fix to apply in {path}; nothing written",
+              file=sys.stderr)
+        return EXIT_OK
+    if args.diff:
+        sys.stdout.writelines(difflib.unified_diff(
+            text.splitlines(keepends=True), mended.text.splitlines(keepends=True),
+            fromfile=path, tofile=mended_path(path)))
+        return EXIT_OK
+    target = path if args.in_place else (args.to or mended_path(path))
+    try:
+        write_new_file(target, mended.text, protect=[] if args.in_place else [path])
+    except (OSError, ValueError) as error:
+        raise MendError(str(error)) from None
+    print(f"ampcheck mend: {len(mended.applied)} fix{'es' if len(mended.applied) != 1 else ''}"
+          f" written to {target}", file=sys.stderr)
+    return EXIT_OK
