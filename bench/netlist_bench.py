@@ -37,7 +37,7 @@ def board(pairs: int) -> str:
     for i in range(pairs):
         src = f"in{i}"
         lines += [f"* pair {i}",
-                  f"R{i}a {src} fb{i} 10k", f"R{i}b fb{i} g{i}", f"+ 47k",
+                  f"R{i}a {src} fb{i} 10k", f"R{i}b fb{i} g{i}", "+ 47k",
                   f"C{i}a fb{i} g{i} 10p", f"XUa{i} 0 fb{i} vcc vee g{i} OPX",
                   f"R{i}c g{i} s{i}a 22k", f"R{i}d s{i}a s{i}b 22k",
                   f"C{i}b s{i}a in{i + 1} 100n", f"C{i}c s{i}b 0 47n",

@@ -699,10 +699,7 @@ def cmd_convert(args) -> int:
         for problem in errors.problems:
             print(problem, file=sys.stderr)
         return EXIT_FINDINGS
-    if args.to == "json":
-        text = json.dumps(parsed.tree, indent=2, ensure_ascii=False) + "\n"
-    else:
-        text = write_sexp(parsed.tree)
+    text = json.dumps(parsed.tree, indent=2, ensure_ascii=False) + "\n" if args.to == "json" else write_sexp(parsed.tree)
     if args.output is None:
         sys.stdout.write(text)
         return EXIT_OK

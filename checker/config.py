@@ -76,7 +76,7 @@ class Config:
         item = self.values.get(key)
         return default if item is None else item.value
 
-    def for_file(self, path: str) -> "Config":
+    def for_file(self, path: str) -> Config:
         """This configuration with the overrides whose globs match ``path`` applied."""
         if not self.overrides or self.path is None:
             return self

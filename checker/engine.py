@@ -51,7 +51,7 @@ class Rule:
     severity: Severity
     summary: str
     settings: dict[str, float]
-    check: Callable[["StageView"], Iterable[Finding]]
+    check: Callable[[StageView], Iterable[Finding]]
     module: str
 
     @property
@@ -231,7 +231,7 @@ class RunOptions:
     # alone; every real run judges every stated requirement.
     judge_requirements: bool = True
 
-    def settings_of(self, rule_id: str, rules: dict[str, "Rule"] | None = None) -> dict:
+    def settings_of(self, rule_id: str, rules: dict[str, Rule] | None = None) -> dict:
         """A rule's settings: its defaults (when known) with the configured ones on top."""
         merged = dict(rules[rule_id].settings) if rules and rule_id in rules else {}
         merged.update(self.settings.get(rule_id, {}))
@@ -287,10 +287,10 @@ def _checked_over_supply_ends(stage: Stage, figures: dict[str, Figures], rules: 
         at_ends.append((label, check_stage(variant, siblings[stage.name], rules, options,
                                            siblings, catalogue)))
     return StageCheck(
-        sorted(merged_findings(nominal.findings, [(l, c.findings) for l, c in at_ends]),
+        sorted(merged_findings(nominal.findings, [(end, c.findings) for end, c in at_ends]),
                key=Finding.sort_key),
-        merged_verdicts(nominal.verdicts, [(l, c.verdicts) for l, c in at_ends]),
-        merged_cautions(nominal.cautions, [(l, c.cautions) for l, c in at_ends]))
+        merged_verdicts(nominal.verdicts, [(end, c.verdicts) for end, c in at_ends]),
+        merged_cautions(nominal.cautions, [(end, c.cautions) for end, c in at_ends]))
 
 
 def _structural_findings(stage: Stage, figures: Figures) -> list[Finding]:

@@ -49,9 +49,7 @@ def discover(paths: list[str], netlists_wanted=None) -> tuple[list[str], list[Fi
             for root, dirs, names in os.walk(path, onerror=unreadable):
                 dirs[:] = sorted(d for d in dirs if not d.startswith("."))
                 for name in names:
-                    if name.endswith(STAGE_ENDINGS):
-                        found.add(os.path.normpath(os.path.join(root, name)))
-                    elif netlists_wanted is not None and \
+                    if name.endswith(STAGE_ENDINGS) or netlists_wanted is not None and \
                             name.lower().endswith(NETLIST_ENDINGS) and \
                             netlists_wanted(os.path.join(root, name)):
                         found.add(os.path.normpath(os.path.join(root, name)))

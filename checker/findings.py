@@ -18,7 +18,7 @@ class Severity(enum.IntEnum):
         return self.name.lower()
 
     @classmethod
-    def parse(cls, text: str) -> "Severity":
+    def parse(cls, text: str) -> Severity:
         try:
             return cls[text.upper()]
         except KeyError:

@@ -311,7 +311,7 @@ def format_si(value: float | None, unit: str = "", digits: int = 3) -> str:
         return f"0 {unit}"
     if magnitude >= 999.5e15 or magnitude < 0.9995e-15:  # beyond the prefixes: plain exponent
         return f"{value:.{digits}g} {unit}"
-    for factor, prefix in _FORMAT_PREFIXES:
+    for factor, prefix in _FORMAT_PREFIXES:  # noqa: B007 (read after the loop)
         if magnitude >= factor * 0.9995:
             break
     scaled = value / factor

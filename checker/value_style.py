@@ -28,7 +28,7 @@ class Style:
     number: bool = False  # a plain JSON number, not a string
 
     @classmethod
-    def of(cls, example, same_kind: bool = True) -> "Style":
+    def of(cls, example, same_kind: bool = True) -> Style:
         """The style of ``example`` (a text or a JSON number); the unit is kept only
         when ``same_kind`` (a capacitor does not take a resistor's ohms)."""
         if isinstance(example, (int, float)) and not isinstance(example, bool):

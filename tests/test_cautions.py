@@ -329,7 +329,7 @@ def test_a_waiver_acknowledges_the_caution_and_it_stays_in_every_format(project,
     _, text, _ = run(capsys, "check", "piezo.stage")
     assert "Cautions (1)" in text and f"acknowledged: {reason}" in text
     _, compact, _ = run(capsys, "check", "piezo.stage", "--format", "compact")
-    assert f"caution high-voltage: " in compact and f"[acknowledged: {reason}]" in compact
+    assert "caution high-voltage: " in compact and f"[acknowledged: {reason}]" in compact
     _, sarif, _ = run(capsys, "check", "piezo.stage", "--format", "sarif")
     result = next(r for r in json.loads(sarif)["runs"][0]["results"]
                   if r["ruleId"] == "high-voltage")

@@ -24,7 +24,7 @@ XU2 n2 out2 vcc vee out2 OA
 """)
     assert opamp_refs(stages) == {"u1": ["U1"], "u2": ["U2"]}
     first, second = stages["u1"], stages["u2"]
-    assert [(l.net, l.feeds_stage, l.feeds_net) for l in first.loads] == [("out1", "u2", "out1")]
+    assert [(ld.net, ld.feeds_stage, ld.feeds_net) for ld in first.loads] == [("out1", "u2", "out1")]
     assert [s.net for s in second.sources] == ["out1"]
     # the passives between the two outputs belong to the stage that reads them
     assert {p.ref for p in first.passives} == {"R1", "R2"}
@@ -147,7 +147,7 @@ XU1 in out vcc vee out OA
 """, IDEAL_MAP_HEADER + "(connector CONN)\n(at-net out (load (resistance 2k)))\n")
     stage = stages["u1"]
     assert [s.net for s in stage.sources] == ["in"]
-    assert [(l.net, l.resistance_ohm) for l in stage.loads] == [("out", 2000.0)]
+    assert [(ld.net, ld.resistance_ohm) for ld in stage.loads] == [("out", 2000.0)]
 
 
 def test_declared_sources_loads_rails_and_requirements_come_from_the_map():

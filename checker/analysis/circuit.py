@@ -66,7 +66,7 @@ class GainBlock:
     pole2_hz: float | None
     output_resistance_ohm: float
 
-    def with_gbw(self, gbw_hz: float) -> "GainBlock":
+    def with_gbw(self, gbw_hz: float) -> GainBlock:
         """The same block with another GBW, A0 and the second pole kept (p1 = GBW/A0)."""
         return replace(self, pole1_hz=gbw_hz / self.open_loop_gain)
 
@@ -128,7 +128,7 @@ def build_circuit(stage: Stage, stray_capacitance_f: float = 0.0) -> Circuit:
     circuit = Circuit(node_names=list(names))
     index = {name: i for i, name in enumerate(circuit.node_names)}
 
-    for net, volts in sorted(stage.rail_voltages.items()):
+    for net, _volts in sorted(stage.rail_voltages.items()):
         if net == stage.ground:
             continue
         circuit.supply_branch[net] = len(circuit.branches)

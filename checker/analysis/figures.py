@@ -27,7 +27,7 @@ from checker.analysis.solution import Solution
 from checker.model import Stage
 
 
-def analyse(stage: Stage, options: AnalysisOptions | None = None) -> "Figures":
+def analyse(stage: Stage, options: AnalysisOptions | None = None) -> Figures:
     """Lazily computed figures of ``stage``."""
     return Figures(stage, options or AnalysisOptions())
 

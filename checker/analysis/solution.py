@@ -36,11 +36,11 @@ class Excitation(NamedTuple):
     key: object = None
 
     @classmethod
-    def source(cls, index: int) -> "Excitation":
+    def source(cls, index: int) -> Excitation:
         return cls("source", index)
 
     @classmethod
-    def loop(cls, ref: str) -> "Excitation":
+    def loop(cls, ref: str) -> Excitation:
         return cls("loop", ref)
 
 

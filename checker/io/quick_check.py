@@ -47,10 +47,7 @@ def _all_of(checks: list):
         return lambda instance: first(instance) and second(instance)
 
     def every(instance) -> bool:
-        for check in checks:
-            if not check(instance):
-                return False
-        return True
+        return all(check(instance) for check in checks)
 
     return every
 
@@ -100,10 +97,7 @@ def _items(value, schema):
     def items(v) -> bool:
         if not isinstance(v, list):
             return True
-        for item in v:
-            if not check(item):
-                return False
-        return True
+        return all(check(item) for item in v)
 
     return items
 

@@ -76,7 +76,7 @@ def _form_schema(name: str, form: Form) -> dict:
     properties: dict[str, dict] = {}
     for key, _count, _optional in positional_slots(form):
         properties[key] = _FIELDS.get(key, _VALUE)
-    for keyword, child in form.children.items():
+    for _keyword, child in form.children.items():
         if child.shape == "scalar":
             item = _FIELDS.get(child.key, _VALUE)
         elif child.shape == "pair":

@@ -15,6 +15,7 @@ import errno
 import os
 import stat
 import tempfile
+import contextlib
 
 TEMPORARY_PREFIX, TEMPORARY_SUFFIX = ".ampcheck-", ".tmp"
 
@@ -99,10 +100,8 @@ class AtomicOutput:
 
     def _remove(self) -> None:
         if self.temporary is not None:
-            try:
+            with contextlib.suppress(FileNotFoundError):
                 os.unlink(self.temporary)
-            except FileNotFoundError:
-                pass
             self.temporary = None
 
 

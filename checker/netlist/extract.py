@@ -718,7 +718,7 @@ class _StageTrees:
         stage_nets: list[set[str]] = []
         self.feeds: dict[int, list[tuple[str, str]]] = {n: [] for n in range(len(self.groups))}
         members = [self.members(n) for n in range(len(self.groups))]
-        for n, (opamps, passives, nets) in enumerate(members):
+        for n, (_opamps, _passives, nets) in enumerate(members):
             for net in sorted(nets):
                 for driver in self.outputs.get(net, []):
                     upstream = self.group_of[driver]

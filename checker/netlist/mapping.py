@@ -135,7 +135,7 @@ class Scope:
     edges: dict[str, EdgeDeclaration] = field(default_factory=dict)
     stages: dict[str, StageDeclaration] = field(default_factory=dict)
 
-    def merged(self, board: "Scope") -> "Scope":
+    def merged(self, board: Scope) -> Scope:
         """This scope with ``board``'s declarations on top."""
         return Scope({**self.rails, **board.rails}, {**self.grounds, **board.grounds},
                      {**self.edges, **board.edges}, {**self.stages, **board.stages})

@@ -164,7 +164,7 @@ class Writer(BaseWriter):
         self.cautions: list[dict] = []  # few, shown first in the overview
         self.spool = None
         if folder is None:
-            self.spool = tempfile.TemporaryFile("w+", encoding="utf-8", newline="")
+            self.spool = tempfile.TemporaryFile("w+", encoding="utf-8", newline="")  # noqa: SIM115 (closed in close())
         else:
             os.makedirs(os.path.join(folder, STAGE_FOLDER), exist_ok=True)
 
