@@ -16,6 +16,7 @@ import os
 import pkgutil
 import re
 import sys
+import textwrap
 from collections.abc import Callable, Iterable
 from dataclasses import dataclass, field, replace
 from types import ModuleType
@@ -36,6 +37,9 @@ from checker.supply_ends import merged_cautions, merged_findings, merged_verdict
 MARGIN_POINTS = 50
 RULE_ID = re.compile(r"^[a-z][a-z0-9]*(-[a-z0-9]+)*$")
 DOC_SECTIONS = ("What it checks", "Why it matters", "How the fix is computed", "Sources")
+# Each built-in rule's docstring ends with a small stage the rule passes and one it fails;
+# tests/test_rule_examples.py checks both, so the docs cannot drift from the rule.
+EXAMPLE_SECTIONS = ("Passes", "Fails")
 # The engine's own findings: their ids, summaries and severities (checker/catalogue.py).
 from checker.catalogue import (ENGINE_RULES, ENGINE_SEVERITIES, REQUIREMENT_UNCHECKED,  # noqa: E402,F401
                                REQUIREMENT_UNMET, engine_severity)
@@ -59,17 +63,26 @@ class Rule:
         return inspect.cleandoc(self.check.__doc__ or "")
 
     def sections(self) -> dict[str, str]:
-        """The docstring's sections by heading (a heading is a line ending in ':')."""
+        """The docstring's prose sections by heading (a heading is a line ending in ':');
+        an example heading ends the section before it."""
+        return {k: v for k, v in self._blocks().items() if k in DOC_SECTIONS}
+
+    def examples(self) -> dict[str, str]:
+        """The docstring's example stages by heading (``Passes``, ``Fails``), as stage
+        text without the docstring's indentation."""
+        return {k: v for k, v in self._blocks().items() if k in EXAMPLE_SECTIONS}
+
+    def _blocks(self) -> dict[str, str]:
         found: dict[str, list[str]] = {}
         current = None
         for line in self.doc.splitlines():
             heading = line.strip().rstrip(":")
-            if line.strip().endswith(":") and heading in DOC_SECTIONS:
+            if line.strip().endswith(":") and heading in DOC_SECTIONS + EXAMPLE_SECTIONS:
                 current = heading
                 found[current] = []
             elif current:
                 found[current].append(line)
-        return {k: "\n".join(v).strip() for k, v in found.items()}
+        return {k: textwrap.dedent("\n".join(v)).strip() for k, v in found.items()}
 
 
 def rule(id: str, severity: str, summary: str, **settings: float):

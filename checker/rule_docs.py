@@ -4,7 +4,9 @@ from __future__ import annotations
 
 from checker.cautions import KINDS as CAUTION_KINDS
 from checker.catalogue import ENGINE_CATALOGUE
-from checker.engine import DOC_SECTIONS, Rule
+from checker.engine import DOC_SECTIONS, EXAMPLE_SECTIONS, Rule
+
+EXAMPLE_TITLES = {"Passes": "A stage it passes", "Fails": "A stage it fails"}
 
 
 def rules_markdown(rules: dict[str, Rule]) -> str:
@@ -30,6 +32,11 @@ def rules_markdown(rules: dict[str, Rule]) -> str:
         for heading in DOC_SECTIONS:
             text = " ".join(sections.get(heading, "").split())
             lines += ["", f"### {heading}", "", text]
+        examples = rule.examples()
+        for heading in EXAMPLE_SECTIONS:
+            if heading in examples:
+                lines += ["", f"### {EXAMPLE_TITLES[heading]}", "", "```", examples[heading],
+                          "```"]
     lines += ["", "## Engine findings", "",
               "The engine emits these itself (a file it cannot read, a waiver or baseline"
               " entry that matched nothing, a requirement no rule explains); each is"

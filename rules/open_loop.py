@@ -45,6 +45,19 @@ def open_loop(view):
         Open-loop gain varies widely, so an op-amp without negative feedback is a
         comparator in disguise: common practice. Hysteresis divider: superposition
         on the non-inverting input (common practice).
+
+    Passes:
+        (stage level-buffer (ground gnd) (supply vcc 5V)
+          (opamp U1 (part cmos-rrio) (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 0.5V 3V) (band 0Hz 10Hz) (impedance 10k))
+          (load out (resistance 100k)))
+
+    Fails:
+        (stage flood-alarm (ground gnd) (supply vcc 5V)
+          (opamp U1 (part cmos-rrio) (in+ in) (in- ref) (out out) (v+ vcc) (v- gnd))
+          (resistor R1 vcc ref 100k) (resistor R2 ref gnd 47k)
+          (source in (range 0V 3.3V) (band 0Hz 1Hz) (impedance 10k))
+          (load out (resistance 1M)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     rails = stage.rail_voltages
