@@ -200,6 +200,9 @@ def build_parser() -> argparse.ArgumentParser:
     from checker import mend_command
 
     mend_command.register(commands)
+    from checker import rule_scaffold
+
+    rule_scaffold.register(commands)
     return parser
 
 
@@ -746,6 +749,18 @@ def cmd_mend(args) -> int:
         raise UsageError(str(error)) from None
 
 
-COMMANDS = {"mend": cmd_mend, "check": cmd_check, "schema": cmd_schema, "convert": cmd_convert,
+def cmd_new_rule(args) -> int:
+    from checker.cautions import KINDS as CAUTION_KINDS
+    from checker.engine import ENGINE_RULES
+    from checker.rule_scaffold import ScaffoldError, run
+
+    known = set(_rules(args.rules_dir)) | set(ENGINE_RULES) | set(CAUTION_KINDS)
+    try:
+        return run(args, known)
+    except (ScaffoldError, OSError) as error:
+        raise UsageError(str(error)) from None
+
+
+COMMANDS = {"new-rule": cmd_new_rule, "mend": cmd_mend, "check": cmd_check, "schema": cmd_schema, "convert": cmd_convert,
             "parts": cmd_parts, "rules": cmd_rules, "explain": cmd_explain,
             "config": cmd_config, "extract": cmd_extract}

@@ -46,3 +46,37 @@ def test_format_guide_error_lines_are_the_tools(tmp_path):
                            "--no-config"], capture_output=True, text=True, cwd=tmp_path)
     block = "  unclosed.stage:1:1  input-invalid\n      this '(' is never closed (a missing ')')"
     assert block in text.stdout and block in guide
+
+
+def _layout_table_modules() -> set[str]:
+    """Every module path DEVELOPERS.md's layout table names, prefixes resolved: a cell
+    `checker/report/html_page.py`, `mend_command.py` names the second in the first's
+    folder, and `checker/report/` names that whole folder."""
+    named: set[str] = set()
+    for line in (ROOT / "DEVELOPERS.md").read_text(encoding="utf-8").splitlines():
+        if not line.startswith("| `checker/"):
+            continue
+        cell = line.split("|")[1]
+        names = re.findall(r"`([^`]+)`", cell)
+        folder = names[0].rsplit("/", 1)[0] if "/" in names[0] else "checker"
+        for name in names:
+            if name.startswith("checker/"):
+                named.add(name)
+            elif "/" in name:
+                named.add("checker/" + name)
+            else:
+                named.add(f"{folder}/{name}")
+    return named
+
+
+def test_developers_layout_table_names_every_module():
+    named = _layout_table_modules()
+    folders = {n.rstrip("/") for n in named if n.endswith("/")}
+    modules = sorted(str(p.relative_to(ROOT)) for p in (ROOT / "checker").rglob("*.py")
+                     if p.name != "__init__.py")
+    missing = [m for m in modules
+               if m not in named and not any(m.startswith(f + "/") for f in folders)]
+    assert missing == []
+    gone = sorted(n for n in named if not n.endswith("/") and not (ROOT / n).exists()
+                  and not n.endswith("templates"))
+    assert gone == []
