@@ -1,11 +1,17 @@
-"""Benchmark of bulk audits: prints figures, asserts nothing.
+"""Benchmark of bulk audits and the cold start: prints figures, asserts nothing.
 
-Targets (issue: team workflow): one-file cold start of `ampcheck check` under 3x a bare
-`python -c "import numpy"`; at least 400 stages per second with 2 jobs; 2 jobs at least
-1.7x faster than 1; peak memory under 300 MB for 10,000 files, not growing with count.
+Every comparison is paired and interleaved (bench/paired.py): the cold one-file check
+against a bare `python -c "import numpy"` in the same rounds, 1 job against 2 jobs on
+the same set in turn; each figure is the median with its spread, in CPU and wall time.
+Peak memory is that of the largest process of each run (os.wait4), for two file counts,
+so a growth with the count shows.
 
-Run: .venv/bin/python bench/audit_bench.py [--files 2000] [--memory-files 10000]
-    [--audit-repeats 3]
+Targets (issue: performance): cold one-file check <= 2x `import numpy`; >= 1,000
+stages/s with 2 jobs on the plain set and >= 500 on the requirement set; 2 jobs >= 1.8x
+one; peak memory per process < 100 MB and flat in the file count.
+
+Run: .venv/bin/python bench/audit_bench.py [--files 2000] [--memory-files 4000]
+    [--rounds 3]
 from a virtual environment with a regular (not editable) install, so that the cold
 start reads compiled modules as a user's does.
 """
@@ -14,86 +20,67 @@ from __future__ import annotations
 
 import argparse
 import os
-import resource
-import statistics
-import subprocess
 import sys
 import tempfile
-import time
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 sys.path.insert(0, HERE)
 
 from generate_stages import generate  # noqa: E402
+from paired import Runs, paired_children, run_child, target  # noqa: E402
 
 _SCRIPT = os.path.join(os.path.dirname(sys.executable), "ampcheck")
 AMPCHECK = [_SCRIPT] if os.path.exists(_SCRIPT) else [sys.executable, "-m", "checker"]
+QUIET = ["--format", "compact", "--fail-on", "never", "--no-progress"]
 
 
-def wall(command: list[str], repeats: int) -> float:
-    times = []
-    for _ in range(repeats):
-        start = time.perf_counter()
-        subprocess.run(command, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
-                       cwd=tempfile.gettempdir(), check=True)
-        times.append(time.perf_counter() - start)
-    return statistics.median(times)
-
-
-def peak_rss_mb(command: list[str]) -> float:
-    """Peak resident memory of a child process tree's largest member, in MB."""
-    before = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
-    subprocess.run(command, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
-                   cwd=tempfile.gettempdir(), check=True)
-    after = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
-    return max(after, before) / 1024
+def audit(folder: str, jobs: int) -> list[str]:
+    return AMPCHECK + ["check", folder, "--jobs", str(jobs)] + QUIET
 
 
 def main() -> None:
     parser = argparse.ArgumentParser()
     parser.add_argument("--files", type=int, default=2000)
-    parser.add_argument("--memory-files", type=int, default=10000)
-    parser.add_argument("--repeats", type=int, default=7, help="cold-start runs")
-    parser.add_argument("--audit-repeats", type=int, default=3,
-                        help="runs of each audit, 1 and 2 jobs alternating (the median is"
-                             " reported: a shared machine's speed drifts by tens of"
-                             " percent between runs)")
+    parser.add_argument("--memory-files", type=int, default=4000)
+    parser.add_argument("--rounds", type=int, default=3)
+    parser.add_argument("--cold-rounds", type=int, default=9)
     args = parser.parse_args()
     with tempfile.TemporaryDirectory() as folder:
         one = generate(os.path.join(folder, "one"), 1)[0]
-        numpy_s = wall([sys.executable, "-c", "import numpy"], args.repeats)
-        cold_s = wall(AMPCHECK + ["check", one, "--fail-on", "never"], args.repeats)
-        print(f"cold start, one file: {cold_s * 1e3:.0f} ms median; bare numpy import"
-              f" {numpy_s * 1e3:.0f} ms; ratio {cold_s / numpy_s:.2f} (target < 3)")
+        cold = paired_children({"cold check": AMPCHECK + ["check", one] + QUIET},
+                               args.cold_rounds)
+        ratio = cold["cold check"].wall_median / cold["numpy import"].wall_median
+        print(f"cold one-file check: {cold['cold check'].wall_text()} wall,"
+              f" {cold['cold check'].cpu_text()} CPU; bare numpy import"
+              f" {cold['numpy import'].wall_text()} wall; ratio {ratio:.2f}"
+              f" {target(ratio, 2.0)}")
 
-        paths = generate(os.path.join(folder, "audit"), args.files)
-        # 1 and 2 jobs alternate, so a drift of the shared machine's speed hits both;
-        # a bare numpy import timed beside each pair shows how fast the machine was.
-        times: dict[int, list[float]] = {1: [], 2: []}
-        probes = []
-        for _ in range(args.audit_repeats):
+        for name, requirements, goal in (("plain", False, 1000), ("requirement", True, 500)):
+            target_folder = os.path.join(folder, name)
+            paths = generate(target_folder, args.files, requirements=requirements)
+            runs = paired_children({f"{jobs} job(s)": audit(target_folder, jobs)
+                                    for jobs in (1, 2)}, args.rounds)
+            rates = {jobs: len(paths) / runs[f"{jobs} job(s)"].wall_median for jobs in (1, 2)}
             for jobs in (1, 2):
-                times[jobs].append(wall(AMPCHECK + [
-                    "check", os.path.join(folder, "audit"), "--jobs", str(jobs), "--format",
-                    "compact", "--fail-on", "never"], 1))
-            probes.append(wall([sys.executable, "-c", "import numpy"], 3))
-        rates = {jobs: len(paths) / statistics.median(seconds)
-                 for jobs, seconds in times.items()}
-        for jobs in (1, 2):
-            runs = ", ".join(f"{len(paths) / t:.0f}" for t in times[jobs])
-            print(f"{len(paths)} files, {jobs} job(s): {rates[jobs]:.0f} stages/s median"
-                  f" (runs: {runs}){' (target >= 400)' if jobs == 2 else ''}")
-        print(f"speedup of 2 jobs over 1: {rates[2] / rates[1]:.2f}x (target >= 1.7)")
-        print("machine speed beside those runs: bare numpy import "
-              + ", ".join(f"{p * 1e3:.0f}" for p in probes) + " ms")
+                r = runs[f"{jobs} job(s)"]
+                print(f"{name} set, {len(paths)} files, {jobs} job(s): {rates[jobs]:.0f}"
+                      f" stages/s (wall {r.wall_text(1.0, 's')}, CPU {r.cpu_text(1.0, 's')})"
+                      + (f" {target(rates[2], goal, at_most=False)}" if jobs == 2 else ""))
+            speedup = rates[2] / rates[1]
+            print(f"{name} set: 2 jobs over 1 {speedup:.2f}x {target(speedup, 1.8, False)};"
+                  f" machine speed beside: numpy import {runs['numpy import'].wall_text()}")
 
-        for count in (args.memory_files // 5, args.memory_files):
-            target = os.path.join(folder, f"memory{count}")
-            generate(target, count)
-            peak = peak_rss_mb(AMPCHECK + ["check", target, "--jobs", "2", "--format",
-                                           "compact", "--fail-on", "never"])
-            print(f"{count} files, 2 jobs: peak memory {peak:.0f} MB (target < 300,"
-                  " not growing with the count)")
+        for name, requirements in (("plain", False), ("requirement", True)):
+            peaks = []
+            for count in (args.memory_files // 4, args.memory_files):
+                target_folder = os.path.join(folder, f"memory-{name}-{count}")
+                generate(target_folder, count, requirements=requirements)
+                runs = Runs()
+                run_child(audit(target_folder, 2), runs)
+                peaks.append((count, runs.peak_mb_max))
+            print(f"{name} set, 2 jobs, peak memory of the largest process: "
+                  + ", ".join(f"{count} files {mb:.0f} MB" for count, mb in peaks)
+                  + f" {target(max(mb for _c, mb in peaks), 100.0)}")
 
 
 if __name__ == "__main__":

@@ -5,7 +5,13 @@ values, and about 2 % broken files (syntax errors, unknown parts, bad units). Wi
 ``--hostile F`` a share F of the files are the worst-case families of hostile_bench.py
 (in turn), and byte-level garbage: the audit must report every one of them.
 
+With ``--requirements`` every stage states requirements as the samples do (gain with a
+tolerance, bandwidth, DC error, noise, phase margin), its resistors carry tolerances and
+its source a band: the requirement set, on which the heaviest rules (the tolerance
+analyses, noise, the requirement verdicts) run.
+
 Run: .venv/bin/python bench/generate_stages.py FOLDER N [--seed S] [--hostile F]
+    [--requirements]
 """
 
 from __future__ import annotations
@@ -16,6 +22,7 @@ import os
 import random
 
 from checker.io.sexp_reader import read_sexp
+from checker.units import parse_value
 
 PARTS = ["gp-bipolar", "precision-bipolar", "jfet-input", "cmos-rrio", "high-speed",
          "decomp-bipolar-g5"]
@@ -34,7 +41,29 @@ def value(rng: random.Random, low_exp: int, high_exp: int, unit: str = "") -> st
     return f"{number:.3g}{unit}"
 
 
-def stage_text(rng: random.Random, index: int) -> str:
+# Ideal closed-loop gain of each kind from its resistors (common practice: -R2/R1,
+# 1 + R2/R1, a follower, a T-network, a unity difference amplifier); None: no linear gain
+# to require (a comparator).
+def ideal_gain(kind: int, r1: float, r2: float, r4: float) -> float | None:
+    return {0: -r2 / r1, 1: 1 + r2 / r1, 2: 1.0, 3: -(2 * r1 + r1 * r1 / r4) / r1,
+            4: None, 5: -r2 / r1, 6: None, 7: None}[kind]
+
+
+def requirement_text(rng: random.Random, gain: float | None) -> str:
+    """A requirement like the samples': the gain within a tolerance (stated a little off
+    the ideal now and then, as a legacy design drifts), bandwidth, DC error, noise and
+    phase margin."""
+    items = []
+    if gain is not None:
+        stated = gain * rng.choice([1.0, 1.0, 1.0, 1.03])
+        items.append(f"(gain {stated:.4g}) (gain-tolerance {rng.choice(['1%', '2%', '5%'])})")
+    items.append(f"(bandwidth {rng.choice(['500Hz', '1kHz', '5kHz'])})")
+    items.append(f"(dc-error {rng.choice(['5mV', '20mV', '50mV'])})")
+    items.append(f"(noise {rng.choice(['20uV', '100uV'])}) (phase-margin 45deg)")
+    return "(require " + " ".join(items) + ")"
+
+
+def stage_text(rng: random.Random, index: int, requirements: bool = False) -> str:
     """One plausible stage of eight kinds; about one in five carries a deliberate defect
     (as in a legacy audit, where most stages pass)."""
     part = rng.choice(PARTS[:4])
@@ -70,8 +99,17 @@ def stage_text(rng: random.Random, index: int) -> str:
             f" {value(rng, -9, -8)}) (resistor R2 fb out {value(rng, 5, 5)})"),
     }[kind]
     extra = f" (source in2 (range -0.2V 0.2V) (impedance {impedance}))" if kind == 4 else ""
-    return (f"(stage bench-{index} {rails}\n  {body[0]}\n  {body[1]}\n  {source}{extra}\n"
-            f"  {load})\n")
+    if not requirements:
+        return (f"(stage bench-{index} {rails}\n  {body[0]}\n  {body[1]}\n  {source}{extra}\n"
+                f"  {load})\n")
+    network = body[1]
+    if kind not in (4, 6):  # the difference amplifier states 0.1 %; the divider is exact
+        network = network.replace(")", " (tolerance 1%))")
+    r4 = body[1].split("R4 tee gnd ")[1].split(")")[0] if kind == 3 else "1k"
+    gain = ideal_gain(kind, parse_value(r1, "resistance"), parse_value(r2, "resistance"),
+                      parse_value(r4, "resistance"))
+    return (f"(stage bench-{index} {rails}\n  {body[0]}\n  {network}\n  {source}{extra}\n"
+            f"  {load}\n  {requirement_text(rng, gain)})\n")
 
 
 BROKEN = [
@@ -93,7 +131,8 @@ def hostile_texts() -> list[str | bytes]:
         b"(stage x \xff\xfe)", "(stage \"" + "a" * 100000]
 
 
-def generate(folder: str, count: int, seed: int = 7, hostile: float = 0.0) -> list[str]:
+def generate(folder: str, count: int, seed: int = 7, hostile: float = 0.0,
+             requirements: bool = False) -> list[str]:
     rng = random.Random(seed)
     os.makedirs(folder, exist_ok=True)
     paths = []
@@ -113,7 +152,7 @@ def generate(folder: str, count: int, seed: int = 7, hostile: float = 0.0) -> li
             path = os.path.join(sub, f"s{i:05d}.stage")
             text = rng.choice(BROKEN)
         else:
-            text = stage_text(rng, i)
+            text = stage_text(rng, i, requirements)
             if i % 3 == 0:
                 tree, _ = read_sexp(text, "generated")
                 path = os.path.join(sub, f"s{i:05d}.stage.json")
@@ -133,6 +172,8 @@ if __name__ == "__main__":
     parser.add_argument("--seed", type=int, default=7)
     parser.add_argument("--hostile", type=float, default=0.0,
                         help="share of hostile files (e.g. 0.01)")
+    parser.add_argument("--requirements", action="store_true",
+                        help="stages with requirements, tolerances and bands, like the samples")
     args = parser.parse_args()
-    written = generate(args.folder, args.count, args.seed, args.hostile)
+    written = generate(args.folder, args.count, args.seed, args.hostile, args.requirements)
     print(f"wrote {len(written)} files to {args.folder}")
