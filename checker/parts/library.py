@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import hashlib
+import re
 from functools import lru_cache
 from importlib import resources
 
@@ -13,12 +15,58 @@ from checker.model import OpAmpPart
 BUILTIN_FILE = "generic.parts"
 
 
-@lru_cache(maxsize=1)
-def builtin_parts() -> dict[str, OpAmpPart]:
-    """The built-in generic classes by name (invented names, typical values)."""
-    text = resources.files("checker.parts").joinpath(BUILTIN_FILE).read_text("utf-8")
+TABLE_MODULE = "checker/parts/builtin_table.py"
+
+
+def _builtin_text() -> str:
+    return resources.files("checker.parts").joinpath(BUILTIN_FILE).read_text("utf-8")
+
+
+def _digest(text: str) -> str:
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def parse_builtin_parts(text: str | None = None) -> dict[str, OpAmpPart]:
+    """The built-in classes read from generic.parts the full way (reader, schema,
+    builder)."""
+    text = _builtin_text() if text is None else text
     parsed = parse_text(text, f"<built-in>/{BUILTIN_FILE}", "sexp")
     return {part.name: part for part in build_parts(parsed, builtin=True)}
+
+
+@lru_cache(maxsize=1)
+def builtin_parts() -> dict[str, OpAmpPart]:
+    """The built-in generic classes by name (invented names, typical values).
+
+    Read from the generated table (checker/parts/builtin_table.py, compiled once by
+    Python) when its digest matches generic.parts, so a start does not re-parse the
+    library; parsed the full way when the file changed and the table was not made anew.
+    """
+    text = _builtin_text()
+    try:
+        from checker.parts import builtin_table
+    except ImportError:
+        return parse_builtin_parts(text)
+    if builtin_table.SOURCE_DIGEST != _digest(text):
+        return parse_builtin_parts(text)
+    return dict(builtin_table.PARTS)
+
+
+def builtin_table_source() -> str:
+    """The text of checker/parts/builtin_table.py for the current generic.parts."""
+    text = _builtin_text()
+    parts = parse_builtin_parts(text)
+    names = sorted(set(re.findall(r"\b([A-Z][A-Za-z]+)\(", repr(parts))))
+    lines = ['"""The built-in part classes of generic.parts, already read: generated, do not edit.',
+             "",
+             "Made anew by `python -m checker.parts.library`; checker/parts/library.py uses it",
+             "only while SOURCE_DIGEST matches generic.parts (tests/test_part_table.py).",
+             '"""', "", f"from checker.model import {', '.join(names)}", "",
+             f'SOURCE_DIGEST = "{_digest(text)}"', "", "PARTS = {"]
+    for name, part in parts.items():
+        lines.append(f"    {name!r}: {part!r},")
+    lines.append("}")
+    return "\n".join(lines) + "\n"
 
 
 def load_library(paths: list[str] = ()) -> dict[str, OpAmpPart]:
@@ -36,3 +84,12 @@ def load_library(paths: list[str] = ()) -> dict[str, OpAmpPart]:
         for part in build_parts(read_file(path)):
             library[part.name] = part
     return library
+
+
+if __name__ == "__main__":  # regenerate the table beside this module
+    import os
+
+    from checker.io.write import write_new_file
+
+    write_new_file(os.path.join(os.path.dirname(__file__), "builtin_table.py"),
+                   builtin_table_source())
