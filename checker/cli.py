@@ -195,6 +195,7 @@ def build_parser() -> argparse.ArgumentParser:
     extract.add_argument("--no-config", action="store_true", help="ignore configuration files")
 
     parts = commands.add_parser("parts", help="list the op-amp parts in the library")
+    parts.add_argument("name", nargs="?", help="show this one part in full")
     parts.add_argument("--parts", action="append", default=[], metavar="FILE",
                        help="also load this part library file (repeatable)")
     from checker import mend_command
@@ -734,9 +735,20 @@ def _extract_request(args):
 
 
 def cmd_parts(args) -> int:
-    from checker.report.summary import print_parts
+    import difflib
 
-    print_parts(_library(args.parts))
+    from checker.report.summary import print_part, print_parts
+
+    library = _library(args.parts)
+    if args.name is None:
+        print_parts(library)
+        return EXIT_OK
+    if args.name not in library:
+        near = difflib.get_close_matches(args.name, list(library), n=3, cutoff=0.4)
+        hint = f"; nearest: {', '.join(near)}" if near else ""
+        print(f"ampcheck: no part named {args.name!r}{hint}", file=sys.stderr)
+        return EXIT_USAGE
+    print_part(library[args.name])
     return EXIT_OK
 
 

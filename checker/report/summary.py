@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import dataclasses
+
 from rich.console import Console
 from rich.table import Table
 
@@ -57,3 +59,34 @@ def print_parts(library: dict) -> None:
 
 def _short(value, unit) -> str:
     return "—" if value is None else format_si(value, unit)
+
+
+_UNIT_SUFFIXES = [("_v_per_rthz", "V/√Hz"), ("_a_per_rthz", "A/√Hz"), ("_v_per_s", "V/s"),
+                  ("_hz", "Hz"), ("_v", "V"), ("_a", "A"), ("_f", "F"), ("_ohm", "Ω")]
+
+
+def part_fields(part) -> list[tuple[str, float | None, str]]:
+    """Every numeric parameter of a part as (field, value, unit), unit from its name."""
+    rows = []
+    for field in dataclasses.fields(part):
+        value = getattr(part, field.name)
+        if field.name in ("name", "family", "note", "builtin", "origin"):
+            continue
+        unit = next((u for s, u in _UNIT_SUFFIXES if field.name.endswith(s)), "")
+        rows.append((field.name, value, unit))
+    return rows
+
+
+def print_part(part) -> None:
+    """One part in full: every parameter with its unit, and where it came from."""
+    out = console()
+    out.print(f"[bold]{part.name}[/]" + (f" ({part.family})" if part.family else ""))
+    if part.builtin:
+        out.print("source: built-in library (invented, typical of the class)")
+    else:
+        where = part.origin.path if part.origin is not None else "?"
+        out.print(f"source: user part file {where}")
+    if part.note:
+        out.print(f"note: {part.note}")
+    for name, value, unit in part_fields(part):
+        out.print(f"  {name:<28} {_short(value, unit)}")
