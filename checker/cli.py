@@ -168,6 +168,7 @@ def build_parser() -> argparse.ArgumentParser:
     rules.add_argument("--rules-dir", action="append", default=[], metavar="DIR")
     rules.add_argument("--markdown", action="store_true",
                        help="print the rules reference (docs/rules.md) instead")
+    rules.add_argument("--format", choices=["table", "json"], default="table")
 
     explain = commands.add_parser("explain", help="print a rule's documentation")
     explain.add_argument("rule", metavar="ID")
@@ -195,6 +196,8 @@ def build_parser() -> argparse.ArgumentParser:
     extract.add_argument("--no-config", action="store_true", help="ignore configuration files")
 
     parts = commands.add_parser("parts", help="list the op-amp parts in the library")
+    parts.add_argument("name", nargs="?", help="show this one part in full")
+    parts.add_argument("--format", choices=["table", "json"], default="table")
     parts.add_argument("--parts", action="append", default=[], metavar="FILE",
                        help="also load this part library file (repeatable)")
     from checker import mend_command
@@ -634,6 +637,18 @@ def cmd_rules(args) -> int:
 
         sys.stdout.write(rules_markdown(_rules(args.rules_dir)))
         return EXIT_OK
+    if args.format == "json":
+        from checker.report.listings import rules_json
+
+        rows = [{"id": r.id, "severity": r.severity.label, "summary": r.summary,
+                 "kind": "rule", "settings": dict(r.settings)}
+                for r in _rules(args.rules_dir).values()]
+        rows += [{"id": rid, "severity": ENGINE_SEVERITIES[rid].label, "summary": text,
+                  "kind": "engine", "settings": {}} for rid, text in ENGINE_RULES.items()]
+        rows += [{"id": k.id, "severity": "caution", "summary": k.summary,
+                  "kind": "caution", "settings": {}} for k in CAUTION_KINDS.values()]
+        sys.stdout.write(rules_json(rows))
+        return EXIT_OK
     table = Table(title="Rules", title_justify="left")
     table.add_column("id", style="bold", no_wrap=True)
     table.add_column("severity")
@@ -734,9 +749,25 @@ def _extract_request(args):
 
 
 def cmd_parts(args) -> int:
-    from checker.report.summary import print_parts
+    import difflib
 
-    print_parts(_library(args.parts))
+    from checker.report.summary import print_part, print_parts
+
+    library = _library(args.parts)
+    if args.name is None and args.format == "json":
+        from checker.report.listings import parts_json
+
+        sys.stdout.write(parts_json(library))
+        return EXIT_OK
+    if args.name is None:
+        print_parts(library)
+        return EXIT_OK
+    if args.name not in library:
+        near = difflib.get_close_matches(args.name, list(library), n=3, cutoff=0.4)
+        hint = f"; nearest: {', '.join(near)}" if near else ""
+        print(f"ampcheck: no part named {args.name!r}{hint}", file=sys.stderr)
+        return EXIT_USAGE
+    print_part(library[args.name])
     return EXIT_OK
 
 

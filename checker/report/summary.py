@@ -2,7 +2,14 @@
 
 from __future__ import annotations
 
-from rich.console import Console
+import dataclasses
+
+from rich import box
+from rich.columns import Columns
+from rich.console import Console, Group
+from rich.measure import Measurement
+from rich.padding import Padding
+from rich.text import Text
 from rich.table import Table
 
 from checker.units import format_si
@@ -17,43 +24,100 @@ def console(stderr: bool = False) -> Console:
     return out
 
 
-_PART_COLUMNS = [
-    ("GBW", "gbw_hz", "Hz"), ("A0", "open_loop_gain", ""), ("SR V/µs", None, None),
-    ("Vos", "offset_voltage_v", "V"), ("Ib", "bias_current_a", "A"),
-    ("Cin cm/diff", None, None), ("Ro", "output_resistance_ohm", "Ω"),
-    ("headroom", "output_headroom_high_v", "V"), ("Iout", "output_current_a", "A"),
-    ("supply", None, None), ("en", "voltage_noise_v_per_rthz", "V/√Hz"),
-    ("min gain", "min_stable_gain", ""),
+def _range(low, high, unit) -> str:
+    return f"{_short(low, unit)}…{_short(high, unit)}"
+
+
+# (heading, cell maker): short headings so the table fits about 100 columns
+_PART_CELLS = [
+    ("GBW", lambda p: _short(p.gbw_hz, "Hz")),
+    ("A0", lambda p: _short(p.open_loop_gain, "")),
+    ("pole 2", lambda p: _short(p.second_pole_hz, "Hz")),
+    ("SR", lambda p: _short(p.slew_rate_v_per_s, "V/s")),
+    ("Vos", lambda p: _short(p.offset_voltage_v, "V")),
+    ("Ib", lambda p: _short(p.bias_current_a, "A")),
+    ("Cin cm/dif", lambda p: f"{_short(p.input_capacitance_cm_f, 'F')}/"
+                             f"{_short(p.input_capacitance_diff_f, 'F')}"),
+    ("in range", lambda p: _range(p.input_range_low_v, p.input_range_high_v, "V")),
+    ("Ro", lambda p: _short(p.output_resistance_ohm, "Ω")),
+    ("headroom", lambda p: _short(p.output_headroom_high_v, "V")),
+    ("Iout", lambda p: _short(p.output_current_a, "A")),
+    ("supply", lambda p: _range(p.supply_min_v, p.supply_max_v, "V")),
+    ("abs max", lambda p: _short(p.supply_abs_max_v, "V")),
+    ("en /√Hz", lambda p: _short(p.voltage_noise_v_per_rthz, "V")),
+    ("in /√Hz", lambda p: _short(p.current_noise_a_per_rthz, "A")),
+    ("min gain", lambda p: _short(p.min_stable_gain, "")),
 ]
 
 
-def print_parts(library: dict) -> None:
-    table = Table(title="Op-amp parts", title_justify="left")
-    table.add_column("name (class)")
-    for heading, _attr, _unit in _PART_COLUMNS:
-        table.add_column(heading, justify="right")
+def parts_table(library: dict) -> Table:
+    """One row per part; no cell wraps (a name is never cut)."""
+    table = Table(title="Op-amp parts", title_justify="left", padding=(0, 0),
+                  show_edge=False, box=box.SIMPLE_HEAD, pad_edge=False, collapse_padding=True)
+    table.add_column("name", no_wrap=True, style="bold")
+    for heading, _cell in _PART_CELLS:
+        table.add_column(heading, justify="right", no_wrap=True)
     for name in sorted(library):
         part = library[name]
-        cells = []
-        for _heading, attr, unit in _PART_COLUMNS:
-            if _heading == "Cin cm/diff":
-                cells.append(f"{_short(part.input_capacitance_cm_f, 'F')}/"
-                             f"{_short(part.input_capacitance_diff_f, 'F')}")
-            elif _heading == "SR V/µs":
-                rate = part.slew_rate_v_per_s
-                cells.append("—" if rate is None else f"{rate / 1e6:.3g}")
-            elif _heading == "supply":
-                cells.append(f"{_short(part.supply_min_v, 'V')}–{_short(part.supply_max_v, 'V')}")
-            else:
-                cells.append(_short(getattr(part, attr), unit))
-        origin = "" if part.builtin else " *"
-        label = f"[bold]{name}{origin}[/]" + (f"\n[dim]{part.family}[/]" if part.family else "")
-        table.add_row(label, *cells)
-    out = console()
-    out.print(table)
+        label = name + ("" if part.builtin else " *")
+        table.add_row(label, *(" " + cell(part) for _h, cell in _PART_CELLS))
+    return table
+
+
+def parts_blocks(library: dict) -> Group:
+    """One block per part (name, class, then heading: value pairs) for a narrow screen."""
+    blocks = []
+    for name in sorted(library):
+        part = library[name]
+        pairs = Columns([Text.from_markup(f"[dim]{h}[/] {cell(part)}")
+                         for h, cell in _PART_CELLS], padding=(0, 2))
+        head = f"[bold]{name}{'' if part.builtin else ' *'}[/]"
+        blocks.append(Text.from_markup(head + (f"  [dim]{part.family}[/]" if part.family else "")))
+        blocks.append(Padding(pairs, (0, 0, 0, 2)))
+    return Group(*blocks)
+
+
+def print_parts(library: dict, out: Console | None = None) -> None:
+    out = out or console()
+    table = parts_table(library)
+    if Measurement.get(out, out.options.update_width(10_000), table).maximum <= out.width:
+        out.print(table)
+    else:
+        out.print(parts_blocks(library))
     out.print("Built-in parts are generic classes with typical values, not real parts."
-              " * marks parts from your files.")
+              " * marks parts from your files; `ampcheck parts NAME` shows one in full.")
 
 
 def _short(value, unit) -> str:
     return "—" if value is None else format_si(value, unit)
+
+
+_UNIT_SUFFIXES = [("_v_per_rthz", "V/√Hz"), ("_a_per_rthz", "A/√Hz"), ("_v_per_s", "V/s"),
+                  ("_hz", "Hz"), ("_v", "V"), ("_a", "A"), ("_f", "F"), ("_ohm", "Ω")]
+
+
+def part_fields(part) -> list[tuple[str, float | None, str]]:
+    """Every numeric parameter of a part as (field, value, unit), unit from its name."""
+    rows = []
+    for field in dataclasses.fields(part):
+        value = getattr(part, field.name)
+        if field.name in ("name", "family", "note", "builtin", "origin"):
+            continue
+        unit = next((u for s, u in _UNIT_SUFFIXES if field.name.endswith(s)), "")
+        rows.append((field.name, value, unit))
+    return rows
+
+
+def print_part(part) -> None:
+    """One part in full: every parameter with its unit, and where it came from."""
+    out = console()
+    out.print(f"[bold]{part.name}[/]" + (f" ({part.family})" if part.family else ""))
+    if part.builtin:
+        out.print("source: built-in library (invented, typical of the class)")
+    else:
+        where = part.origin.path if part.origin is not None else "?"
+        out.print(f"source: user part file {where}")
+    if part.note:
+        out.print(f"note: {part.note}")
+    for name, value, unit in part_fields(part):
+        out.print(f"  {name:<28} {_short(value, unit)}")
