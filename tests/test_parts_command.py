@@ -12,10 +12,10 @@ def test_one_builtin_part_in_full_with_units_and_source(capsys):
     out = capsys.readouterr().out
     # values are the project's own, from checker/parts/generic.parts
     assert "built-in library (invented, typical of the class)" in out
-    assert "gbw_hz                       10 MHz" in out
-    assert "current_noise_a_per_rthz     5 fA/√Hz" in out
+    assert "gbw                      10 MHz" in out
+    assert "current-noise            5 fA/√Hz" in out
     assert "supply_abs_max_v             6 V" in out
-    assert "second_pole_hz               —" in out
+    assert "second-pole              —" in out
 
 
 def test_a_user_part_names_its_file(tmp_path, capsys):
@@ -40,10 +40,10 @@ def test_parts_json_gives_si_floats_with_units_and_source(capsys):
     parts = {p["name"]: p for p in doc["parts"]}
     rrio = parts["cmos-rrio"]  # values from checker/parts/generic.parts
     assert rrio["source"] == {"kind": "builtin", "invented": True}
-    assert rrio["parameters"]["gbw_hz"] == {"value": 10e6, "unit": "Hz"}
-    noise = rrio["parameters"]["current_noise_a_per_rthz"]
+    assert rrio["parameters"]["gbw"] == {"value": 10e6, "unit": "Hz"}
+    noise = rrio["parameters"]["current-noise"]
     assert noise["unit"] == "A/√Hz" and noise["value"] == pytest.approx(5e-15)
-    assert rrio["parameters"]["second_pole_hz"] == {"value": None, "unit": "Hz"}
+    assert rrio["parameters"]["second-pole"] == {"value": None, "unit": "Hz"}
 
 
 def test_rules_json_lists_ids_severities_and_setting_defaults(capsys):

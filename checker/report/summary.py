@@ -12,7 +12,12 @@ from rich.padding import Padding
 from rich.text import Text
 from rich.table import Table
 
+from checker.model import PART_ATTRIBUTES
+from checker.report.values import measure
 from checker.units import format_si
+
+# The stage format's keyword of each part field (gbw for gbw_hz): what a part file writes.
+_KEYWORDS = {field: keyword for keyword, field in PART_ATTRIBUTES.items()}
 
 
 def console(stderr: bool = False) -> Console:
@@ -33,7 +38,8 @@ _PART_CELLS = [
     ("GBW", lambda p: _short(p.gbw_hz, "Hz")),
     ("A0", lambda p: _short(p.open_loop_gain, "")),
     ("pole 2", lambda p: _short(p.second_pole_hz, "Hz")),
-    ("SR", lambda p: _short(p.slew_rate_v_per_s, "V/s")),
+    ("SR", lambda p: measure(p.slew_rate_v_per_s, "V/s")
+     if p.slew_rate_v_per_s is not None else "—"),
     ("Vos", lambda p: _short(p.offset_voltage_v, "V")),
     ("Ib", lambda p: _short(p.bias_current_a, "A")),
     ("Cin cm/dif", lambda p: f"{_short(p.input_capacitance_cm_f, 'F')}/"
@@ -97,14 +103,15 @@ _UNIT_SUFFIXES = [("_v_per_rthz", "V/√Hz"), ("_a_per_rthz", "A/√Hz"), ("_v_p
 
 
 def part_fields(part) -> list[tuple[str, float | None, str]]:
-    """Every numeric parameter of a part as (field, value, unit), unit from its name."""
+    """Every numeric parameter of a part as (keyword, value, unit): the part format's
+    keyword (gbw, slew-rate, ...), the SI value and its unit from the field's name."""
     rows = []
     for field in dataclasses.fields(part):
         value = getattr(part, field.name)
         if field.name in ("name", "family", "note", "builtin", "origin"):
             continue
         unit = next((u for s, u in _UNIT_SUFFIXES if field.name.endswith(s)), "")
-        rows.append((field.name, value, unit))
+        rows.append((_KEYWORDS.get(field.name, field.name.replace("_", "-")), value, unit))
     return rows
 
 
@@ -120,4 +127,6 @@ def print_part(part) -> None:
     if part.note:
         out.print(f"note: {part.note}")
     for name, value, unit in part_fields(part):
-        out.print(f"  {name:<28} {_short(value, unit)}")
+        shown = measure(value, unit) if unit == "V/s" and value is not None else \
+            _short(value, unit)
+        out.print(f"  {name:<24} {shown}")
