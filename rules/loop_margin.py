@@ -62,6 +62,20 @@ def loop_margin(view):
         preferred, and 6 dB of gain margin: common practice (from memory, K. Ogata,
         Modern Control Engineering, chapter on frequency-response analysis, which
         asks 30 to 60 degrees and more than 6 dB).
+
+    Passes:
+        (stage level-gain (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part jfet-input) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k) (resistor R2 fb out 100k)
+          (source in (amplitude 100mV) (band 10Hz 1kHz))
+          (load out (resistance 10k)))
+
+    Fails:
+        (stage level-gain (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part jfet-input) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 1M) (resistor R2 fb out 10M)
+          (source in (amplitude 100mV) (band 10Hz 1kHz))
+          (load out (resistance 10k)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     required = stage.require.phase_margin_deg
