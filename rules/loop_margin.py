@@ -64,18 +64,18 @@ def loop_margin(view):
         asks 30 to 60 degrees and more than 6 dB).
 
     Passes:
-        (stage level-gain (ground gnd) (supply vcc 15V) (supply vee -15V)
-          (opamp U1 (part jfet-input) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
-          (resistor R1 in fb 10k) (resistor R2 fb out 100k)
-          (source in (amplitude 100mV) (band 10Hz 1kHz))
-          (load out (resistance 10k)))
+        (stage level-buffer (ground gnd) (supply vcc 5V)
+          (opamp U1 (params (open-loop-gain 100000) (gbw 10MHz) (second-pole 50MHz))
+            (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 0.5V 3V) (band 0Hz 10Hz))
+          (load out (resistance 100k)))
 
     Fails:
-        (stage level-gain (ground gnd) (supply vcc 15V) (supply vee -15V)
-          (opamp U1 (part jfet-input) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
-          (resistor R1 in fb 1M) (resistor R2 fb out 10M)
-          (source in (amplitude 100mV) (band 10Hz 1kHz))
-          (load out (resistance 10k)))
+        (stage level-buffer (ground gnd) (supply vcc 5V)
+          (opamp U1 (params (open-loop-gain 100000) (gbw 10MHz) (second-pole 5MHz))
+            (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 0.5V 3V) (band 0Hz 10Hz))
+          (load out (resistance 100k)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     required = stage.require.phase_margin_deg
