@@ -73,6 +73,20 @@ def bandwidth(view):
         Closed-loop bandwidth about GBW / noise gain for a single-pole op-amp, and the
         closed-loop gain G_ideal * T/(1 + T) with T the loop gain: common practice
         (e.g. Sedra and Smith, Microelectronic Circuits, op-amp chapter).
+
+    Passes:
+        (stage level-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part gp-bipolar) (in+ in) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 fb gnd 1k) (resistor R2 fb out 10k)
+          (source in (amplitude 10mV) (band 0Hz 100Hz))
+          (load out (resistance 10k)))
+
+    Fails:
+        (stage level-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part gp-bipolar) (in+ in) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 fb gnd 1k) (resistor R2 fb out 10k)
+          (source in (amplitude 10mV) (band 0Hz 200kHz))
+          (load out (resistance 10k)))
     """
     stage, figures = view.stage, view.figures
     if not figures.sources:

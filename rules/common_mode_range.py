@@ -42,6 +42,18 @@ def common_mode_range(view):
         currents as sources (linear circuit theory). Common-mode input range as a
         limit on the inputs: R. Mancini (ed.), Op Amps for Everyone, 2nd ed. (Newnes,
         2003), chapter on op-amp parameters.
+
+    Passes:
+        (stage turbidity-buffer (ground gnd) (supply vcc 15V)
+          (opamp U1 (part gp-bipolar) (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 3V 10V) (band 0Hz 10Hz))
+          (load out (resistance 10k)))
+
+    Fails:
+        (stage turbidity-buffer (ground gnd) (supply vcc 15V)
+          (opamp U1 (part gp-bipolar) (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 0.5V 10V) (band 0Hz 10Hz))
+          (load out (resistance 10k)))
     """
     stage, figures = view.stage, view.figures
     rails = stage.rail_voltages

@@ -60,6 +60,22 @@ def dc_error(view):
         Scientists and Engineers (Cambridge University Press, 2011), section 6.4.
         Worst-case addition of the terms and the 1 % of swing threshold: common
         practice.
+
+    Passes:
+        (stage level-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k) (resistor R2 fb out 100k)
+          (source in (range -0.1V 0.1V) (band 0Hz 10Hz))
+          (load out (resistance 10k))
+          (require (dc-error 50mV)))
+
+    Fails:
+        (stage level-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k) (resistor R2 fb out 100k)
+          (source in (range -0.1V 0.1V) (band 0Hz 10Hz))
+          (load out (resistance 10k))
+          (require (dc-error 5mV)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     if any(figures.loops[o.ref].feedback != "negative" for o in stage.opamps):

@@ -60,6 +60,24 @@ def difference_balance(view):
         Worst-case CMRR of a difference amplifier from resistor tolerance t,
         CMRR ~ (1 + G)/(4t): common practice (a gain of 1 with 1 % parts gives 50, or
         34 dB). Corner enumeration and the uniform tolerance band: common practice.
+
+    Passes:
+        (stage level-diff (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part precision-bipolar) (in+ p) (in- n) (out out) (v+ vcc) (v- vee))
+          (resistor R1 a n 10k (tolerance 0.01%)) (resistor R2 n out 10k (tolerance 0.01%))
+          (resistor R3 b p 10k (tolerance 0.01%)) (resistor R4 p gnd 10k (tolerance 0.01%))
+          (source a (range 2.4V 2.6V) (band 0Hz 10Hz))
+          (source b (range 2.4V 2.6V) (band 0Hz 10Hz))
+          (load out (resistance 10k)))
+
+    Fails:
+        (stage level-diff (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part precision-bipolar) (in+ p) (in- n) (out out) (v+ vcc) (v- vee))
+          (resistor R1 a n 10k (tolerance 1%)) (resistor R2 n out 10k (tolerance 1%))
+          (resistor R3 b p 10k (tolerance 1%)) (resistor R4 p gnd 10k (tolerance 1%))
+          (source a (range 2.4V 2.6V) (band 0Hz 10Hz))
+          (source b (range 2.4V 2.6V) (band 0Hz 10Hz))
+          (load out (resistance 10k)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     differences = [o for o in stage.opamps if figures.loops[o.ref].feedback == "negative"

@@ -60,6 +60,20 @@ def feedback_pole(view):
         R. Mancini (ed.), Op Amps for Everyone, chapter on stability (feedback pole
         and the neutralising capacitor Cf = Rg*Cin/Rf). Phase-margin targets of 45
         degrees minimum and 60 preferred: common practice.
+
+    Passes:
+        (stage turbidity-gain (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part jfet-input) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k) (resistor R2 fb out 100k)
+          (source in (amplitude 100mV) (band 10Hz 1kHz))
+          (load out (resistance 10k)))
+
+    Fails:
+        (stage turbidity-gain (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part jfet-input) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 1M) (resistor R2 fb out 10M)
+          (source in (amplitude 100mV) (band 10Hz 1kHz))
+          (load out (resistance 10k)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     for opamp in stage.opamps:

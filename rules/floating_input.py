@@ -55,6 +55,20 @@ def floating_input(view):
         chapter on single-supply and AC-coupled circuits. High-pass corner of a
         coupling capacitor 1/(2 pi R C) and the decade of margin: common practice.
         1 MOhm as a default bias resistor: common practice.
+
+    Passes:
+        (stage hydrophone-buffer (ground gnd) (supply vcc 5V) (supply vee -5V)
+          (opamp U1 (part cmos-rrio) (in+ pos) (in- out) (out out) (v+ vcc) (v- vee))
+          (capacitor C1 in pos 100n) (resistor R1 pos gnd 1M)
+          (source in (amplitude 100mV) (band 10Hz 10kHz) (impedance 1k))
+          (load out (resistance 10k)))
+
+    Fails:
+        (stage hydrophone-buffer (ground gnd) (supply vcc 5V) (supply vee -5V)
+          (opamp U1 (part cmos-rrio) (in+ pos) (in- out) (out out) (v+ vcc) (v- vee))
+          (capacitor C1 in pos 100n)
+          (source in (amplitude 100mV) (band 10Hz 10kHz) (impedance 1k))
+          (load out (resistance 10k)))
     """
     stage, figures = view.stage, view.figures
     floating = figures.floating_nets

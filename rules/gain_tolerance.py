@@ -53,6 +53,22 @@ def gain_tolerance(view):
         Worst-case analysis by corner enumeration and the uniform distribution for a
         tolerance band: common practice. The rule of thumb that a ratio of two
         resistors of tolerance t is good to about 2t: common practice.
+
+    Passes:
+        (stage level-gain (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part precision-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k (tolerance 0.1%)) (resistor R2 fb out 100k (tolerance 0.1%))
+          (source in (range -0.1V 0.1V) (band 0Hz 10Hz))
+          (load out (resistance 10k))
+          (require (gain -10) (gain-tolerance 1.5%)))
+
+    Fails:
+        (stage level-gain (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part precision-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k (tolerance 1%)) (resistor R2 fb out 100k (tolerance 1%))
+          (source in (range -0.1V 0.1V) (band 0Hz 10Hz))
+          (load out (resistance 10k))
+          (require (gain -10) (gain-tolerance 1.5%)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     required, band = stage.require.gain, stage.require.gain_tolerance

@@ -50,6 +50,20 @@ def input_resistance(view):
         practice. T-network gain: A. S. Sedra and K. C. Smith, Microelectronic Circuits,
         7th ed. (Oxford University Press, 2015), chapter 2 on the inverting
         configuration (the T-network feedback), checked against Lcapy in the tests.
+
+    Passes:
+        (stage conductivity-gain (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 100k) (resistor R2 fb out 1M)
+          (source in (range -0.1V 0.1V) (band 0Hz 100Hz) (impedance 10k))
+          (load out (resistance 10k)))
+
+    Fails:
+        (stage conductivity-gain (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 1k) (resistor R2 fb out 10k)
+          (source in (range -0.1V 0.1V) (band 0Hz 100Hz) (impedance 10k))
+          (load out (resistance 10k)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     required = stage.require.input_resistance_ohm

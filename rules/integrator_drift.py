@@ -54,6 +54,20 @@ def integrator_drift(view):
         filters and integrators; Sedra and Smith, Microelectronic Circuits, op-amp
         chapter (the Miller integrator and its DC problem). Corner a decade below the
         band: common practice.
+
+    Passes:
+        (stage rain-integrator (ground gnd) (supply vcc 12V) (supply vee -12V)
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (capacitor C1 fb out 100n) (resistor R1 in fb 100k) (resistor R2 fb out 1.6M)
+          (source in (amplitude 100mV) (band 10Hz 1kHz))
+          (load out (resistance 10k)))
+
+    Fails:
+        (stage rain-integrator (ground gnd) (supply vcc 12V) (supply vee -12V)
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (capacitor C1 fb out 100n) (resistor R1 in fb 100k)
+          (source in (amplitude 100mV) (band 10Hz 1kHz))
+          (load out (resistance 10k)))
     """
     stage, figures = view.stage, view.figures
     floating = figures.floating_nets

@@ -67,6 +67,18 @@ def load_isolation(view):
         2003), stability chapter, on capacitive loads and out-of-loop compensation.
         Typical Riso of 20 to 100 ohm, the voltage-divider loss and the ten-times rule
         (0.83 dB): common practice.
+
+    Passes:
+        (stage logger-driver (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part gp-bipolar) (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
+          (source in (range 0V 5V) (band 0Hz 1kHz))
+          (load out (resistance 10k) (capacitance 100p)))
+
+    Fails:
+        (stage logger-driver (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part gp-bipolar) (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
+          (source in (range 0V 5V) (band 0Hz 1kHz))
+          (load out (resistance 10k) (capacitance 10n)))
     """
     yield from _unbuffered_sources(view)
     yield from _capacitive_loads(view)

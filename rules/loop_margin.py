@@ -62,6 +62,20 @@ def loop_margin(view):
         preferred, and 6 dB of gain margin: common practice (from memory, K. Ogata,
         Modern Control Engineering, chapter on frequency-response analysis, which
         asks 30 to 60 degrees and more than 6 dB).
+
+    Passes:
+        (stage level-buffer (ground gnd) (supply vcc 5V)
+          (opamp U1 (params (open-loop-gain 100000) (gbw 10MHz) (second-pole 50MHz))
+            (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 0.5V 3V) (band 0Hz 10Hz))
+          (load out (resistance 100k)))
+
+    Fails:
+        (stage level-buffer (ground gnd) (supply vcc 5V)
+          (opamp U1 (params (open-loop-gain 100000) (gbw 10MHz) (second-pole 5MHz))
+            (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 0.5V 3V) (band 0Hz 10Hz))
+          (load out (resistance 100k)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     required = stage.require.phase_margin_deg
