@@ -14,7 +14,7 @@ def test_one_builtin_part_in_full_with_units_and_source(capsys):
     assert "built-in library (invented, typical of the class)" in out
     assert "gbw                      10 MHz" in out
     assert "current-noise            5 fA/√Hz" in out
-    assert "supply_abs_max_v             6 V" in out
+    assert "supply-abs-max           6 V" in out
     assert "second-pole              —" in out
 
 
