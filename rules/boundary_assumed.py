@@ -33,6 +33,27 @@ def boundary_assumed(view):
     Sources:
         The default assumptions are documented in docs/netlist.md (common practice:
         an ideal source and an unloaded output are the optimistic ends of each).
+
+    Passes:
+        * Heronpost level amplifier
+        V1 vcc 0 DC 12
+        V2 vee 0 DC -12
+        R1 in fb 10k
+        R2 fb out 100k
+        XU1 0 fb vcc vee out OA
+        ---
+        (opamp-model OA (part gp-bipolar) (pins in+ in- v+ v- out))
+        (at-net in (source (range -0.5V 0.5V) (impedance 100)))
+
+    Fails:
+        * Heronpost level amplifier
+        V1 vcc 0 DC 12
+        V2 vee 0 DC -12
+        R1 in fb 10k
+        R2 fb out 100k
+        XU1 0 fb vcc vee out OA
+        ---
+        (opamp-model OA (part gp-bipolar) (pins in+ in- v+ v- out))
     """
     for note in view.stage.reader_notes:
         if note.kind == "assumed":
