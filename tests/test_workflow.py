@@ -169,8 +169,9 @@ def test_waiver_that_matches_nothing_is_stale(project, capsys):
 # -- baselines ---------------------------------------------------------------------------
 
 def test_baseline_accepts_old_findings_and_survives_moved_lines(project, capsys):
+    # The findings reach --fail-on, yet writing the baseline succeeded: exit 0.
     assert run(capsys, "check", "a.stage", "--write-baseline", "base.json",
-               "--fail-on", "warning")[0] == 1
+               "--fail-on", "warning")[0] == 0
     entries = json.loads((project / "base.json").read_text())["entries"]
     assert {e["rule"] for e in entries} >= {"input-resistance"}
     assert all("line" not in e for e in entries)
