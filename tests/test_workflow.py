@@ -284,3 +284,19 @@ def test_a_bad_file_is_counted_and_listed_and_the_audit_goes_on(project, capsys)
     assert code == 1
     assert "Could not read 1 file: broken.stage" in out
     assert "2 files, 1 stage:" in out
+
+
+def test_text_headers_count_what_the_closing_summary_counts(project, capsys):
+    import re
+
+    run(capsys, "check", "a.stage", "--write-baseline", "base.json")
+    (project / "b.stage").write_text(LOADED.replace("stage loaded", "stage fresh"))
+    _, out, _ = run(capsys, "check", ".", "--baseline", "base.json", "--fail-on", "never")
+    closing = out.strip().splitlines()[-1]
+    for heading, noun in (("Errors", "error"), ("Warnings", "warning"), ("Notes", "note")):
+        header = re.search(rf"^{heading} \((\d+)(?:, \+(\d+) waived or in the baseline)?\)",
+                           out, re.M)
+        summary = re.search(rf"(\d+) {noun}s?\b", closing)
+        assert summary, closing
+        assert int(header.group(1) if header else 0) == int(summary.group(1)), out
+    assert "waived or in the baseline)" in out  # a's findings are baselined, set apart
