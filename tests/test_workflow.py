@@ -300,3 +300,15 @@ def test_text_headers_count_what_the_closing_summary_counts(project, capsys):
         assert summary, closing
         assert int(header.group(1) if header else 0) == int(summary.group(1)), out
     assert "waived or in the baseline)" in out  # a's findings are baselined, set apart
+
+
+def test_an_unreadable_file_can_be_baselined(project, capsys):
+    (project / "broken.stage").write_text("(stage broken\n  (opamp U1\n")  # unclosed
+    code, out, _ = run(capsys, "check", "broken.stage", "--format", "json")
+    assert code == 1 and {f["rule"] for f in findings(out)} == {"input-invalid"}
+    assert run(capsys, "check", "broken.stage", "--write-baseline", "base.json")[0] == 0
+    entries = json.loads((project / "base.json").read_text())["entries"]
+    assert entries and {e["rule"] for e in entries} == {"input-invalid"}
+    code, out, _ = run(capsys, "check", "broken.stage", "--baseline", "base.json",
+                       "--format", "json")
+    assert code == 0 and all(f["baselined"] for f in findings(out))
