@@ -178,6 +178,8 @@ class CheckRun:
 
     def deliver(self, result: FileResult) -> None:
         if self.baseline is not None:
+            result.problems = baselines.apply_baseline(result.problems, self.baseline,
+                                                       self.matched)
             for stage in result.stages:
                 stage.findings = baselines.apply_baseline(stage.findings, self.baseline,
                                                           self.matched)

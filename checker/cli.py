@@ -381,7 +381,11 @@ def _caution_notice_wanted(args) -> bool:
 
 
 def _progress_wanted(args) -> bool:
-    return (not args.no_progress and not args.quiet and sys.stderr.isatty() and not os.environ.get("PRE_COMMIT")
+    """A bar on a terminal's stderr, except when a format other than text streams its
+    findings to that same terminal (the bar would be glued to the first finding)."""
+    streams_to_terminal = not args.quiet and args.format != "text" and sys.stdout.isatty()
+    return (not args.no_progress and not args.quiet and sys.stderr.isatty()
+            and not streams_to_terminal and not os.environ.get("PRE_COMMIT")
             and not os.environ.get("CI"))
 
 
@@ -455,6 +459,8 @@ def cmd_check(args) -> int:
         raise UsageError(str(error)) from None
     if run.review_failed:
         return EXIT_REVIEW_FAILED
+    if args.write_baseline:  # the baseline was written: that was the job asked for
+        return EXIT_OK
     return EXIT_FINDINGS if failing else EXIT_OK
 
 

@@ -202,7 +202,11 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
         group = [f for f in every if f.severity == severity]
         if not group:
             continue
-        console.print(Text(f"{HEADING[severity]} ({len(group)})", style=STYLE[severity]))
+        # the header counts what the closing summary counts; set-aside ones apart
+        set_aside = sum(1 for f in group if f.suppressed)
+        counted = f"{len(group) - set_aside}" + (
+            f", +{set_aside} waived or in the baseline" if set_aside else "")
+        console.print(Text(f"{HEADING[severity]} ({counted})", style=STYLE[severity]))
         for finding in sorted(group, key=Finding.sort_key):
             _finding(console, finding)
         console.print()
