@@ -145,6 +145,10 @@ def build_parser() -> argparse.ArgumentParser:
                        help="the standard-output report shows only findings of this"
                             " severity and above (default all); --fail-on, --output files"
                             " and safety cautions are not filtered")
+    check.add_argument("--show-baselined", action="store_true",
+                       help="list the findings the baseline holds too (marked); by default"
+                            " the text and compact reports leave them out (json, sarif,"
+                            " csv and html keep them, marked)")
     check.add_argument("--stdin-name", metavar="NAME", default="stdin.stage",
                        help="with PATH '-': the name the stage read from standard input"
                             " takes in messages and reports (its ending picks the syntax)")
@@ -446,10 +450,15 @@ def cmd_check(args) -> int:
                 probe_output(path, paths)
         report = [] if args.quiet else [(args.format, None)]
         sinks = open_sinks(report + outputs, context, paths)
-        if report and args.show != "all":
+        # the human formats leave the baseline's findings out unless asked; the machine
+        # formats keep each one, marked baselined, for the tools that read them
+        hide_baselined = (baseline is not None and not args.show_baselined
+                          and args.format in HUMAN_FORMATS)
+        if report and (args.show != "all" or hide_baselined):
             from checker.shown import SHOW_CHOICES, ShownWriter
 
-            sinks[0].writer = ShownWriter(sinks[0].writer, SHOW_CHOICES[args.show])
+            sinks[0].writer = ShownWriter(sinks[0].writer, SHOW_CHOICES[args.show],
+                                          show_baselined=not hide_baselined)
         run = CheckRun(context, sinks, baseline, args.prune_baseline, args.write_baseline,
                        caution_notice=_caution_notice_wanted(args))
         failing = run.run(paths, missing, request, jobs, _progress(args, len(paths)))
@@ -462,6 +471,9 @@ def cmd_check(args) -> int:
     if args.write_baseline:  # the baseline was written: that was the job asked for
         return EXIT_OK
     return EXIT_FINDINGS if failing else EXIT_OK
+
+
+HUMAN_FORMATS = ("text", "compact")
 
 
 def _check_stdin(args) -> int:

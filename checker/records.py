@@ -148,6 +148,14 @@ class FileResult:
     path: str
     problems: list[Finding] = field(default_factory=list)  # input-invalid findings
     stages: list[StageResult] = field(default_factory=list)
+    # input-invalid findings left out because the run ignores that id (--ignore
+    # input-invalid): the file still counts as one that could not be read
+    ignored_problems: int = 0
+
+    @property
+    def unreadable(self) -> bool:
+        """The file could not be read, parsed, validated or built."""
+        return bool(self.problems) or self.ignored_problems > 0
 
     def findings(self) -> list[Finding]:
         found = list(self.problems)

@@ -15,6 +15,7 @@ from checker.analysis.signal import stage_signals
 from checker.analysis.topology import classify
 from checker.engine import Rule, RunOptions, check_file_stages
 from checker.files import load_file
+from checker.findings import INPUT_RULE
 from checker.model import OpAmpPart, Stage
 from checker.records import FileResult, StageResult, StageSheet, count_by_severity  # noqa: F401
 
@@ -31,6 +32,10 @@ def review_file(path: str, library: dict[str, OpAmpPart], rules: list[Rule],
     (checker/report/plots.py) while its figures are alive."""
     loaded = load_file(path, library, netlist_map)
     result = FileResult(path, problems=loaded.problems)
+    if INPUT_RULE in options.ignore:  # an archive's unreadable legacy files, ignored
+        kept = [f for f in result.problems if f.rule != INPUT_RULE]
+        result.ignored_problems = len(result.problems) - len(kept)
+        result.problems = kept
     if not loaded.ok:
         return result
     figures, checks = check_file_stages(loaded.stages, rules, options, catalogue)

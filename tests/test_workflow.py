@@ -1,6 +1,7 @@
 """Team workflow: configuration, waivers, baselines, output formats, parallel runs."""
 
 import json
+import re
 import os
 import pathlib
 import textwrap
@@ -299,7 +300,11 @@ def test_text_headers_count_what_the_closing_summary_counts(project, capsys):
         summary = re.search(rf"(\d+) {noun}s?\b", closing)
         assert summary, closing
         assert int(header.group(1) if header else 0) == int(summary.group(1)), out
-    assert "waived or in the baseline)" in out  # a's findings are baselined, set apart
+    # a's findings are baselined: listed apart with --show-baselined, else not listed
+    assert "a.stage:5:3" not in out
+    _, out, _ = run(capsys, "check", ".", "--baseline", "base.json", "--fail-on", "never",
+                    "--show-baselined")
+    assert "waived or in the baseline)" in out and "a.stage:5:3" in out
 
 
 def test_an_unreadable_file_can_be_baselined(project, capsys):
@@ -312,3 +317,34 @@ def test_an_unreadable_file_can_be_baselined(project, capsys):
     code, out, _ = run(capsys, "check", "broken.stage", "--baseline", "base.json",
                        "--format", "json")
     assert code == 0 and all(f["baselined"] for f in findings(out))
+
+
+def test_baselined_findings_are_hidden_from_the_text_report_unless_asked(project, capsys):
+    run(capsys, "check", "a.stage", "--write-baseline", "base.json")
+    code, out, err = run(capsys, "check", "a.stage", "--baseline", "base.json",
+                         "--format", "compact")
+    assert code == 0 and out == ""
+    hidden = re.search(r"(\d+) findings? in the baseline not listed", err)
+    assert hidden and int(hidden.group(1)) >= 1, err
+    code, out, _ = run(capsys, "check", "a.stage", "--baseline", "base.json",
+                       "--format", "compact", "--show-baselined")
+    assert code == 0 and "input-resistance" in out
+    assert len(out.splitlines()) == int(hidden.group(1))
+    code, out, _ = run(capsys, "check", "a.stage", "--baseline", "base.json")
+    assert "input-resistance" not in out and "0 errors" in out
+    # a machine format keeps them, marked
+    code, out, _ = run(capsys, "check", "a.stage", "--baseline", "base.json",
+                       "--format", "json")
+    assert findings(out) and all(f["baselined"] for f in findings(out))
+
+
+def test_ignoring_input_invalid_drops_the_findings_but_not_the_unread_count(project, capsys):
+    (project / "broken.stage").write_text("(stage broken\n  (opamp U1\n")  # unclosed
+    code, out, _ = run(capsys, "check", "broken.stage", "a.stage", "--ignore",
+                       "input-invalid", "--format", "json")
+    assert "input-invalid" not in {f["rule"] for f in findings(out)}
+    code, out, _ = run(capsys, "check", "broken.stage", "a.stage", "--ignore",
+                       "input-invalid", "--fail-on", "error")
+    assert "input-invalid" not in out
+    assert "1 file could not be read" in out and "broken.stage" in out
+    assert code == 0  # a's findings are warnings; nothing else fails

@@ -62,7 +62,7 @@ def _audit_summary(console: Console, results: list[FileResult], every: list[Find
         if worst:
             console.print(Text("Worst stages (errors/warnings): ", style="bold")
                           .append("; ".join(worst)))
-    unreadable = [r.path for r in results if r.problems]
+    unreadable = [r.path for r in results if r.unreadable]
     if unreadable:
         shown = ", ".join(unreadable[:20]) + (f" and {len(unreadable) - 20} more"
                                                if len(unreadable) > 20 else "")
@@ -225,7 +225,7 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
     counts = count_by_severity([f for f in every if not f.suppressed])
     suppressed = sum(1 for f in every if f.suppressed)
     stages = sum(len(r.stages) for r in results)
-    unreadable = sum(1 for r in results if r.problems)
+    unreadable = sum(1 for r in results if r.unreadable)
     closing = Text(f"{_count(len(results), 'file')}, {_count(stages, 'stage')}: ")
     if cautions:
         acknowledged = sum(1 for c in cautions if c.acknowledged is not None)
@@ -266,7 +266,8 @@ class Writer(BaseWriter):
                               s.verdicts if keep_figures else [], s.cautions,
                               gain_unit=s.gain_unit)
                   for s in result.stages]
-        self.kept.append(FileResult(result.path, result.problems, stages))
+        self.kept.append(FileResult(result.path, result.problems, stages,
+                                    ignored_problems=result.ignored_problems))
 
     def close(self) -> None:
         import sys
