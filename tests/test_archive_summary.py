@@ -1,7 +1,7 @@
 """The archive audit's closing summary: severity counts by rule."""
 
 from checker.findings import Finding, Severity
-from checker.report.archive_summary import severity_by_rule, severity_table
+from checker.report.archive_summary import severity_by_rule, severity_table, stages_by_rule
 
 
 def _finding(rule, severity, waiver=None):
@@ -26,3 +26,15 @@ def test_table_is_aligned_and_fits_80_columns():
     assert len({len(line) for line in lines}) == 1
     assert all(len(line) <= 78 for line in lines)
     assert severity_table([]) == []
+
+
+def _at(rule, path, stage, waiver=None):
+    return Finding(rule, Severity.WARNING, "m", path, 1, 1, stage=stage, waiver=waiver)
+
+
+def test_stages_by_rule_counts_distinct_file_stage_pairs():
+    findings = [_at("noise", "a.stage", "buffer"), _at("noise", "a.stage", "buffer"),
+                _at("noise", "b.stage", "buffer"), _at("noise", "a.stage", "gain"),
+                _at("slew-rate", "a.stage", "gain"),
+                _at("slew-rate", "b.stage", "gain", waiver="known")]
+    assert stages_by_rule(findings) == [("noise", 3), ("slew-rate", 1)]

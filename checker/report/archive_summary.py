@@ -1,4 +1,5 @@
-"""Closing summary for an archive audit (more than one file): severity counts by rule."""
+"""Closing summary for an archive audit (more than one file): severity and stage counts
+by rule, a roll-up by folder."""
 
 from __future__ import annotations
 
@@ -6,6 +7,7 @@ from rich.console import Console
 from rich.text import Text
 
 from checker.findings import Finding, Severity
+from checker.report.wrap import print_wrapped
 
 
 def severity_by_rule(findings: list[Finding]) -> list[tuple[str, int, int, int]]:
@@ -36,3 +38,21 @@ def write_severity_by_rule(console: Console, findings: list[Finding]) -> None:
         console.print(Text("Severity by rule", style="bold"))
         for line in lines:
             console.print(Text("  " + line))
+
+
+def stages_by_rule(findings: list[Finding]) -> list[tuple[str, int]]:
+    """(rule, distinct stages it fired on) for unsuppressed findings; a stage is a
+    (file, stage name) pair, and a finding outside any stage counts its file."""
+    seen: dict[str, set[tuple[str, str | None]]] = {}
+    for f in findings:
+        if not f.suppressed:
+            seen.setdefault(f.rule, set()).add((f.path, f.stage))
+    return sorted(((rule, len(s)) for rule, s in seen.items()), key=lambda r: (-r[1], r[0]))
+
+
+def write_stages_by_rule(console: Console, findings: list[Finding]) -> None:
+    rows = stages_by_rule(findings)
+    if rows:
+        line = Text("Stages by rule: ", style="bold")
+        line.append(", ".join(f"{rule} {n}" for rule, n in rows))
+        print_wrapped(console, line, hang=2)
