@@ -1,7 +1,15 @@
 """The archive audit's closing summary: severity counts by rule."""
 
+import re
+import shutil
+from pathlib import Path
+
+from checker.cli import main
 from checker.findings import Finding, Severity
 from checker.report.archive_summary import severity_by_rule, severity_table, stages_by_rule
+from checker.report.archive_summary import rollup_table
+
+SAMPLES = Path(__file__).resolve().parent.parent / "samples"
 
 
 def _finding(rule, severity, waiver=None):
@@ -38,3 +46,41 @@ def test_stages_by_rule_counts_distinct_file_stage_pairs():
                 _at("slew-rate", "a.stage", "gain"),
                 _at("slew-rate", "b.stage", "gain", waiver="known")]
     assert stages_by_rule(findings) == [("noise", 3), ("slew-rate", 1)]
+
+
+def _closing_counts(out):
+    """(files, stages, errors, warnings) from the report's closing line."""
+    last = out.strip().splitlines()[-1]
+    found = dict((noun, int(n)) for n, noun in
+                 re.findall(r"(\d+) (file|stage|error|warning)s?\b", last))
+    return tuple(found.get(noun, 0) for noun in ("file", "stage", "error", "warning"))
+
+
+def test_folder_rollup_on_copies_of_the_samples(tmp_path, capsys, monkeypatch):
+    monkeypatch.setenv("COLUMNS", "80")
+    monkeypatch.setenv("NO_COLOR", "1")
+    layout = {".": ["groundwater-level.stage"],
+              "north": ["fish-counter.stage", "hydrophone.stage"],
+              "north/weir": ["conductivity.stage"], "south": ["pressure-level.stage"]}
+    expected = {}
+    for folder, names in layout.items():
+        (tmp_path / folder).mkdir(parents=True, exist_ok=True)
+        for name in names:
+            shutil.copy(SAMPLES / name, tmp_path / folder / name)
+        main(["check", *(str(tmp_path / folder / n) for n in names)])
+        # the reference figures: the same files checked on their own, read off the closing line
+        expected[folder] = _closing_counts(capsys.readouterr().out)
+    main(["check", str(tmp_path)])
+    out = capsys.readouterr().out
+    block = out.split("By folder\n", 1)[1].splitlines()
+    assert block[0].split() == ["folder", "files", "stages", "errors", "warnings"]
+    rows = {line.split()[0]: tuple(int(x) for x in line.split()[1:]) for line in block[1:5]}
+    assert rows == expected
+    assert expected["north"][0] == 2 and expected["north"][2] > 0
+    assert all(len(line) <= 80 for line in out.split("By folder\n", 1)[1].splitlines()[:5])
+
+
+def test_rollup_table_cuts_long_folder_names_to_the_width():
+    lines = rollup_table([("a/" * 60 + "z", 1, 2, 3, 4), (".", 1, 1, 0, 0)], width=80)
+    assert all(len("  " + line) <= 80 for line in lines)
+    assert lines[1].startswith("…") and lines[1].split()[-4:] == ["1", "2", "3", "4"]

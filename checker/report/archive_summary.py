@@ -3,10 +3,13 @@ by rule, a roll-up by folder."""
 
 from __future__ import annotations
 
+import os
+
 from rich.console import Console
 from rich.text import Text
 
 from checker.findings import Finding, Severity
+from checker.records import FileResult
 from checker.report.wrap import print_wrapped
 
 
@@ -56,3 +59,42 @@ def write_stages_by_rule(console: Console, findings: list[Finding]) -> None:
         line = Text("Stages by rule: ", style="bold")
         line.append(", ".join(f"{rule} {n}" for rule, n in rows))
         print_wrapped(console, line, hang=2)
+
+
+def folder_rollup(results: list[FileResult]) -> list[tuple[str, int, int, int, int]]:
+    """(folder relative to the inputs' common root, files, stages, errors, warnings),
+    folders in path order; the root itself shows as '.'."""
+    if not results:
+        return []
+    folders = [os.path.dirname(os.path.abspath(r.path)) for r in results]
+    root = os.path.commonpath(folders)
+    rows: dict[str, list[int]] = {}
+    for result, folder in zip(results, folders):
+        row = rows.setdefault(os.path.relpath(folder, root).replace(os.sep, "/"), [0, 0, 0, 0])
+        active = [f for f in result.findings() if not f.suppressed]
+        row[0] += 1
+        row[1] += len(result.stages)
+        row[2] += sum(f.severity == Severity.ERROR for f in active)
+        row[3] += sum(f.severity == Severity.WARNING for f in active)
+    return [(name, *row) for name, row in sorted(rows.items())]
+
+
+def rollup_table(rows: list[tuple[str, int, int, int, int]], width: int = 80) -> list[str]:
+    """Plain lines; a folder name too long for the width is cut from the left with '…'."""
+    if not rows:
+        return []
+    numbers = "  {:>5}  {:>6}  {:>6}  {:>8}"
+    room = max(12, width - 2 - len(numbers.format("", "", "", "")))
+    names = [name if len(name) <= room else "…" + name[-(room - 1):] for name, *_ in rows]
+    col = max(6, *(len(n) for n in names))
+    lines = [f"{'folder':<{col}}" + numbers.format("files", "stages", "errors", "warnings")]
+    lines += [f"{name:<{col}}" + numbers.format(*row[1:]) for name, row in zip(names, rows)]
+    return lines
+
+
+def write_folder_rollup(console: Console, results: list[FileResult]) -> None:
+    rows = folder_rollup(results)
+    if len(rows) > 1:
+        console.print(Text("By folder", style="bold"))
+        for line in rollup_table(rows, min(console.width, 80)):
+            console.print(Text("  " + line))

@@ -16,7 +16,7 @@ from checker.report.context import ReportContext
 from checker.report import Writer as BaseWriter
 from checker.records import FileResult, StageResult, count_by_severity
 from checker.report.wrap import print_wrapped
-from checker.report.archive_summary import (write_severity_by_rule,
+from checker.report.archive_summary import (write_folder_rollup, write_severity_by_rule,
                                             write_stages_by_rule)
 from checker.report.values import measure, measured_line, stage_gain
 from checker.units import format_si
@@ -221,6 +221,7 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
     if len(results) > 1:
         write_severity_by_rule(console, every)
         write_stages_by_rule(console, every)
+        write_folder_rollup(console, results)
         _audit_summary(console, results, every)
     counts = count_by_severity([f for f in every if not f.suppressed])
     suppressed = sum(1 for f in every if f.suppressed)
