@@ -84,3 +84,41 @@ def test_rollup_table_cuts_long_folder_names_to_the_width():
     lines = rollup_table([("a/" * 60 + "z", 1, 2, 3, 4), (".", 1, 1, 0, 0)], width=80)
     assert all(len("  " + line) <= 80 for line in lines)
     assert lines[1].startswith("…") and lines[1].split()[-4:] == ["1", "2", "3", "4"]
+
+
+def _worst_files(out):
+    line = next((x for x in out.splitlines() if x.startswith("Worst files: ")), None)
+    return None if line is None else line[len("Worst files: "):].split("; ")
+
+
+def test_worst_option_and_key_set_the_length_of_the_worst_lists(tmp_path, capsys,
+                                                                   monkeypatch):
+    monkeypatch.setenv("COLUMNS", "400")
+    monkeypatch.chdir(tmp_path)
+    for name in ("fish-counter", "hydrophone", "conductivity", "pressure-level",
+                 "groundwater-level", "flood-alarm"):
+        shutil.copy(SAMPLES / f"{name}.stage", tmp_path / f"{name}.stage")
+    main(["check", "."])
+    assert len(_worst_files(capsys.readouterr().out)) == 5  # the default
+    main(["check", "--worst", "2", "."])
+    out = capsys.readouterr().out
+    assert len(_worst_files(out)) == 2
+    assert _worst_files(out)[0].startswith("fish-counter.stage (3 errors")  # samples' worst
+    stage_line = next(x for x in out.splitlines() if x.startswith("Worst stages"))
+    assert stage_line.count(" in ") == 2
+    main(["check", "--worst", "0", "."])
+    out = capsys.readouterr().out
+    assert _worst_files(out) is None and "Worst stages" not in out
+    assert "Severity by rule" in out  # the rest of the summary stays
+    (tmp_path / "ampcheck.toml").write_text("worst = 1\n")
+    main(["check", "."])
+    assert len(_worst_files(capsys.readouterr().out)) == 1
+    main(["check", "--worst", "3", "."])  # the command line wins over the file
+    assert len(_worst_files(capsys.readouterr().out)) == 3
+
+
+def test_worst_below_zero_is_a_usage_error(tmp_path, capsys):
+    shutil.copy(SAMPLES / "hydrophone.stage", tmp_path / "a.stage")
+    code = main(["check", "--worst", "-1", str(tmp_path)])
+    err = capsys.readouterr().err
+    assert code == 2 and "--worst takes a whole number of at least 0" in err
