@@ -135,6 +135,9 @@ def build_parser() -> argparse.ArgumentParser:
                        help=help_for("--time-budget"))
     check.add_argument("--memory-limit", type=float, metavar="MB",
                        help=help_for("--memory-limit"))
+    check.add_argument("--figures-csv", metavar="PATH",
+                       help="also write one CSV row per stage: gain, bandwidth (Hz), phase"
+                            " margin (deg), output range (V) and its finding counts")
     check.add_argument("--worst", type=int, metavar="N", help=help_for("--worst"))
     check.add_argument("--no-progress", action="store_true",
                        help="no progress bar (it is off anyway when stderr is not a terminal)")
@@ -369,6 +372,8 @@ def _outputs(args) -> list[tuple[str, str]]:
                              f" {', '.join(FORMAT_NAMES)}, or a PATH ending in"
                              f" {', '.join(OUTPUT_ENDINGS)}")
         outputs.append((name, path))
+    if args.figures_csv:
+        outputs.append(("figures-csv", args.figures_csv))
     return outputs
 
 

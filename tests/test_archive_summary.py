@@ -122,3 +122,31 @@ def test_worst_below_zero_is_a_usage_error(tmp_path, capsys):
     code = main(["check", "--worst", "-1", str(tmp_path)])
     err = capsys.readouterr().err
     assert code == 2 and "--worst takes a whole number of at least 0" in err
+
+
+def test_figures_csv_has_a_row_per_stage_matching_the_json_figures(tmp_path, capsys):
+    import csv
+    import json
+
+    for name in ("hydrophone", "bank-humidity", "autosampler-flow"):
+        shutil.copy(SAMPLES / f"{name}.stage", tmp_path / f"{name}.stage")
+    sheet = tmp_path / "out" / "figures.csv"
+    (tmp_path / "out").mkdir()
+    main(["check", "--format", "json", "--figures-csv", str(sheet), str(tmp_path)])
+    document = json.loads(capsys.readouterr().out)  # the reference: the JSON report
+    rows = list(csv.DictReader(sheet.open()))
+    assert list(rows[0]) == ["file", "stage", "gain", "gain_unit", "bandwidth (Hz)",
+                             "phase_margin (deg)", "output_low (V)", "output_high (V)",
+                             "errors", "warnings", "notes"]
+    stages = [(f["path"], s) for f in document["files"] for s in f["stages"]]
+    assert len(rows) == len(stages) == 3
+    for row, (path, stage) in zip(rows, stages):
+        assert (row["file"], row["stage"]) == (path, stage["name"])
+        for column, key in (("gain", "gain"), ("bandwidth (Hz)", "bandwidth"),
+                            ("phase_margin (deg)", "phase_margin")):
+            want = stage["figures"][key]
+            assert (row[column] == "") if want is None else float(row[column]) == want
+        severities = [f["severity"] for f in stage["findings"] if not f.get("waived")]
+        assert int(row["errors"]) == severities.count("error")
+        assert int(row["warnings"]) == severities.count("warning")
+    assert [p.name for p in (tmp_path / "out").iterdir()] == ["figures.csv"]  # no temp left
