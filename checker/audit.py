@@ -257,6 +257,13 @@ def jobs_for(request: Request, cli_value: int | None) -> int:
     return value
 
 
+def worst_for(request: Request, cli_value: int | None) -> int:
+    """How many worst files and stages the text summary names: the command line, else
+    the working folder's configuration, else 5."""
+    value = cli_value if cli_value is not None else _run_wide(request, "worst")
+    return 5 if value is None else value
+
+
 def limits_for(request: Request, time_budget_s: float | None,
                memory_limit_mb: float | None) -> Request:
     """The request with its per-file time budget and memory cap: the command line, else

@@ -135,6 +135,10 @@ def build_parser() -> argparse.ArgumentParser:
                        help=help_for("--time-budget"))
     check.add_argument("--memory-limit", type=float, metavar="MB",
                        help=help_for("--memory-limit"))
+    check.add_argument("--figures-csv", metavar="PATH",
+                       help="also write one CSV row per stage: gain, bandwidth (Hz), phase"
+                            " margin (deg), output range (V) and its finding counts")
+    check.add_argument("--worst", type=int, metavar="N", help=help_for("--worst"))
     check.add_argument("--no-progress", action="store_true",
                        help="no progress bar (it is off anyway when stderr is not a terminal)")
     check.add_argument("-q", "--quiet", action="store_true",
@@ -372,6 +376,8 @@ def _outputs(args) -> list[tuple[str, str]]:
                              f" {', '.join(FORMAT_NAMES)}, or a PATH ending in"
                              f" {', '.join(OUTPUT_ENDINGS)}")
         outputs.append((name, path))
+    if args.figures_csv:
+        outputs.append(("figures-csv", args.figures_csv))
     return outputs
 
 
@@ -441,8 +447,11 @@ def cmd_check(args) -> int:
                          "\n  ".join(str(p) for p in errors.problems)) from None
     if jobs < 1:
         raise UsageError("--jobs takes a whole number of at least 1")
+    worst = audit.worst_for(request, args.worst)
+    if worst < 0:
+        raise UsageError("--worst takes a whole number of at least 0")
 
-    context = ReportContext(__version__, fail_on, rules)
+    context = ReportContext(__version__, fail_on, rules, worst)
     sinks = []
     try:
         for path in (args.write_baseline, args.baseline if args.prune_baseline else None):

@@ -18,6 +18,7 @@ checker.options.OPTIONS, which this reader checks values against):
     jobs               worker processes for `check` (0: one per CPU)
     time-budget        seconds one file's review may take (0: no limit)
     memory-limit       megabytes one file's review may add to its process (0: no cap)
+    worst              files and stages in the text summary's worst lists (0: none)
     exclude            glob patterns of paths a folder search skips
     [rules.RULE-ID]    severity = "error" | "warning" | "info", and the rule's settings
     [[overrides]]      paths = [globs, relative to the file]; select, ignore,

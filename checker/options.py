@@ -71,6 +71,9 @@ OPTIONS: tuple[Option, ...] = (
     Option("memory-limit", "number", 1024.0, "megabytes one file's review may add to its"
            " process, 0 for no cap (Linux)", unit="megabytes", run_wide=True,
            flag="--memory-limit", default_text="1024"),
+    Option("worst", "count", 5, "files and stages named in the worst lists of a"
+           " several-file text summary, 0 to leave the lists out", run_wide=True,
+           flag="--worst", default_text="5"),
 )
 BY_NAME = {option.name: option for option in OPTIONS}
 TABLE_KEYS = ("rules", "overrides")  # the two tables besides the options

@@ -17,6 +17,7 @@ FORMATS = {
     "compact": "checker.report.compact",
     "csv": "checker.report.csv_table",
     "html": "checker.report.html_page",
+    "figures-csv": "checker.report.figures_csv",
 }
 # Formats whose --output path may name a folder (checker/report/html_page.py): any path
 # that does not end in one of these is a folder.

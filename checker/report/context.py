@@ -13,6 +13,7 @@ class ReportContext:
     tool_version: str
     fail_on: Severity | None  # None: never fail
     rules: dict  # id -> Rule, for documentation in machine formats
+    worst: int = 5  # entries in the text summary's worst lists, 0 for none
 
     def fails(self, finding: Finding) -> bool:
         return (self.fail_on is not None and not finding.suppressed

@@ -16,6 +16,8 @@ from checker.report.context import ReportContext
 from checker.report import Writer as BaseWriter
 from checker.records import FileResult, StageResult, count_by_severity
 from checker.report.wrap import print_wrapped
+from checker.report.archive_summary import (write_folder_rollup, write_severity_by_rule,
+                                            write_stages_by_rule)
 from checker.report.values import measure, measured_line, stage_gain
 from checker.units import format_si
 
@@ -30,7 +32,8 @@ STAGE_LINES_LIMIT = 60  # above this, the per-stage lines give way to the audit 
 WORST = 5
 
 
-def _audit_summary(console: Console, results: list[FileResult], every: list[Finding]) -> None:
+def _audit_summary(console: Console, results: list[FileResult], every: list[Finding],
+                   limit: int = WORST) -> None:
     """Counts by rule, the worst files and stages, and the files that could not be read."""
     active = [f for f in every if not f.suppressed]
     if active:
@@ -50,14 +53,14 @@ def _audit_summary(console: Console, results: list[FileResult], every: list[Find
         files = sorted(((weight([f for f in r.findings() if not f.suppressed]), r.path)
                         for r in results), key=lambda item: (-item[0][0], -item[0][1], item[1]))
         worst = [f"{path} ({_count(e, 'error')}, {_count(w, 'warning')})"
-                 for (e, w), path in files[:WORST]
+                 for (e, w), path in files[:limit]
                  if e or w]
         if worst:
             console.print(Text("Worst files: ", style="bold").append("; ".join(worst)))
         stages = sorted(((weight([f for f in s.findings if not f.suppressed]), r.path, s.name)
                          for r in results for s in r.stages),
                         key=lambda item: (-item[0][0], -item[0][1], item[1], item[2]))
-        worst = [f"{name} in {path} ({e}/{w})" for (e, w), path, name in stages[:WORST]
+        worst = [f"{name} in {path} ({e}/{w})" for (e, w), path, name in stages[:limit]
                  if e or w]
         if worst:
             console.print(Text("Worst stages (errors/warnings): ", style="bold")
@@ -221,7 +224,10 @@ def write(console: Console, results: list[FileResult], context: ReportContext) -
         console.print(Text(f"{stage_total} stages: their figures are in --format json",
                            style="dim"))
     if len(results) > 1:
-        _audit_summary(console, results, every)
+        write_severity_by_rule(console, every)
+        write_stages_by_rule(console, every)
+        write_folder_rollup(console, results)
+        _audit_summary(console, results, every, context.worst)
     counts = count_by_severity([f for f in every if not f.suppressed])
     suppressed = sum(1 for f in every if f.suppressed)
     stages = sum(len(r.stages) for r in results)
