@@ -59,6 +59,20 @@ def noise(view):
         the input: R. Mancini (ed.), Op Amps for Everyone, chapter on op-amp noise
         theory. Equivalent noise bandwidth of a single pole, 1.57 f(-3 dB):
         T. Sobering, "Equivalent Noise Bandwidth", Technote 1. 300 K: common practice.
+
+    Passes:
+        (stage level-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part cmos-rrio) (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
+          (source in (range -1V 1V) (band 0Hz 10Hz) (impedance 1k))
+          (load out (resistance 100k))
+          (require (noise 1mV)))
+
+    Fails:
+        (stage level-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part cmos-rrio) (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
+          (source in (range -1V 1V) (band 0Hz 10kHz) (impedance 100k))
+          (load out (resistance 100k))
+          (require (noise 1uV)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     limit = stage.require.noise_v

@@ -56,6 +56,18 @@ def output_current(view):
         M. N. O. Sadiku, Fundamentals of Electric Circuits, chapter on capacitors and
         inductors; from memory). Adding
         the resistive and capacitive peaks: common practice for a worst case.
+
+    Passes:
+        (stage level-buffer (ground gnd) (supply vcc 5V)
+          (opamp U1 (part cmos-rrio) (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 0.5V 3V) (band 0Hz 10Hz) (impedance 10k))
+          (load out (resistance 10k)))
+
+    Fails:
+        (stage level-buffer (ground gnd) (supply vcc 5V)
+          (opamp U1 (part cmos-rrio) (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 0.5V 3V) (band 0Hz 10Hz) (impedance 10k))
+          (load out (resistance 47)))
     """
     stage, figures = view.stage, view.figures
     for opamp in stage.opamps:

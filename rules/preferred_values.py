@@ -52,6 +52,20 @@ def preferred_values(view):
         IEC 60063, preferred number series for resistors and capacitors (E12, E24,
         E96). The tolerance-to-series pairing (E96 for 1 %, E24 for 5 %, E12 for
         10 %) and the stocking of E24 values in 1 %: common practice.
+
+    Passes:
+        (stage turbidity-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part cmos-rrio) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k (tolerance 1%)) (resistor R2 fb out 47k (tolerance 1%))
+          (source in (range -0.2V 0.2V) (band 0Hz 10Hz))
+          (load out (resistance 100k)))
+
+    Fails:
+        (stage turbidity-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part cmos-rrio) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k (tolerance 1%)) (resistor R2 fb out 46.3k (tolerance 1%))
+          (source in (range -0.2V 0.2V) (band 0Hz 10Hz))
+          (load out (resistance 100k)))
     """
     stage, settings = view.stage, view.settings
     inputs = ({o.in_neg for o in stage.opamps} | {o.in_pos for o in stage.opamps}) \

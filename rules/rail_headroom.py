@@ -47,6 +47,20 @@ def rail_headroom(view):
         currents as sources (linear circuit theory); DC error terms as in Eggleston,
         Basic Electronics for Scientists and Engineers, section 6.4. Margin: common
         practice.
+
+    Passes:
+        (stage level-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k) (resistor R2 fb out 100k)
+          (source in (range -1V 1V) (band 0Hz 10Hz))
+          (load out (resistance 100k)))
+
+    Fails:
+        (stage level-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k) (resistor R2 fb out 100k)
+          (source in (range -1.4V 1.4V) (band 0Hz 10Hz))
+          (load out (resistance 100k)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     margin = stage.require.headroom_v if stage.require.headroom_v is not None \

@@ -56,6 +56,20 @@ def resistor_range(view):
         small fraction of the output current: common practice. Bias-current error
         Ib*R and thermal noise sqrt(4kTR) (Johnson-Nyquist): e.g. R. Mancini (ed.), Op
         Amps for Everyone, chapters on op-amp parameters and noise.
+
+    Passes:
+        (stage turbidity-amp (ground gnd) (supply vcc 5V)
+          (opamp U1 (part cmos-rrio) (in+ in) (in- fb) (out out) (v+ vcc) (v- gnd))
+          (resistor R1 fb gnd 10k) (resistor R2 fb out 47k)
+          (source in (range 0.1V 0.4V) (band 0Hz 10Hz))
+          (load out (resistance 100k)))
+
+    Fails:
+        (stage turbidity-amp (ground gnd) (supply vcc 5V)
+          (opamp U1 (part cmos-rrio) (in+ in) (in- fb) (out out) (v+ vcc) (v- gnd))
+          (resistor R1 fb gnd 10) (resistor R2 fb out 47)
+          (source in (range 0.1V 0.4V) (band 0Hz 10Hz))
+          (load out (resistance 100k)))
     """
     for opamp in view.stage.opamps:
         yield from _check(view, opamp)
