@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from functools import lru_cache
 from importlib import resources
 
@@ -21,7 +22,7 @@ def builtin_parts() -> dict[str, OpAmpPart]:
     return {part.name: part for part in build_parts(parsed, builtin=True)}
 
 
-def load_library(paths: list[str] = ()) -> dict[str, OpAmpPart]:
+def load_library(paths: Sequence[str] = ()) -> dict[str, OpAmpPart]:
     """Built-in parts, overridden in order by the parts of each file in ``paths``.
 
     Raises InputErrors for a part file that cannot be read. A file whose name does not
