@@ -9,6 +9,7 @@ from __future__ import annotations
 import difflib
 from collections import Counter
 from dataclasses import replace
+from typing import Any
 
 from checker.io.grammar import PART_PARAMETERS, REQUIREMENTS
 from checker.io.load import ParsedFile
@@ -72,8 +73,9 @@ class _Builder:
         return OpAmpPart(name=name, family=node.get("class"), note=node.get("note"),
                          builtin=builtin, origin=self.origin(path), **values)
 
-    def part_values(self, node: dict, path: Path, where: str) -> dict[str, float]:
-        values = {}
+    def part_values(self, node: dict, path: Path, where: str) -> dict[str, Any]:
+        """OpAmpPart keyword arguments (each value a float) for the parameters given."""
+        values: dict[str, Any] = {}
         for keyword, kind in PART_PARAMETERS.items():
             positive = keyword in ("open-loop-gain", "gbw", "second-pole", "min-stable-gain")
             number = self.value(node, keyword, kind, path, where, positive=positive)
@@ -115,24 +117,33 @@ class _Builder:
                    for i, item in enumerate(node.get("sources", []))]
         loads = [self.load(item, path + ("loads", i)) for i, item in enumerate(node.get("loads", []))]
         require = self.requirements(node.get("require"), path + ("require",))
-        if None in opamps or None in passives or None in sources or None in loads:
+        built_opamps = [o for o in opamps if o is not None]
+        built_passives = [p for p in passives if p is not None]
+        built_sources = [s for s in sources if s is not None]
+        built_loads = [lo for lo in loads if lo is not None]
+        if (len(built_opamps) != len(opamps) or len(built_passives) != len(passives)
+                or len(built_sources) != len(sources) or len(built_loads) != len(loads)):
             return None
         stage = Stage(name=name, origin=self.origin(path), ground=ground,
-                      supplies=tuple(supplies), opamps=tuple(opamps),
-                      passives=tuple(passives), sources=tuple(sources), loads=tuple(loads),
+                      supplies=tuple(supplies), opamps=tuple(built_opamps),
+                      passives=tuple(built_passives), sources=tuple(built_sources),
+                      loads=tuple(built_loads),
                       require=require, note=node.get("note"), mains=node.get("mains"),
-                      waivers=tuple(self.waivers(node, path, opamps, passives, sources, loads)))
+                      waivers=tuple(self.waivers(node, path, built_opamps, built_sources,
+                                                 built_loads)))
         self.check_references(stage, node, path)
         return stage
 
-    def waivers(self, node: dict, path: Path, opamps, passives, sources, loads) -> list[Waiver]:
+    def waivers(self, node: dict, path: Path, opamps: list[OpAmp], sources: list[Source],
+                loads: list[Load]) -> list[Waiver]:
         """Waivers on the stage and on each element, naming the element as findings do."""
-        found = [(None, node.get("waive", []), path)]
-        for key, items in (("opamps", opamps), ("sources", sources), ("loads", loads)):
-            for i, item in enumerate(items):
-                element = item.ref if key == "opamps" else (
-                    item.name if key == "sources" else f"load {item.net}")
-                found.append((element, node[key][i].get("waive", []), path + (key, i)))
+        found: list[tuple[str | None, list, Path]] = [(None, node.get("waive", []), path)]
+        names: list[tuple[str, list[str]]] = [
+            ("opamps", [o.ref for o in opamps]), ("sources", [s.name for s in sources]),
+            ("loads", [f"load {lo.net}" for lo in loads])]
+        for key, elements in names:
+            for i, name in enumerate(elements):
+                found.append((name, node[key][i].get("waive", []), path + (key, i)))
         for key in ("resistors", "capacitors", "inductors"):
             for i, item in enumerate(node.get(key, [])):
                 found.append((item["ref"], item.get("waive", []), path + (key, i)))
@@ -163,6 +174,8 @@ class _Builder:
                                  **overrides)
             else:
                 part = replace(part, name=f"{part.name} (adjusted)", **overrides)
+        # The schema requires "part" or "params" (anyOf), so one of them set it.
+        assert part is not None
         return OpAmp(ref=ref, part=part, in_pos=node["in+"], in_neg=node["in-"],
                      out=node["out"], v_pos=node["v+"], v_neg=node["v-"],
                      origin=self.origin(path))
@@ -192,9 +205,10 @@ class _Builder:
         if "range" in node:
             ends = [self.pair_value(node["range"], i, signal, path + ("range",), where)
                     for i in range(2)]
-            if None in ends:
+            range_ends = [e for e in ends if e is not None]
+            if len(range_ends) != len(ends):
                 return None
-            low, high = min(ends), max(ends)
+            low, high = min(range_ends), max(range_ends)
         if "amplitude" in node:
             amplitude = self.value(node, "amplitude", signal, path, where)
             offset = self.value(node, "offset", signal, path, where, signed=True) or 0.0
@@ -211,9 +225,10 @@ class _Builder:
         if "band" in node:
             band = [self.pair_value(node["band"], i, "frequency", path + ("band",), where)
                     for i in range(2)]
-            if None in band:
+            band_ends = [e for e in band if e is not None]
+            if len(band_ends) != len(band):
                 return None
-            band_low, band_high = sorted(band)
+            band_low, band_high = sorted(band_ends)
             if band_high <= 0:
                 self.fail(path + ("band",), f"{where}: the band's upper edge must be above 0 Hz")
         impedance = self.value(node, "impedance", "resistance", path, where,
@@ -237,9 +252,10 @@ class _Builder:
         where = f"supply {item['net']}"
         ends = [self.pair_value(item["range"], i, "voltage", path + ("range",), where)
                 for i in range(2)]
-        if None in ends:
+        given = [e for e in ends if e is not None]
+        if len(given) != len(ends):
             return None, None
-        low, high = min(ends), max(ends)
+        low, high = min(given), max(given)
         if not low <= voltage <= high:
             self.fail(path + ("range",), f"the range of {where} ({format_si(low, 'V')} to"
                                          f" {format_si(high, 'V')}) must hold its nominal"
@@ -297,7 +313,8 @@ class _Builder:
     def check_references(self, stage: Stage, node: dict, path: Path) -> None:
         where = f"stage {stage.name}"
         seen: dict[str, Origin] = {}
-        for element in (*stage.opamps, *stage.passives):
+        designated: tuple[OpAmp | Passive, ...] = (*stage.opamps, *stage.passives)
+        for element in designated:
             if element.ref in seen:
                 self.fail_at(element.origin, f"designator {element.ref} is used twice in"
                              f" {where} (first at line {seen[element.ref].line})", element.ref)
@@ -329,7 +346,7 @@ class _Builder:
                              f" {opamp.out!r}, where {sourced[opamp.out].name} is; a source"
                              " needs a net the stage does not drive", opamp.ref)
             drivers.setdefault(opamp.out, opamp.ref)
-        pins = Counter()
+        pins: Counter[str] = Counter()
         for opamp in stage.opamps:
             for pin, net in opamp.pins.items():
                 if pin not in ("v+", "v-"):
@@ -358,7 +375,7 @@ class _Builder:
                              f" net {load.net!r}")
         connected = [n for n in pins if pins[n] > 1]  # the candidates for a hint, once
         hints: dict[str, str] = {}
-        for element in (*stage.opamps, *stage.passives):
+        for element in designated:
             nets = element.nets if isinstance(element, Passive) else (
                 element.in_pos, element.in_neg, element.out)
             for net in nets:

@@ -142,8 +142,8 @@ def _supply_span(stage: Stage) -> Caution | None:
     span = max(rails.values()) - min(rails.values())
     if not above(span, DC_LIMIT_V):
         return None
-    highest = max(rails, key=rails.get)
-    lowest = min(rails, key=rails.get)
+    highest = max(rails, key=lambda net: rails[net])
+    lowest = min(rails, key=lambda net: rails[net])
     # Point at the supply farthest from the ground: the one that makes the span.
     farthest = max(stage.supplies, key=lambda s: abs(s.voltage_v))
     return Caution(

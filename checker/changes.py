@@ -9,6 +9,7 @@ file. :func:`apply_changes` never touches the original: stages are frozen.
 
 from __future__ import annotations
 
+from collections.abc import Set as AbstractSet
 from dataclasses import dataclass, replace
 
 from checker.model import OpAmpPart, Passive, Stage
@@ -191,7 +192,7 @@ def like_tolerance(stage: Stage, kind: str = "resistor") -> float | None:
     return min(stated) if stated else None
 
 
-def free_designator(stage: Stage, letter: str, taken: set[str] = frozenset()) -> str:
+def free_designator(stage: Stage, letter: str, taken: AbstractSet[str] = frozenset()) -> str:
     """The lowest ``letter`` + number designator the stage (and ``taken``) leaves free."""
     used = {p.ref for p in stage.passives} | {o.ref for o in stage.opamps} | set(taken)
     number = 1

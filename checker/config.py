@@ -33,6 +33,8 @@ import re
 import sys
 from dataclasses import dataclass, field
 from functools import lru_cache
+from collections.abc import Callable
+from typing import NoReturn
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -181,7 +183,7 @@ def parse_config(path: str, rules_for, trust_rules: bool = False) -> Config:
         line = lines.get(prefix + keys) or lines.get(prefix + keys[:-1]) or 1
         return f"{path}:{line}"
 
-    def fail(keys: tuple, message: str):
+    def fail(keys: tuple, message: str) -> NoReturn:
         raise ConfigError(f"{where(*keys)}: {message}")
 
     folders = table.get("rules-dirs", [])
@@ -266,7 +268,8 @@ def deprecation(note: str) -> None:
 _NOTED: set[str] = set()
 
 
-def _rule_tables(table: dict, keys: tuple, where, fail, known_rules) -> dict:
+def _rule_tables(table: dict, keys: tuple, where, fail: Callable[[tuple, str], NoReturn],
+                 known_rules) -> dict:
     """[rules.ID] tables: severity and the rule's settings (by kebab-case key, the old
     snake_case spelling accepted with a note), stored by the name the rule reads."""
     if not isinstance(table, dict):

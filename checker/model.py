@@ -291,7 +291,8 @@ class Stage:
 
     def element(self, ref: str):
         """The op-amp or passive with designator ``ref``."""
-        for item in (*self.opamps, *self.passives):
+        items: tuple[OpAmp | Passive, ...] = (*self.opamps, *self.passives)
+        for item in items:
             if item.ref == ref:
                 return item
         raise KeyError(ref)

@@ -19,6 +19,7 @@ from __future__ import annotations
 import math
 import re
 from dataclasses import dataclass
+from typing import TypeGuard
 
 from checker.units import UnitError, check_plausible, parse_value
 
@@ -159,7 +160,7 @@ class Setting:
         return format_setting(value, self.symbol)
 
 
-def _is_number(value: object) -> bool:
+def _is_number(value: object) -> TypeGuard[int | float]:
     return isinstance(value, (int, float)) and not isinstance(value, bool)
 
 

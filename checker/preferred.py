@@ -62,7 +62,7 @@ def at_least(value: float, series: str = "E12") -> float:
 
 def ladder(start: float, stop: float, series: str = "E12") -> list[float]:
     """Members of ``series`` from ``start`` up to ``stop`` inclusive, ascending."""
-    values = []
+    values: list[float] = []
     start = max(start, 1e-15)  # a preferred value is positive
     if stop < start:
         return values

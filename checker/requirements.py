@@ -131,6 +131,7 @@ def _required(stage: Stage, keyword: str) -> str:
         return f"≤ {format_si(r.dc_error_v, 'V')}"
     if keyword == "noise":
         return f"≤ {format_si(r.noise_v, 'V')} rms"
+    assert r.cmrr is not None  # the one keyword left, asked for only when stated
     return f"≥ {_db(r.cmrr):.1f} dB"
 
 
@@ -150,6 +151,7 @@ def _gain_text(value: float, unit: str) -> str:
 def _gain(c: _Context) -> Verdict:
     r = c.stage.require
     required, band = r.gain, r.gain_tolerance or DEFAULT_GAIN_TOLERANCE
+    assert required is not None  # a judge runs only for a stated requirement
     text = _required(c.stage, "gain")
     if not c.signals:
         return c.verdict("gain", UNCHECKED, text, "no source", reason="the stage has no source"
@@ -163,12 +165,13 @@ def _gain(c: _Context) -> Verdict:
     blocked = c.open_loops()
     if blocked:
         return c.verdict("gain", NOT_MET, text, "no closed-loop gain", reason="; ".join(blocked))
-    worst = None
+    worst: tuple[float, float, SignalFigures] | None = None
     for signal in c.signals:
         gain = signed_gain(signal.gain)
         error = abs(gain / required - 1)
         if worst is None or error > worst[0]:
             worst = (error, gain, signal)
+    assert worst is not None  # c.signals is not empty (checked above)
     error, gain, signal = worst
     statement = f"gain from {signal.label} {_gain_text(gain, signal.unit)} {_where(signal)}"
     reason = None
@@ -219,11 +222,13 @@ def _gain_tolerance(c: _Context) -> Verdict:
     if blocked:
         return c.verdict("gain-tolerance", NOT_MET, text, "no closed-loop gain",
                          reason="; ".join(blocked))
-    worst = None
+    assert r.gain_tolerance is not None  # a judge runs only for a stated requirement
+    worst: SignalSpread | None = None
     for signal in c.signals:
         spread = gain_spread(c.figures, signal, c.spread_options("gain-tolerance"), r.gain)
         if worst is None or spread.worst.error > worst.worst.error:
             worst = spread
+    assert worst is not None  # c.signals is not empty (checked above)
     how = "at the worst corner" if worst.worst.exact else "at the Monte Carlo extremes"
     statement = (f"gain from {worst.signal.label} {worst.worst.gain:.4g} {how} of the"
                  f" resistors' tolerances (nominal {worst.nominal:.4g})")
@@ -260,6 +265,7 @@ def gain_spread(figures, signal: SignalFigures, options: SpreadOptions, required
 
 def _input_resistance(c: _Context) -> Verdict:
     required = c.stage.require.input_resistance_ohm
+    assert required is not None  # a judge runs only for a stated requirement
     text = _required(c.stage, "input-resistance")
     voltage = [sf for sf in c.figures.sources if sf.source.kind == "voltage"]
     if not voltage:
@@ -279,6 +285,7 @@ def _input_resistance(c: _Context) -> Verdict:
 
 def _bandwidth(c: _Context) -> Verdict:
     required = c.stage.require.bandwidth_hz
+    assert required is not None  # a judge runs only for a stated requirement
     text = _required(c.stage, "bandwidth")
     if not c.signals:
         return c.verdict("bandwidth", UNCHECKED, text, "no source",
@@ -302,6 +309,7 @@ def _bandwidth(c: _Context) -> Verdict:
 
 def _phase_margin(c: _Context) -> Verdict:
     required = c.stage.require.phase_margin_deg
+    assert required is not None  # a judge runs only for a stated requirement
     text = _required(c.stage, "phase-margin")
     failing, unchecked, margins = [], [], []
     for opamp in c.stage.opamps:
@@ -340,6 +348,7 @@ def _phase_margin(c: _Context) -> Verdict:
 
 def _headroom(c: _Context) -> Verdict:
     required = c.stage.require.headroom_v
+    assert required is not None  # a judge runs only for a stated requirement
     text = _required(c.stage, "headroom")
     stage, figures = c.stage, c.figures
     if all(source.low is None for source in stage.sources):
@@ -383,6 +392,7 @@ def _headroom(c: _Context) -> Verdict:
 
 def _dc_error(c: _Context) -> Verdict:
     required = c.stage.require.dc_error_v
+    assert required is not None  # a judge runs only for a stated requirement
     text = _required(c.stage, "dc-error")
     stage, figures = c.stage, c.figures
     for opamp in stage.opamps:
@@ -420,6 +430,7 @@ def stage_noise(figures, temperature_k: float):
 
 def _noise(c: _Context) -> Verdict:
     required = c.stage.require.noise_v
+    assert required is not None  # a judge runs only for a stated requirement
     text = _required(c.stage, "noise")
     result = stage_noise(c.figures, c.settings_of("noise").get("temperature_k", 300.0))
     if result is None:
@@ -457,6 +468,7 @@ def rejection_spread(figures, pair: SignalFigures, options: SpreadOptions):
 
 def _cmrr(c: _Context) -> Verdict:
     required = c.stage.require.cmrr
+    assert required is not None  # a judge runs only for a stated requirement
     text = _required(c.stage, "cmrr")
     pair = differential_pair(c.signals)
     if pair is None:

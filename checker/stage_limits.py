@@ -21,7 +21,7 @@ ELEMENT_KEYS = ("opamps", "resistors", "capacitors", "inductors", "sources", "lo
 
 def stage_nets(node: dict) -> set[str]:
     """Every net a stage's plain tree names (before any checking)."""
-    nets = {node.get("ground")}
+    nets: set[str | None] = {node.get("ground")}
     nets.update(item.get("net") for item in node.get("supplies", []))
     for opamp in node.get("opamps", []):
         nets.update(opamp.get(pin) for pin in ("in+", "in-", "out", "v+", "v-"))
@@ -30,8 +30,7 @@ def stage_nets(node: dict) -> set[str]:
             nets.update(item.get("nets", ()))
     for key in ("sources", "loads"):
         nets.update(item.get("net") for item in node.get(key, []))
-    nets.discard(None)
-    return nets
+    return {net for net in nets if net is not None}
 
 
 def stage_too_large(node: dict) -> str | None:

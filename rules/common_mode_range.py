@@ -69,7 +69,7 @@ def common_mode_range(view):
             continue
         allowed_low = rails[opamp.v_neg] + part.input_range_low_v
         allowed_high = rails[opamp.v_pos] + part.input_range_high_v
-        reported = []
+        reported: list[str] = []
         pins = [("in+", opamp.in_pos)]
         if opamp.in_neg != opamp.in_pos:
             pins.append(("in-", opamp.in_neg))

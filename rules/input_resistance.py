@@ -156,7 +156,7 @@ def _suggest(view, source, zin, limit, settings) -> list[Suggestion]:
         if denominator > 0 and not topology.tee_elements:
             r4 = nearest(r * r / denominator, "E96")
             tee = f"{opamp.in_neg}.tee"
-            refs = []
+            refs: list[str] = []
             for _ in range(3):
                 refs.append(free_designator(stage, "R", set(refs) - {rf.ref}))
             refs = [rf.ref] + refs[:2]  # the feedback resistor becomes the tee's first arm

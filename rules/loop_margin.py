@@ -98,7 +98,7 @@ def loop_margin(view):
             failing.append((opamp, loop, short_phase, short_gain, _causes(view, opamp)))
     # One loop through several op-amps fails at each of them: report it once, at the
     # op-amp whose margin another op-amp inside its loop eats.
-    inside = {}
+    inside: dict[str, str] = {}
     for opamp, _loop, _p, _g, causes in failing:
         for other in stage.opamps:
             if any(name == f"{other.ref} inside the loop" and reaches(value, warn)

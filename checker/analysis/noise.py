@@ -15,7 +15,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-_trapezoid = getattr(np, "trapezoid", None) or np.trapz  # numpy < 2 names it trapz
+# numpy < 2 names it trapz; numpy 2's stubs no longer declare trapz (a third-party typing gap).
+_trapezoid = getattr(np, "trapezoid", None) or np.trapz  # type: ignore[attr-defined]
 BOLTZMANN = 1.380649e-23  # J/K, exact in the SI (2019 redefinition; CODATA)
 INTERNAL = (".Rin", ".Ro")  # parts of the op-amp model, not resistors on the board
 

@@ -25,6 +25,7 @@ def _source_terms(solution: Solution) -> list[tuple[Excitation, float, float, So
     for i, source in enumerate(solution.stage.sources):
         if source.low is None:
             continue
+        assert source.high is not None  # the builder sets low and high together
         terms.append((Excitation.source(i), (source.low + source.high) / 2,
                       (source.high - source.low) / 2, source))
     return terms
@@ -118,6 +119,8 @@ def input_window(solution: Solution, net: str, index: int) -> tuple[float, float
     node = node_range(solution, net)
     if node.clip_low is None or source.low is None:
         return None
+    # The builder sets low and high together; node_range sets both clip ends or neither.
+    assert source.high is not None and node.clip_high is not None
     transfer = solution.dc_transfer(net, Excitation.source(index))
     if abs(transfer) < 1e-15:
         return None

@@ -45,7 +45,9 @@ def parse_netlist_number(text: str) -> float:
         raise NetlistValueError(f"{text!r} is not a number (expected e.g. 10k, 4.7n, 1meg"
                                 " or 2.2e-6)")
     rest = text[match.end():]
-    letters = _LETTERS.match(rest).group()
+    letters_match = _LETTERS.match(rest)
+    assert letters_match is not None  # the pattern ends in *, so it matches any text
+    letters = letters_match.group()
     if letters != rest:
         tail = rest[len(letters):]
         hint = ""

@@ -202,7 +202,7 @@ class _Converter:
         name = keyword
         rest = list(args)
         for key, count, optional in positional_slots(form):
-            atoms = []
+            atoms: list[SNode] = []
             while rest and not rest[0].is_list and len(atoms) < count:
                 atoms.append(rest.pop(0))
             if len(atoms) < count:

@@ -16,6 +16,7 @@ import os
 import stat
 import tempfile
 import contextlib
+from collections.abc import Sequence
 
 TEMPORARY_PREFIX, TEMPORARY_SUFFIX = ".ampcheck-", ".tmp"
 
@@ -119,7 +120,7 @@ def _sync_folder(folder: str) -> None:
         os.close(handle)
 
 
-def write_new_file(path: str, text: str, protect: list[str] = ()) -> None:
+def write_new_file(path: str, text: str, protect: Sequence[str] = ()) -> None:
     """Write ``text`` to ``path`` atomically (see the module's docstring).
 
     Refuses (ValueError) when ``path`` is one of the ``protect`` files: the tool never

@@ -56,7 +56,7 @@ def _ranges_from_upstream(stages: list[Stage], extraction: Extraction) -> list[S
         waiting = [link for link in links if link[0] not in done]
         if not waiting:
             break
-        upstream_of = {}
+        upstream_of: dict[str, set[str]] = {}
         for stage, _net, upstream in waiting:
             upstream_of.setdefault(stage, set()).add(upstream)
         ready = [name for name, ups in upstream_of.items() if not (ups - done - {name})]

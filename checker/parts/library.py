@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import hashlib
 import re
+from collections.abc import Sequence
 from functools import lru_cache
 from importlib import resources
 
@@ -69,7 +70,7 @@ def builtin_table_source() -> str:
     return "\n".join(lines) + "\n"
 
 
-def load_library(paths: list[str] = ()) -> dict[str, OpAmpPart]:
+def load_library(paths: Sequence[str] = ()) -> dict[str, OpAmpPart]:
     """Built-in parts, overridden in order by the parts of each file in ``paths``.
 
     Raises InputErrors for a part file that cannot be read. A file whose name does not
