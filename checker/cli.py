@@ -24,8 +24,8 @@ from checker import __version__
 EXIT_OK, EXIT_FINDINGS, EXIT_USAGE, EXIT_REVIEW_FAILED, EXIT_INTERNAL = 0, 1, 2, 3, 4
 EXIT_SIGNAL_BASE = 128
 STOP_SIGNALS = ("SIGTERM", "SIGHUP")  # besides SIGINT, which Python raises itself
-FORMAT_NAMES = ["text", "json", "sarif", "compact", "csv", "html"]
-FIGURE_FORMATS = {"text", "json", "html"}  # the reports that show each stage's figures
+FORMAT_NAMES = ["text", "json", "sarif", "compact", "csv", "figures-csv", "html"]
+FIGURE_FORMATS = {"text", "json", "html", "figures-csv"}  # the reports that show each stage's figures
 HTML_MODULES = ("matplotlib", "jinja2")  # the `html` extra
 
 

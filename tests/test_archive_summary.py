@@ -150,3 +150,19 @@ def test_figures_csv_has_a_row_per_stage_matching_the_json_figures(tmp_path, cap
         assert int(row["errors"]) == severities.count("error")
         assert int(row["warnings"]) == severities.count("warning")
     assert [p.name for p in (tmp_path / "out").iterdir()] == ["figures.csv"]  # no temp left
+
+
+def test_figures_csv_through_output_with_a_findings_only_format(tmp_path, capsys):
+    """-o figures-csv:PATH beside --format compact (which shows no figures) still fills
+    the figures: the run computes them because one of its reports needs them."""
+    import csv
+
+    shutil.copy(SAMPLES / "conductivity.stage", tmp_path / "conductivity.stage")
+    sheet = tmp_path / "f.csv"
+    main(["check", "--format", "compact", "-o", f"figures-csv:{sheet}",
+          str(tmp_path / "conductivity.stage")])
+    capsys.readouterr()
+    (row,) = list(csv.DictReader(sheet.open()))
+    # the sample's comment: R1 = 100k, R2 = 1M, a gain of -R2/R1 = -10 (less from the
+    # cell's side, which its impedance loads: common practice)
+    assert float(row["gain"]) < -9.8 and float(row["phase_margin (deg)"]) > 0

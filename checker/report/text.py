@@ -36,16 +36,7 @@ def _audit_summary(console: Console, results: list[FileResult], every: list[Find
                    limit: int = WORST) -> None:
     """Counts by rule, the worst files and stages, and the files that could not be read."""
     active = [f for f in every if not f.suppressed]
-    if active:
-        by_rule: dict[str, list[int]] = {}
-        for f in active:
-            counts = by_rule.setdefault(f.rule, [0, 0, 0])
-            counts[3 - int(f.severity)] += 1
-        line = Text("By rule: ", style="bold")
-        line.append(", ".join(f"{rule} {sum(c)}" for rule, c in
-                              sorted(by_rule.items(), key=lambda item: (-sum(item[1]), item[0]))))
-        console.print(line)
-
+    if active:  # counts by rule: the severity-by-rule table above (archive_summary.py)
         def weight(findings) -> tuple:
             return (sum(f.severity == Severity.ERROR for f in findings),
                     sum(f.severity == Severity.WARNING for f in findings))
