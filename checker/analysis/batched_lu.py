@@ -65,9 +65,11 @@ def _order(matrix: np.ndarray, pattern: np.ndarray, last: np.ndarray
 class BatchedLU:
     """The elimination program of one pattern; :meth:`solve` runs it over samples."""
 
-    def __init__(self, nominal: np.ndarray, pattern: np.ndarray, wanted: np.ndarray):
+    def __init__(self, nominal: np.ndarray, pattern: np.ndarray, wanted: np.ndarray,
+                 first: tuple[np.ndarray, np.ndarray] | None = None):
         """``wanted``: the unknowns a solve returns; they are eliminated last, so the
-        back substitution stops at them."""
+        back substitution stops at them. ``first``: (rows, columns) of distinct
+        positions stored first, in that order (a caller's slice of the storage)."""
         n = nominal.shape[0]
         self.n = n
         self.rows, self.cols, filled = _order(nominal, pattern, wanted)
@@ -76,6 +78,12 @@ class BatchedLU:
         permuted = filled[self.rows][:, self.cols]  # pivot p on the diagonal at (p, p)
         where = np.full((n, n), -1, dtype=np.int64)
         positions = np.flatnonzero(permuted)
+        if first is not None:
+            inverse_rows, inverse_cols = np.empty(n, np.int64), np.empty(n, np.int64)
+            inverse_rows[self.rows] = np.arange(n)
+            inverse_cols[self.cols] = np.arange(n)
+            leading = inverse_rows[first[0]] * n + inverse_cols[first[1]]
+            positions = np.concatenate([leading, np.setdiff1d(positions, leading)])
         where.flat[positions] = np.arange(positions.size)
         self.entries = positions.size
         self._where_permuted = where

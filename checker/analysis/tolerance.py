@@ -50,7 +50,6 @@ def transfer_samples(figures, values: dict[str, np.ndarray], sources: list[int],
     resistor ``values`` (designator -> (S,) ohms). Returns (S, len(sources), len(nets))
     complex (real at 0 Hz)."""
     circuit = figures.circuit
-    stage = figures.stage
     n = circuit.size
     base = figures.cached(("tolerance-base", frequency_hz),
                           lambda: _base_matrix(figures, frequency_hz))
@@ -62,12 +61,11 @@ def transfer_samples(figures, values: dict[str, np.ndarray], sources: list[int],
         else:
             B[circuit.row_of_node(circuit.source_node[i]), j] = 1.0
     refs = list(values)
-    a = np.array([circuit.node(stage.element(r).net_a) - 1 for r in refs], dtype=np.int64)
-    b = np.array([circuit.node(stage.element(r).net_b) - 1 for r in refs], dtype=np.int64)
-    delta = np.empty((count, len(refs)))  # (samples, resistors) changes of conductance
-    for column, ref in enumerate(refs):
-        delta[:, column] = 1.0 / np.asarray(values[ref], dtype=float) \
-            - 1.0 / stage.element(ref).value
+    a, b, nominal = figures.cached(("tolerance-elements", tuple(refs)),
+                                   lambda: _elements(figures, refs))
+    # (resistors, samples) changes of conductance
+    changes = 1.0 / np.array([values[ref] for ref in refs], dtype=float).reshape(
+        len(refs), count) - nominal[:, None]
     rows = np.array([circuit.node(net) - 1 for net in nets], dtype=np.int64)
     result = np.zeros((count, len(sources), len(nets)), dtype=base.dtype)
     kept = np.flatnonzero(rows >= 0)
@@ -83,11 +81,20 @@ def transfer_samples(figures, values: dict[str, np.ndarray], sources: list[int],
     batch = max(1, BATCH_BYTES // max(1, per_sample))
     for start in range(0, count, batch):
         stop = min(count, start + batch)
-        part = delta[start:stop]
-        out = (_low_rank_outputs(solver, part, rows[kept]) if low_rank
+        part = changes[:, start:stop]
+        out = (_low_rank_outputs(solver, part.T, rows[kept]) if low_rank
                else _sparse_outputs(solver, base, B, a, b, part, rows[kept]))
         result[start:stop][:, :, kept] = out
     return result
+
+
+def _elements(figures, refs: list[str]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Each resistor's two rows (-1: ground) and nominal conductance."""
+    circuit, stage = figures.circuit, figures.stage
+    parts = [stage.element(r) for r in refs]
+    return (np.array([circuit.node(p.net_a) - 1 for p in parts], dtype=np.int64),
+            np.array([circuit.node(p.net_b) - 1 for p in parts], dtype=np.int64),
+            np.array([1.0 / p.value for p in parts], dtype=float))
 
 
 def _base_matrix(figures, frequency_hz: float) -> np.ndarray:
@@ -108,10 +115,6 @@ def _solver(base, B, a, b, rows, low_rank: bool):
     for i, j in ((a, a), (b, b), (a, b), (b, a)):
         both = (i >= 0) & (j >= 0)
         pattern[i[both], j[both]] = True
-    try:
-        solver = BatchedLU(base, pattern, np.unique(rows))
-    except np.linalg.LinAlgError:
-        raise SingularCircuit("the stage's equations are singular") from None
     # each resistor's stamp as index arithmetic: its (up to) four stored entries, in
     # layers within which no entry repeats, so each layer is one indexed add
     n = base.shape[0]
@@ -123,6 +126,12 @@ def _solver(base, B, a, b, rows, low_rank: bool):
                 columns.append(k)
                 signs.append(sign)
     flat_array = np.array(flat, dtype=np.int64)
+    _unique, first_at = np.unique(flat_array, return_index=True)
+    leading = flat_array[np.sort(first_at)]  # each touched entry stored first, in order
+    try:
+        solver = BatchedLU(base, pattern, np.unique(rows), (leading // n, leading % n))
+    except np.linalg.LinAlgError:
+        raise SingularCircuit("the stage's equations are singular") from None
     stored = solver.index(flat_array // n, flat_array % n)
     seen: dict[int, int] = {}
     layers: list[list[int]] = []
@@ -135,6 +144,10 @@ def _solver(base, B, a, b, rows, low_rank: bool):
     columns_array, signs_array = np.array(columns, dtype=np.int64), np.array(signs)
     stamps = tuple((stored[chosen], columns_array[chosen], signs_array[chosen][:, None])
                    for chosen in (np.array(layer, dtype=np.int64) for layer in layers))
+    # the first layer touches every touched entry once, stored first in its order: a slice
+    first_entries = stamps[0][0] if stamps else np.zeros(0, np.int64)
+    if np.array_equal(first_entries, np.arange(first_entries.size)):
+        stamps = ((slice(0, first_entries.size),) + stamps[0][1:],) + stamps[1:]
     position = {int(unknown): at for at, unknown in enumerate(solver.wanted_order)}
     return _Sparse(solver, solver.gather(base), stamps,
                    np.array([position[int(r)] for r in rows], dtype=np.int64))
@@ -162,10 +175,10 @@ def _low_rank_outputs(solver: LowRankSolver, delta, rows) -> np.ndarray:
     return out
 
 
-def _sparse_outputs(solver: _Sparse, base, B, a, b, delta, rows) -> np.ndarray:
-    """(S, m, len(rows)) by the batched sparse LU, each sample checked by its residual."""
-    changes = delta.T  # (k, S)
-    values = np.repeat(solver.base_values[:, None], delta.shape[0], axis=1)
+def _sparse_outputs(solver: _Sparse, base, B, a, b, changes, rows) -> np.ndarray:
+    """(S, m, len(rows)) by the batched sparse LU for ``changes`` (k, S), a sample whose
+    pivots did not hold solved again densely."""
+    values = np.repeat(solver.base_values[:, None], changes.shape[1], axis=1)
     for entries, columns, signs in solver.stamps:
         values[entries] += signs * changes[columns]
     with np.errstate(all="ignore"):
@@ -174,7 +187,7 @@ def _sparse_outputs(solver: _Sparse, base, B, a, b, delta, rows) -> np.ndarray:
         bad |= ~np.isfinite(X).all(axis=(0, 1))
     out = np.moveaxis(X, 2, 0).swapaxes(1, 2)  # (S, m, rows)
     if bad.any():
-        out[bad] = np.swapaxes(_dense(base, B, a, b, delta[bad])[:, rows, :], 1, 2)
+        out[bad] = np.swapaxes(_dense(base, B, a, b, changes[:, bad].T)[:, rows, :], 1, 2)
     return out
 
 
