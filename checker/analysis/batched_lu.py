@@ -94,6 +94,9 @@ class BatchedLU:
             self.steps.append((int(where[p, p]), below, where[below, p], right,
                                where[p, right], where[np.ix_(below, right)].ravel()))
         self.flops = sum(len(s[1]) * len(s[3]) for s in self.steps)
+        # the steps with work, so a solve loops over those alone
+        self._eliminating = [(s[0], s[2], s[4], s[5]) for s in self.steps if s[2].size]
+        self._forward = [(p, s[1], s[2]) for p, s in enumerate(self.steps) if s[1].size]
         self._lower = np.concatenate([step[2] for step in self.steps] + [np.zeros(0, int)])
 
     def index(self, row: np.ndarray, col: np.ndarray) -> np.ndarray:
@@ -123,17 +126,14 @@ class BatchedLU:
         the same right-hand sides for all. Returns X (len(wanted), m, S) of the unknowns
         ``wanted_order``; ``values`` is overwritten with the factors."""
         samples = values.shape[1]
-        for pivot, _below, lower, _right, upper, targets in self.steps:
-            if lower.size == 0:
-                continue
+        for pivot, lower, upper, targets in self._eliminating:
             values[lower] /= values[pivot]
             if upper.size:
                 values[targets] -= (values[lower][:, None, :] * values[upper][None, :, :]
                                     ).reshape(-1, samples)
         y = np.repeat(B[self.rows].astype(values.dtype)[:, :, None], samples, axis=2)
-        for p, (_pivot, below, lower, _right, _upper, _targets) in enumerate(self.steps):
-            if below.size:
-                y[below] -= values[lower][:, None, :] * y[p][None]
+        for p, below, lower in self._forward:
+            y[below] -= values[lower][:, None, :] * y[p][None]
         for p in range(self.n - 1, self.tail - 1, -1):  # unknown cols[p] is the p-th
             pivot, _below, _lower, right, upper, _targets = self.steps[p]
             if right.size:

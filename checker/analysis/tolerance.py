@@ -25,6 +25,7 @@ pivoting, so every sample is solved as stably as before.
 
 from __future__ import annotations
 
+import functools
 import itertools
 from dataclasses import dataclass
 
@@ -217,6 +218,17 @@ def uniform_values(refs: list[str], nominal: dict[str, float], tolerance: dict[s
                    samples: int, seed: int) -> dict[str, np.ndarray]:
     """Each resistor drawn uniformly within its tolerance (a conservative shape for a
     tolerance band; common practice), reproducibly from ``seed``."""
+    draws = _uniform_draws(tuple(refs), int(samples), int(seed))
+    return {ref: nominal[ref] * (1 + tolerance[ref] * draws[i]) for i, ref in enumerate(refs)}
+
+
+@functools.lru_cache(maxsize=4)
+def _uniform_draws(refs: tuple[str, ...], samples: int, seed: int) -> np.ndarray:
+    """(len(refs), samples) uniform on [-1, 1], drawn resistor after resistor from
+    ``seed``: the same for every tolerance, so a fix's tighter tolerances re-use them
+    (read-only)."""
     generator = np.random.default_rng(seed)
-    return {ref: nominal[ref] * (1 + tolerance[ref] * generator.uniform(-1, 1, samples))
-            for ref in refs}
+    draws = np.array([generator.uniform(-1, 1, samples) for _ref in refs]).reshape(
+        len(refs), samples)
+    draws.flags.writeable = False
+    return draws
