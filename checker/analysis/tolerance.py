@@ -128,7 +128,9 @@ def _solver(base, B, a, b, rows, low_rank: bool):
                 signs.append(sign)
     flat_array = np.array(flat, dtype=np.int64)
     _unique, first_at = np.unique(flat_array, return_index=True)
-    leading = flat_array[np.sort(first_at)]  # each touched entry stored first, in order
+    firsts = np.sort(first_at)  # each touched entry stored first: diagonals (+), then -
+    signs_first = np.array(signs)[firsts]
+    leading = flat_array[np.concatenate([firsts[signs_first > 0], firsts[signs_first < 0]])]
     try:
         solver = BatchedLU(base, pattern, np.unique(rows), (leading // n, leading % n))
     except np.linalg.LinAlgError:
@@ -136,21 +138,29 @@ def _solver(base, B, a, b, rows, low_rank: bool):
     stored = solver.index(flat_array // n, flat_array % n)
     seen: dict[int, int] = {}
     layers: list[list[int]] = []
-    for position, entry in enumerate(stored.tolist()):
+    order = np.argsort(stored, kind="stable")  # within a layer, in storage order
+    for position in order.tolist():
+        entry = int(stored[position])
         layer = seen.get(entry, 0)
         seen[entry] = layer + 1
         if layer == len(layers):
             layers.append([])
         layers[layer].append(position)
     columns_array, signs_array = np.array(columns, dtype=np.int64), np.array(signs)
-    stamps = tuple((stored[chosen], columns_array[chosen], signs_array[chosen][:, None])
-                   for chosen in (np.array(layer, dtype=np.int64) for layer in layers))
-    # the first layer touches every touched entry once, stored first in its order: a slice
-    first_entries = stamps[0][0] if stamps else np.zeros(0, np.int64)
-    if np.array_equal(first_entries, np.arange(first_entries.size)):
-        stamps = ((slice(0, first_entries.size),) + stamps[0][1:],) + stamps[1:]
+    stamps = []
+    for layer in layers:
+        chosen = np.array(layer, dtype=np.int64)
+        for sign in (1.0, -1.0):  # an add and a subtract: no multiply by the sign
+            part = chosen[signs_array[chosen] == sign]
+            entries: np.ndarray | slice = stored[part]
+            # the first layer touches each touched entry once, stored first: slices
+            if entries.size and np.array_equal(entries, np.arange(entries[0],
+                                                                  entries[0] + entries.size)):
+                entries = slice(int(entries[0]), int(entries[0]) + entries.size)
+            if part.size:
+                stamps.append((entries, columns_array[part], sign))
     position = {int(unknown): at for at, unknown in enumerate(solver.wanted_order)}
-    return _Sparse(solver, solver.gather(base), stamps,
+    return _Sparse(solver, solver.gather(base), tuple(stamps),
                    np.array([position[int(r)] for r in rows], dtype=np.int64))
 
 
@@ -158,7 +168,7 @@ def _solver(base, B, a, b, rows, low_rank: bool):
 class _Sparse:
     lu: BatchedLU
     base_values: np.ndarray  # (entries,) the nominal matrix's stored entries
-    stamps: tuple  # per layer: (stored entries, resistor columns, signs (t, 1))
+    stamps: tuple  # per layer and sign: (stored entries, resistor columns, +1 or -1)
     picks: np.ndarray  # where each wanted row is among the solve's returned unknowns
 
     @property
@@ -180,8 +190,11 @@ def _sparse_outputs(solver: _Sparse, base, B, a, b, changes, rows) -> np.ndarray
     """(S, m, len(rows)) by the batched sparse LU for ``changes`` (k, S), a sample whose
     pivots did not hold solved again densely."""
     values = np.repeat(solver.base_values[:, None], changes.shape[1], axis=1)
-    for entries, columns, signs in solver.stamps:
-        values[entries] += signs * changes[columns]
+    for entries, columns, sign in solver.stamps:
+        if sign > 0:
+            values[entries] += changes[columns]
+        else:
+            values[entries] -= changes[columns]
     with np.errstate(all="ignore"):
         X = solver.lu.solve(values, B)[solver.picks]  # (rows, m, S); values: the factors
         bad = ~(solver.lu.largest_multiplier(values) <= MULTIPLIER_LIMIT)
