@@ -7,14 +7,15 @@ order is chosen on the nominal matrix by Markowitz's criterion (the pivot of lea
 threshold of their column's largest (threshold partial pivoting; Duff, Erisman & Reid,
 Direct Methods for Sparse Matrices, 2nd ed., §7.8 and §5.4). The filled pattern of that
 elimination is stored as an (entries, S) array, so each elimination step is a few
-vector operations over all S samples: the cost is the fill, linear in the elements
-for the ladders and chains of a stage, not n^3.
+vector operations over all S samples: the cost per sample is the fill, linear in the
+elements for the ladders and chains of a stage, not n^3 (the ordering itself, once per
+stage and frequency, is n steps of n x n vector work).
 
 The samples' matrices differ from the nominal only by small conductance changes, so the
 nominal's pivots stay good. Whether they held is read from the multipliers: threshold
 pivoting keeps every |l_ij| <= 1/THRESHOLD, which bounds the growth of the factors as
 partial pivoting's |l_ij| <= 1 does (Duff, Erisman & Reid, §5.4; Golub & Van Loan, 4th
-ed., §3.4.6); :meth:`BatchedLU.largest_multiplier` gives each sample's, so a caller can
+ed., §3.4; section numbers from memory); :meth:`BatchedLU.largest_multiplier` gives each sample's, so a caller can
 re-solve any sample whose pivots did not hold.
 """
 

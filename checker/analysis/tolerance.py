@@ -4,7 +4,7 @@ The nominal system Y(s) at one frequency is perturbed by each varied resistor's 
 conductance at the (up to) four entries it touches: Y_s = Y + sum_r (1/R_rs - 1/R_r) P_r,
 with P_r the stamp of a unit conductance between the resistor's nodes (C.-W. Ho,
 A. E. Ruehli, P. A. Brennan, "The modified nodal approach to network analysis", IEEE
-Trans. Circuits and Systems, 1975). Only the (samples, resistors) array of changes is
+Trans. Circuits and Systems, 1975). Only the (resistors, samples) array of changes is
 built, never a dense matrix per resistor, and the samples are solved in chunks of
 bounded memory (``BATCH_BYTES``), each sample alone, so a result does not depend on the
 chunking.
