@@ -1,0 +1,114 @@
+"""The tolerance engine's fast paths (Woodbury updates, the batched sparse LU, the dense
+re-solve) against a direct dense solve of every sample.
+
+The reference stacks each sample's MNA matrix in full (the nominal DC or AC system with
+every resistor's conductance change stamped at its four entries) and solves it with
+numpy.linalg.solve (LU with partial pivoting); the engine must agree to 1e-9 relative
+(both are backward stable and the stage is well conditioned: common practice).
+"""
+
+from __future__ import annotations
+
+import random
+
+import numpy as np
+import pytest
+from rule_helpers import build
+
+from checker.analysis import AnalysisOptions, analyse, tolerance
+from checker.analysis.mna import system_stack
+
+OPAMP = "(part gp-bipolar)"
+
+
+def random_stage(seed: int, resistors: int = 18) -> str:
+    """An inverting stage whose input and feedback sides are random resistor meshes."""
+    rng = random.Random(seed)
+    nets = ["in", "fb", "out"] + [f"n{k}" for k in range(6)]
+    parts = ["(resistor R1 in fb 10k)", "(resistor R2 fb out 47k)"]
+    for k in range(3, resistors + 1):
+        a, b = rng.sample(nets + ["gnd"], 2)
+        ohms = rng.choice([1, 2.2, 4.7, 10, 22, 47, 100]) * 1e3
+        parts.append(f"(resistor R{k} {a} {b} {ohms:g})")
+    parts += [f"(resistor R{resistors + 1 + k} n{k} gnd 100k)" for k in range(6)]
+    parts += [f"(resistor R{resistors + 7 + k} n{k} {('in', 'fb')[k % 2]} 22k)"
+              for k in range(6)]  # no net left dangling
+    return f"""
+        (version 1)
+        (stage mesh (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 {OPAMP} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          {' '.join(parts)}
+          (source in (range -0.1V 0.1V) (band 0Hz 10Hz) (impedance 50))
+          (load out (resistance 10k)))
+        """
+
+
+def dense_reference(figures, values, sources, nets, frequency_hz):
+    circuit, stage = figures.circuit, figures.stage
+    if frequency_hz == 0.0:
+        base = figures.solution.dc_system()
+    else:
+        f = np.array([frequency_hz])
+        base = system_stack(figures.ac_matrices, figures.open_loop_gains(f), 2j * np.pi * f)[0]
+    count = len(next(iter(values.values())))
+    Y = np.repeat(base[None], count, axis=0)
+    for ref, ohms in values.items():
+        part = stage.element(ref)
+        a, b = circuit.node(part.net_a) - 1, circuit.node(part.net_b) - 1
+        change = 1.0 / ohms - 1.0 / part.value
+        for i, j, sign in ((a, a, 1), (b, b, 1), (a, b, -1), (b, a, -1)):
+            if i >= 0 and j >= 0:
+                Y[:, i, j] += sign * change
+    B = np.zeros((circuit.size, len(sources)))
+    for column, index in enumerate(sources):
+        if index in circuit.source_branch:
+            B[circuit.row_of_branch(circuit.source_branch[index]), column] = 1.0
+        else:
+            B[circuit.row_of_node(circuit.source_node[index]), column] = 1.0
+    X = np.linalg.solve(Y, np.repeat(B[None], count, axis=0))
+    rows = [circuit.node(net) - 1 for net in nets]
+    return np.stack([X[:, row, :] for row in rows], axis=2)
+
+
+def case(seed: int, varied: int | None = None, count: int = 300):
+    stage = build(random_stage(seed))[0]
+    figures = analyse(stage, AnalysisOptions())
+    refs = [p.ref for p in stage.resistors()][:varied]
+    nominal = {p.ref: p.value for p in stage.resistors()}
+    values = tolerance.uniform_values(refs, nominal, dict.fromkeys(refs, 0.2), count, seed)
+    return figures, values, ["out", "fb"]
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+@pytest.mark.parametrize("frequency_hz", [0.0, 2e3])
+@pytest.mark.parametrize("varied", [3, None])  # Woodbury (3 of 30), batched LU (all 30)
+def test_engine_matches_a_dense_solve_of_every_sample(seed, frequency_hz, varied):
+    figures, values, nets = case(seed, varied)
+    got = tolerance.transfer_samples(figures, values, [0], nets, frequency_hz)
+    expected = dense_reference(figures, values, [0], nets, frequency_hz)
+    assert got.shape == expected.shape == (300, 1, 2)
+    np.testing.assert_allclose(got, expected, rtol=1e-9, atol=1e-12 * np.abs(expected).max())
+
+
+def test_both_solvers_agree_on_the_same_samples(monkeypatch):
+    figures, values, nets = case(4)
+    sparse = tolerance.transfer_samples(figures, values, [0], nets)
+    monkeypatch.setattr(tolerance, "LOW_RANK_MAX", 100)
+    low_rank = tolerance.transfer_samples(figures, values, [0], nets)
+    np.testing.assert_allclose(low_rank, sparse, rtol=1e-9)
+
+
+def test_a_sample_whose_pivots_do_not_hold_is_solved_densely(monkeypatch):
+    figures, values, nets = case(5)
+    monkeypatch.setattr(tolerance, "MULTIPLIER_LIMIT", 0.0)  # every sample re-solved
+    got = tolerance.transfer_samples(figures, values, [0], nets)
+    np.testing.assert_allclose(got, dense_reference(figures, values, [0], nets, 0.0),
+                               rtol=1e-9)
+
+
+def test_chunking_does_not_change_a_sample(monkeypatch):
+    figures, values, nets = case(6, count=1000)
+    whole = tolerance.transfer_samples(figures, values, [0], nets)
+    monkeypatch.setattr(tolerance, "BATCH_BYTES", 4096)  # a few boards per chunk
+    fresh = analyse(figures.stage, AnalysisOptions())
+    np.testing.assert_array_equal(tolerance.transfer_samples(fresh, values, [0], nets), whole)
