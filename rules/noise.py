@@ -62,15 +62,15 @@ def noise(view):
 
     Passes:
         (stage level-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
-          (opamp U1 (part cmos-rrio) (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
-          (source in (range -1V 1V) (band 0Hz 10Hz) (impedance 1k))
+          (opamp U1 (part gp-bipolar) (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
+          (source in (range -1V 1V) (band 0Hz 10kHz) (impedance 1k))
           (load out (resistance 100k))
-          (require (noise 1mV)))
+          (require (noise 5uV)))
 
     Fails:
         (stage level-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
-          (opamp U1 (part cmos-rrio) (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
-          (source in (range -1V 1V) (band 0Hz 10kHz) (impedance 100k))
+          (opamp U1 (part gp-bipolar) (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
+          (source in (range -1V 1V) (band 0Hz 10kHz) (impedance 1k))
           (load out (resistance 100k))
           (require (noise 1uV)))
     """

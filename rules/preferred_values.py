@@ -55,14 +55,14 @@ def preferred_values(view):
 
     Passes:
         (stage turbidity-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
-          (opamp U1 (part cmos-rrio) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
           (resistor R1 in fb 10k (tolerance 1%)) (resistor R2 fb out 47k (tolerance 1%))
           (source in (range -0.2V 0.2V) (band 0Hz 10Hz))
           (load out (resistance 100k)))
 
     Fails:
         (stage turbidity-amp (ground gnd) (supply vcc 15V) (supply vee -15V)
-          (opamp U1 (part cmos-rrio) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
           (resistor R1 in fb 10k (tolerance 1%)) (resistor R2 fb out 46.3k (tolerance 1%))
           (source in (range -0.2V 0.2V) (band 0Hz 10Hz))
           (load out (resistance 100k)))

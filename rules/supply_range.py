@@ -34,6 +34,18 @@ def supply_range(view):
     Sources:
         Operating range against absolute maximum ratings, as data sheets separate
         them: common practice.
+
+    Passes:
+        (stage gauge-buffer (ground gnd) (supply vcc 5V)
+          (opamp U1 (part cmos-rrio) (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 0.5V 3V) (band 0Hz 10Hz))
+          (load out (resistance 10k)))
+
+    Fails:
+        (stage gauge-buffer (ground gnd) (supply vcc 12V)
+          (opamp U1 (part cmos-rrio) (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+          (source in (range 0.5V 3V) (band 0Hz 10Hz))
+          (load out (resistance 10k)))
     """
     rails = view.stage.rail_voltages
     for opamp in view.stage.opamps:

@@ -43,6 +43,22 @@ def swapped_inputs(view):
         of the return ratio tells which (H. W. Bode, Network Analysis and Feedback
         Amplifier Design, 1945). Hysteresis comparators use positive feedback on
         purpose: common practice.
+
+    Passes:
+        (stage staff-gauge-gain (ground gnd) (supply vcc 12V) (supply vee -12V)
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k) (resistor R2 fb out 100k)
+          (source in (range 0V 0.4V) (band 0Hz 10Hz))
+          (load out (resistance 100k))
+          (require (gain -10)))
+
+    Fails:
+        (stage staff-gauge-gain (ground gnd) (supply vcc 12V) (supply vee -12V)
+          (opamp U1 (part gp-bipolar) (in+ fb) (in- gnd) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k) (resistor R2 fb out 100k)
+          (source in (range 0V 0.4V) (band 0Hz 10Hz))
+          (load out (resistance 100k))
+          (require (gain -10)))
     """
     stage, figures = view.stage, view.figures
     for opamp in stage.opamps:

@@ -40,6 +40,20 @@ def unstable_stage(view):
         Singhal, Computer Methods for Circuit Analysis and Design, 2nd ed., chapter on
         poles and zeros); a pole in the right half-plane grows without bound (any
         control text, e.g. K. Ogata, Modern Control Engineering, stability chapter).
+
+    Passes:
+        (stage siren-buffer (ground gnd) (supply vcc 12V) (supply vee -12V)
+          (opamp U1 (part gp-bipolar) (params (second-pole 400kHz))
+            (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
+          (source in (amplitude 1V) (band 500Hz 3kHz))
+          (load out (resistance 1k) (capacitance 1n)))
+
+    Fails:
+        (stage siren-buffer (ground gnd) (supply vcc 12V) (supply vee -12V)
+          (opamp U1 (part gp-bipolar) (params (second-pole 400kHz))
+            (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
+          (source in (amplitude 1V) (band 500Hz 3kHz))
+          (load out (resistance 1k) (capacitance 100n)))
     """
     stage, figures = view.stage, view.figures
     poles = stage_poles(figures)
