@@ -33,6 +33,29 @@ def not_analysed(view):
     Sources:
         The netlist subset read is documented in docs/netlist.md (the element letters of
         the SPICE3 user's manual, University of California, Berkeley, chapter 2).
+
+    Passes:
+        * Heronpost level amplifier
+        V1 vcc 0 DC 12
+        V2 vee 0 DC -12
+        R1 in fb 10k
+        R2 fb out 100k
+        XU1 0 fb vcc vee out OA
+        ---
+        (opamp-model OA (part gp-bipolar) (pins in+ in- v+ v- out))
+
+    Fails:
+        * Heronpost level amplifier with its status lamp driver
+        V1 vcc 0 DC 12
+        V2 vee 0 DC -12
+        R1 in fb 10k
+        R2 fb out 100k
+        XU1 0 fb vcc vee out OA
+        R10 out base 10k
+        Q1 lamp base 0 NPN_SMALL
+        .model NPN_SMALL NPN
+        ---
+        (opamp-model OA (part gp-bipolar) (pins in+ in- v+ v- out))
     """
     for note in view.stage.reader_notes:
         if note.kind == "not-analysed":

@@ -46,6 +46,22 @@ def resistor_power(view):
         Electric Circuits, chapter on basic laws: power; from memory). Derating to about half the
         rated power, and 0.1 W as the rating of a small chip resistor: common practice.
         Rating ladder: common practice for chip and leaded resistors.
+
+    Passes:
+        (stage sampler-valve-drive (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 200 (power-rating 0.1W))
+          (resistor R2 fb out 2k (power-rating 0.25W))
+          (source in (range 0V 1.2V) (band 0Hz 10Hz))
+          (load out (resistance 100k)))
+
+    Fails:
+        (stage sampler-valve-drive (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 (part gp-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 200 (power-rating 0.1W))
+          (resistor R2 fb out 2k (power-rating 0.1W))
+          (source in (range 0V 1.2V) (band 0Hz 10Hz))
+          (load out (resistance 100k)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     derating = settings["derating"]

@@ -48,6 +48,20 @@ def slew_rate(view):
         Slew-rate limit 2 pi f Vpeak and full-power bandwidth SR / (2 pi Vpeak): any
         op-amp text (e.g. Sedra and Smith, Microelectronic Circuits, op-amp chapter);
         adding the sources' slopes as a worst case: common practice.
+
+    Passes:
+        (stage hydrophone-line-driver (ground gnd) (supply vcc 12V) (supply vee -12V)
+          (opamp U1 (part jfet-input) (in+ in) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 fb gnd 10k) (resistor R2 fb out 100k)
+          (source in (amplitude 500mV) (band 100Hz 20kHz) (impedance 1k))
+          (load out (resistance 10k)))
+
+    Fails:
+        (stage hydrophone-line-driver (ground gnd) (supply vcc 12V) (supply vee -12V)
+          (opamp U1 (part gp-bipolar) (in+ in) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 fb gnd 10k) (resistor R2 fb out 100k)
+          (source in (amplitude 500mV) (band 100Hz 20kHz) (impedance 1k))
+          (load out (resistance 10k)))
     """
     stage, figures, settings = view.stage, view.figures, view.settings
     for opamp in stage.opamps:

@@ -59,6 +59,20 @@ def stable_gain(view):
         series RC across the inputs: common practice (R. Mancini (ed.), Op Amps for
         Everyone, 2nd ed. (Newnes, 2003), stability chapter, on noise gain and the
         feedback factor).
+
+    Passes:
+        (stage doppler-echo-gain (ground gnd) (supply vcc 12V) (supply vee -12V)
+          (opamp U1 (part decomp-bipolar-g5) (in+ in) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 fb gnd 1k) (resistor R2 fb out 10k)
+          (source in (amplitude 50mV) (band 10kHz 500kHz) (impedance 50))
+          (load out (resistance 10k)))
+
+    Fails:
+        (stage doppler-echo-gain (ground gnd) (supply vcc 12V) (supply vee -12V)
+          (opamp U1 (part decomp-bipolar-g5) (in+ in) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 fb gnd 1k) (resistor R2 fb out 1k)
+          (source in (amplitude 50mV) (band 10kHz 500kHz) (impedance 50))
+          (load out (resistance 10k)))
     """
     stage, figures = view.stage, view.figures
     for opamp in stage.opamps:
