@@ -82,7 +82,7 @@ class Card:
 class TwoTerminal(Card):
     """``R``, ``C`` or ``L``: two nodes, a value, then extras and parameters."""
 
-    nodes: tuple[Word, Word] = ()
+    nodes: tuple[Word, Word]  # no default: a card always has both (the reader sets them)
     value: Word | None = None
     extras: tuple[Word, ...] = ()  # bare words after the value
     parameters: tuple[Parameter, ...] = ()
@@ -92,7 +92,7 @@ class TwoTerminal(Card):
 class SourceCard(Card):
     """``V`` or ``I``: two nodes, then an optional DC value, AC part and function."""
 
-    nodes: tuple[Word, Word] = ()
+    nodes: tuple[Word, Word]  # no default: a card always has both (the reader sets them)
     dc: Word | None = None
     ac: tuple[Word, ...] = ()  # magnitude [phase]
     function: Word | None = None  # SIN, PULSE, ...
