@@ -14,7 +14,7 @@ from checker import audit
 from checker import baseline as baselines
 from checker.io.write import AtomicOutput
 from checker.records import DEFERRAL, Caution
-from checker.report import Writer, writer, writes_folder
+from checker.report import Receiver, writer, writes_folder
 from checker.report.context import ReportContext
 from checker.review import FileResult
 
@@ -32,7 +32,7 @@ class Sink:
                  inputs: list[str]):
         self.name, self.context, self.path = name, context, path
         self.output: AtomicOutput | None = None
-        self.writer: Writer | None = None
+        self.writer: Receiver | None = None
         if path is None:
             self.stream = sys.stdout
             return
