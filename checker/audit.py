@@ -12,16 +12,20 @@ import os
 from collections.abc import Iterator
 from dataclasses import dataclass, field, replace
 from functools import lru_cache
+from typing import TYPE_CHECKING, Any
 
 from checker import budget, workers
 from checker.analysis import AnalysisOptions
 from checker.cautions import KINDS as CAUTION_KINDS
 from checker.cautions import not_a_rule
-from checker.config import Config, ConfigError, find_config_file, parse_config
+from checker.config import Config, ConfigError, Valued, find_config_file, parse_config
 from checker.engine import ENGINE_RULES, RuleError, RunOptions, load_rules, selected
 from checker.catalogue import engine_severity
 from checker.findings import Finding, Severity
 from checker.review import FileResult, review_file
+
+if TYPE_CHECKING:  # loaded lazily at run time (only netlist files need it)
+    from checker.netlist.mapping import NetlistMap
 
 DEFAULT_STRAY_F = 1e-12  # layout stray at an inverting input (common practice: 0.5-2 pF)
 
@@ -98,7 +102,7 @@ class FileSetup:
     options: RunOptions
     library: dict
     all_rules: dict = field(default_factory=dict)
-    netlist_map: object = None  # checker.netlist.mapping.NetlistMap, for netlist files
+    netlist_map: NetlistMap | None = None  # for netlist files
 
 
 def netlist_map_path(path: str, request: Request) -> str | None:
@@ -120,6 +124,11 @@ def _netlist_map(path: str, library_key: tuple[str, ...]):
     return netlist_map
 
 
+def _severity(valued: Valued) -> Severity:
+    assert isinstance(valued.value, Severity)  # the config parser stores it parsed
+    return valued.value
+
+
 def setup_for(path: str, request: Request) -> FileSetup:
     """Rules, run options and part library for one file. Raises ConfigError, RuleError
     or InputErrors (a part library) for configuration mistakes."""
@@ -134,19 +143,21 @@ def setup_for(path: str, request: Request) -> FileSetup:
         if unknown:
             raise RuleError(f"unknown rule id {', '.join(unknown)}; `ampcheck rules` lists them")
     ignore = request.ignore if request.ignore is not None else config.get("ignore", frozenset())
-    for ids in (select or (), ignore):
-        cautions = sorted(set(ids) & set(CAUTION_KINDS))
+    for given in (select or (), ignore):
+        cautions = sorted(set(given) & set(CAUTION_KINDS))
         if cautions:
             raise RuleError(not_a_rule(cautions[0]))
-        unknown = sorted(set(ids) - set(rules) - set(ENGINE_RULES))
+        unknown = sorted(set(given) - set(rules) - set(ENGINE_RULES))
         if unknown:
             raise RuleError(f"unknown rule id {', '.join(unknown)}; `ampcheck rules` lists them")
     stray = request.stray_capacitance_f
     if stray is None:
         stray = config.get("stray-capacitance", DEFAULT_STRAY_F)
-    settings = {rid: {k: v.value for k, v in values.items() if k != "severity"}
-                for rid, values in config.rules.items()}
-    severities = {rid: values["severity"].value for rid, values in config.rules.items()
+    # each value a number, or a list of numbers, as the rule's default is (options.Setting)
+    settings: dict[str, dict[str, Any]] = {
+        rid: {k: v.value for k, v in values.items() if k != "severity"}
+        for rid, values in config.rules.items()}
+    severities = {rid: _severity(values["severity"]) for rid, values in config.rules.items()
                   if "severity" in values}
     options = RunOptions(analysis=AnalysisOptions(stray_capacitance_f=stray), select=select,
                          ignore=frozenset(ignore), settings=settings, severities=severities,

@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 import os
 from collections import Counter
+from collections.abc import Sequence
 from dataclasses import dataclass, replace
 
 from checker.catalogue import engine_severity
@@ -107,7 +108,7 @@ def baseline_text(counts: Counter) -> str:
                       indent=2, ensure_ascii=False) + "\n"
 
 
-def write_counts(path: str, counts: Counter, protect: list[str] = ()) -> None:
+def write_counts(path: str, counts: Counter, protect: Sequence[str] = ()) -> None:
     """Write a baseline holding ``counts`` (keys relative to the file's folder)."""
     write_new_file(path, baseline_text(counts), protect)
 

@@ -14,7 +14,7 @@ from checker import audit
 from checker import baseline as baselines
 from checker.io.write import AtomicOutput
 from checker.records import DEFERRAL, Caution
-from checker.report import writer, writes_folder
+from checker.report import Receiver, writer, writes_folder
 from checker.report.context import ReportContext
 from checker.review import FileResult
 
@@ -32,7 +32,7 @@ class Sink:
                  inputs: list[str]):
         self.name, self.context, self.path = name, context, path
         self.output: AtomicOutput | None = None
-        self.writer = None
+        self.writer: Receiver | None = None
         if path is None:
             self.stream = sys.stdout
             return
@@ -48,6 +48,7 @@ class Sink:
         self.writer = writer(self.name, self.stream, self.context)
 
     def close(self) -> None:
+        assert self.writer is not None  # start() made it (open_sinks starts every sink)
         self.writer.close()
         if self.output is None:
             self.stream.flush()
@@ -96,7 +97,7 @@ class FolderSink:
     def __init__(self, name: str, path: str, context: ReportContext, inputs: list[str]):
         from checker.report.html_page import is_review_folder
 
-        self.path = path
+        self.path: str | None = path  # None once the folder is in place, or abandoned
         target = os.path.realpath(path)
         if os.path.exists(target):
             if not os.path.isdir(target):
@@ -141,7 +142,7 @@ class FolderSink:
 
 def sink_for(name: str, path: str | None, context: ReportContext, inputs: list[str]):
     """The sink of one report: a folder where the format writes one, else a stream."""
-    if writes_folder(name, path):
+    if path is not None and writes_folder(name, path):
         return FolderSink(name, path, context, inputs)
     return Sink(name, path, context, inputs)
 
@@ -184,6 +185,7 @@ class CheckRun:
                 stage.findings = baselines.apply_baseline(stage.findings, self.baseline,
                                                           self.matched)
         for sink in self.sinks:
+            assert sink.writer is not None  # open_sinks started every sink
             sink.writer.add(result)
         for caution in result.cautions():
             self.failing = self.failing or self.context.caution_fails(caution)

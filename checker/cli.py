@@ -457,8 +457,8 @@ def cmd_check(args) -> int:
         for path in (args.write_baseline, args.baseline if args.prune_baseline else None):
             if path:
                 probe_output(path, paths)
-        report = [] if args.quiet else [(args.format, None)]
-        sinks = open_sinks(report + outputs, context, paths)
+        report: list[tuple[str, str | None]] = [] if args.quiet else [(args.format, None)]
+        sinks = open_sinks([*report, *outputs], context, paths)
         # the human formats leave the baseline's findings out unless asked; the machine
         # formats keep each one, marked baselined, for the tools that read them
         hide_baselined = (baseline is not None and not args.show_baselined
@@ -582,8 +582,9 @@ def _without_excluded(paths: list[str], args, request) -> list[str]:
                 continue
             config = audit.config_for(path, request)
             patterns = config.get("exclude") or []
-            if patterns and matches_any(path, os.path.dirname(os.path.abspath(config.path)),
-                                        patterns):
+            # exclude patterns come from a file, so the configuration has its path
+            if patterns and config.path is not None and \
+                    matches_any(path, os.path.dirname(os.path.abspath(config.path)), patterns):
                 continue
         kept.append(path)
     return kept
@@ -607,6 +608,7 @@ def cmd_config(args) -> int:
     checker.options with its origin, and every rule setting by its kebab-case key."""
     from checker.audit import Request, config_for, forget, rules_for, run_wide_source
     from checker.config import ConfigError, find_config_file, trusted_by_environment
+    from checker.findings import Severity
     from checker.options import OPTIONS, rule_settings
     from checker.units import format_si
 
@@ -637,6 +639,7 @@ def cmd_config(args) -> int:
         elif isinstance(value, list):
             value = ", ".join(value) or "none"
         if option.type == "quantity" and item is not None:
+            assert isinstance(value, float)  # parse_option reads a quantity as a float
             value = format_si(value, "F")
         print(f"  {option.name} = {value}    ({origin})")
     for rule_id, rule in rules.items():
@@ -648,6 +651,7 @@ def cmd_config(args) -> int:
                   f"({'default' if item is None else item.origin})")
         item = configured.get("severity")
         if item is not None:
+            assert isinstance(item.value, Severity)  # parse_config stores it parsed
             print(f"  rules.{rule_id}.severity = {item.value.label}    ({item.origin})")
     return EXIT_OK
 

@@ -18,6 +18,7 @@ import re
 import sys
 import textwrap
 from collections.abc import Callable, Iterable
+from collections.abc import Set as AbstractSet
 from dataclasses import dataclass, field, replace
 from types import ModuleType
 
@@ -85,6 +86,9 @@ class Rule:
         return {k: textwrap.dedent("\n".join(v)).strip() for k, v in found.items()}
 
 
+_RULE_MARK = "__ampcheck_rule__"  # the attribute @rule sets on a rule's function
+
+
 def rule(id: str, severity: str, summary: str, **settings: float):
     """Declare a rule: a stable kebab-case id, a default severity, a one-line summary
     and its settings with their defaults (override them in configuration)."""
@@ -92,9 +96,9 @@ def rule(id: str, severity: str, summary: str, **settings: float):
         raise RuleError(f"rule id {id!r} is not kebab-case")
 
     def decorate(function: Callable) -> Callable:
-        function.__ampcheck_rule__ = Rule(id=id, severity=Severity.parse(severity),
-                                          summary=summary, settings=dict(settings),
-                                          check=function, module=function.__module__)
+        setattr(function, _RULE_MARK, Rule(id=id, severity=Severity.parse(severity),
+                                           summary=summary, settings=dict(settings),
+                                           check=function, module=function.__module__))
         return function
 
     return decorate
@@ -102,8 +106,8 @@ def rule(id: str, severity: str, summary: str, **settings: float):
 
 def rules_in(module: ModuleType) -> list[Rule]:
     """The rules defined by decorated functions in ``module``."""
-    return [value.__ampcheck_rule__ for value in vars(module).values()
-            if callable(value) and hasattr(value, "__ampcheck_rule__")
+    return [getattr(value, _RULE_MARK) for value in vars(module).values()
+            if callable(value) and hasattr(value, _RULE_MARK)
             and value.__module__ == module.__name__]
 
 
@@ -124,6 +128,7 @@ def _builtin_modules() -> list[ModuleType]:
             raise RuleError(f"the built-in rules are missing: no folder {folder}") from None
         package = importlib.util.module_from_spec(spec)
         sys.modules["checker.rules"] = package
+        assert spec.loader is not None  # a .py file's location always has a source loader
         spec.loader.exec_module(package)
     names = sorted(info.name for info in pkgutil.iter_modules(package.__path__)
                    if not info.name.startswith("_"))
@@ -140,6 +145,8 @@ def _folder_modules(folder: str) -> list[ModuleType]:
         path = os.path.join(folder, name)
         module_name = f"ampcheck_user_rules.{os.path.basename(os.path.abspath(folder))}.{name[:-3]}"
         spec = importlib.util.spec_from_file_location(module_name, path)
+        # a path ending in .py always gets a spec with a source loader
+        assert spec is not None and spec.loader is not None
         module = importlib.util.module_from_spec(spec)
         sys.modules[module_name] = module
         try:
@@ -570,7 +577,7 @@ def _answer_verdicts(stage: Stage, verdicts: list[Verdict], findings: list[Findi
 
 
 def apply_waivers(stage: Stage, findings: list[Finding], ran: set[str],
-                  known: set[str]) -> list[Finding]:
+                  known: AbstractSet[str]) -> list[Finding]:
     """Mark findings covered by the stage's waivers; report waivers that are invalid
     (no reason, unknown rule) or stale (matched nothing of a rule that ran)."""
     result = list(findings)

@@ -13,7 +13,7 @@ from __future__ import annotations
 from dataclasses import replace
 from itertools import product
 
-from checker.model import Stage
+from checker.model import Stage, Supply
 from checker.records import NOT_MET, UNCHECKED, Caution, Verdict
 from checker.units import format_si
 
@@ -26,12 +26,18 @@ def supply_ends(stage: Stage) -> list[tuple[str, Stage]]:
         return []
     ends = []
     for choice in product((0, 1), repeat=len(ranged)):
-        voltages = {s.net: (s.low_v, s.high_v)[pick] for s, pick in zip(ranged, choice)}
+        voltages = {s.net: _range_ends(s)[pick] for s, pick in zip(ranged, choice)}
         supplies = tuple(replace(s, voltage_v=voltages[s.net]) if s.net in voltages else s
                          for s in stage.supplies)
         label = ", ".join(f"{net} at {format_si(v, 'V')}" for net, v in voltages.items())
         ends.append((label, replace(stage, supplies=supplies)))
     return ends
+
+
+def _range_ends(supply: Supply) -> tuple[float, float]:
+    """(low, high) of a ranged supply."""
+    assert supply.low_v is not None and supply.high_v is not None  # only ranged supplies
+    return supply.low_v, supply.high_v
 
 
 def _finding_key(finding) -> tuple:

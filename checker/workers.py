@@ -22,9 +22,12 @@ import time
 from collections import deque
 from collections.abc import Callable, Iterator
 from multiprocessing.connection import wait
+from typing import TypeVar
 
 POLL_S = 0.25  # the longest the parent waits before it looks at its workers again
 AHEAD = 4  # batches handed out beyond the first unfinished one, per worker
+Task = TypeVar("Task")
+Result = TypeVar("Result")
 
 
 def _initialise() -> None:
@@ -92,9 +95,9 @@ def _exit_text(code: int | None) -> str:
     return f"its worker process ended unexpectedly (exit status {code})"
 
 
-def ordered(work: Callable, tasks: list, jobs: int, chunk: int,
+def ordered(work: Callable[[Task], Result], tasks: list[Task], jobs: int, chunk: int,
             patience_per_task_s: float | None,
-            died: Callable[[object, str], object]) -> Iterator:
+            died: Callable[[Task, str], Result]) -> Iterator[Result]:
     """work(task) for every task, in the order of ``tasks``, from ``jobs`` processes.
 
     A batch whose worker is silent for longer than ``patience_per_task_s`` per task

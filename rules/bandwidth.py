@@ -7,7 +7,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from checker.analysis.figures import grid_upper_edges
+from checker.analysis.figures import Figures, grid_upper_edges
 from checker.analysis.updates import source_gain_candidates
 from checker.changes import SetPartParameter
 from checker.engine import rule
@@ -186,7 +186,7 @@ def _with_gbw(stage, ref: str, gbw: float):
 
 
 def _smallest_gbw(view, opamp, estimate: float, passes, predict
-                  ) -> tuple[float, object] | None:
+                  ) -> tuple[float, Figures] | None:
     """The smallest E12 GBW from estimate/2 up to 1000 x the estimate whose solved
     figures pass; (gbw, figures) or None. ``predict(values)`` gives the index to start
     from (see _predictor); the solved figures decide."""

@@ -81,11 +81,12 @@ def floating_input(view):
         for pin, net in pins:
             if net not in floating:
                 continue
+            suggestion: Suggestion | list[Suggestion]
             if pin == "in-" and _feedback_capacitance(stage, opamp):
                 suggestion, details = _feedback_path(view, opamp)
             else:
-                suggestion, details = _suggest(view, opamp, net)
-                suggestion = [suggestion] + _larger(view, opamp, net, suggestion)
+                first, details = _suggest(view, opamp, net)
+                suggestion = [first] + _larger(view, opamp, net, first)
             yield view.finding(
                 f"{opamp.ref} {pin} (net {net}) has no DC path to a defined potential:"
                 f" only capacitors or op-amp inputs touch it, so its bias current charges"
@@ -125,10 +126,12 @@ def _feedback_path(view, opamp) -> tuple[Suggestion, dict]:
 def _larger(view, opamp, net: str, first: Suggestion) -> list[Suggestion]:
     """Bias resistors ten and a hundred times larger, for the engine to offer where the
     first loads the source enough to cost a requirement (the corner only moves lower)."""
-    return [_suggest(view, opamp, net, at_least(first.value * factor, "E24"),
+    ohms = first.value
+    assert ohms is not None  # _suggest always gives the resistor's value
+    return [_suggest(view, opamp, net, at_least(ohms * factor, "E24"),
                      f"{factor}× the smallest value that fits, so it loads the source"
                      f" {factor}× less")[0]
-            for factor in (10, 100) if first.value * factor <= 1e9]
+            for factor in (10, 100) if ohms * factor <= 1e9]
 
 
 def _suggest(view, opamp, net: str, chosen: float | None = None, why: str | None = None

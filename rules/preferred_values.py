@@ -7,7 +7,7 @@ import math
 
 from checker.analysis.figures import signed_gain
 from checker.analysis.updates import source_gain_with_each
-from checker.changes import SetTolerance, SetValue
+from checker.changes import Change, SetTolerance, SetValue
 from checker.engine import rule
 from checker.findings import Suggestion
 from checker.limits import within
@@ -119,9 +119,10 @@ def _use(view, passive, value: float, unit: str, inputs, tolerance) -> Suggestio
     text = f"use {part} for {passive.ref}"
     if passive.kind == "resistor" and set(passive.nets) & inputs:
         before, after = _gains(view, passive.ref, value)
-        if before is not None and abs(after - before) > 1e-6 * abs(before):
+        if before is not None and after is not None and \
+                abs(after - before) > 1e-6 * abs(before):
             text += f": the solved gain is then {after:.4g} (now {before:.4g})"
-    changes = (SetValue(passive.ref, value),)
+    changes: tuple[Change, ...] = (SetValue(passive.ref, value),)
     if tolerance:
         changes += (SetTolerance((passive.ref,), tolerance),)
     return Suggestion(text, value=value, unit=unit, element=passive.ref, changes=changes)

@@ -1,4 +1,4 @@
-"""The project's own habits hold: the pinned linter passes on the whole tree."""
+"""The project's own habits hold: the pinned linter and type checker pass on the whole tree."""
 
 import os
 import shutil
@@ -21,6 +21,12 @@ def _tool(name: str) -> str:
 def test_ruff_is_clean_on_the_tree():
     result = subprocess.run([_tool("ruff"), "check", "--no-cache", "."], cwd=ROOT,
                             capture_output=True, text=True)
+    assert result.returncode == 0, result.stdout + result.stderr
+
+
+def test_mypy_is_clean():
+    # pyproject.toml's [tool.mypy] names the files (checker, rules) and the settings
+    result = subprocess.run([_tool("mypy")], cwd=ROOT, capture_output=True, text=True)
     assert result.returncode == 0, result.stdout + result.stderr
 
 

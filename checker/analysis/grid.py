@@ -28,7 +28,7 @@ def frequency_grid(stage: Stage, points: int) -> np.ndarray:
         for value in (opamp.part.gbw_hz, opamp.part.second_pole_hz):
             if value:
                 high = max(high, 30 * value)
-    extra = []
+    extra: list[float] = []
     for source in stage.sources:
         extra.extend(f for f in (source.band_low_hz, source.band_high_hz,
                                  band_centre(source)) if f and f > 0)
@@ -134,7 +134,7 @@ def bandwidth_edges(frequencies: np.ndarray, gain: np.ndarray, at: int,
     solved = iter(np.split(np.maximum(np.abs(gain_at(np.concatenate(locals_))), tiny),
                            len(locals_))) if gain_at is not None and locals_ else None
     local_grids = iter(locals_)
-    edges = []
+    edges: list[float | None] = []
     for (freqs, values), i in zip(sides, brackets):
         if i is None:
             edges.append(None)

@@ -57,8 +57,8 @@ def assemble(circuit: Circuit, tie_nodes: tuple[int, ...] = ()) -> Matrices:
 
     for item in circuit.conductances:
         stamp(G, item.a, item.b, item.siemens)
-    for item in circuit.capacitances:
-        stamp(C, item.a, item.b, item.farads)
+    for capacitance in circuit.capacitances:
+        stamp(C, capacitance.a, capacitance.b, capacitance.farads)
     for node in tie_nodes:
         stamp(G, node, 0, GMIN_SIEMENS)
     for k, branch in enumerate(circuit.branches):
@@ -167,8 +167,8 @@ def unreferenced_nodes(circuit: Circuit, at_dc: bool) -> list[int]:
     for branch in circuit.branches:
         sets.union(branch.a, branch.b)
     if not at_dc:
-        for item in circuit.capacitances:
-            sets.union(item.a, item.b)
+        for capacitance in circuit.capacitances:
+            sets.union(capacitance.a, capacitance.b)
     ground = sets.find(0)
     return [node for node in range(1, circuit.node_count) if sets.find(node) != ground]
 

@@ -82,8 +82,8 @@ class Card:
 class TwoTerminal(Card):
     """``R``, ``C`` or ``L``: two nodes, a value, then extras and parameters."""
 
-    nodes: tuple[Word, Word] = ()
-    value: Word | None = None
+    nodes: tuple[Word, Word]  # no defaults: the reader refuses a card without both
+    value: Word  # (given after the nodes, or as R=, C=, L= or value=)
     extras: tuple[Word, ...] = ()  # bare words after the value
     parameters: tuple[Parameter, ...] = ()
 
@@ -92,7 +92,7 @@ class TwoTerminal(Card):
 class SourceCard(Card):
     """``V`` or ``I``: two nodes, then an optional DC value, AC part and function."""
 
-    nodes: tuple[Word, Word] = ()
+    nodes: tuple[Word, Word]  # no default: the reader refuses a card without both
     dc: Word | None = None
     ac: tuple[Word, ...] = ()  # magnitude [phase]
     function: Word | None = None  # SIN, PULSE, ...
@@ -104,8 +104,8 @@ class SourceCard(Card):
 class Instance(Card):
     """``X``: a subcircuit instance: nodes in order, the subcircuit's name, parameters."""
 
-    nodes: tuple[Word, ...] = ()
-    subcircuit: Word | None = None
+    nodes: tuple[Word, ...]  # no defaults: the reader sets both
+    subcircuit: Word
     parameters: tuple[Parameter, ...] = ()
 
 

@@ -27,6 +27,14 @@ class PatchError(Exception):
     """The text does not hold what the positions say (the file changed underfoot)."""
 
 
+def _match_at(pattern: re.Pattern[str], text: str, offset: int) -> re.Match[str]:
+    """The atom, string or key at ``offset``; PatchError when none starts there."""
+    match = pattern.match(text, offset)
+    if match is None:
+        raise PatchError(f"no atom or key at offset {offset}")
+    return match
+
+
 @dataclass(frozen=True)
 class Edit:
     start: int
@@ -62,12 +70,12 @@ class Patcher:
         start = self.offset(path)
         if self.syntax == "sexp":
             if self.text[start] == "(":
-                keyword = _SEXP_ATOM.match(self.text, start + 1)
+                keyword = _match_at(_SEXP_ATOM, self.text, start + 1)
                 start = self._skip_space(keyword.end())
             match = _SEXP_ATOM.match(self.text, start)
         else:
             if isinstance(path[-1], str):  # an object key: its value follows the colon
-                key = _JSON_VALUE.match(self.text, start)
+                key = _match_at(_JSON_VALUE, self.text, start)
                 start = self._skip_space(key.end())
                 if self.text[start] != ":":
                     raise PatchError(f"expected ':' after the key at offset {start}")
@@ -107,8 +115,8 @@ class Patcher:
         while offset < len(self.text):
             char = self.text[offset]
             if char == '"':
-                match = _SEXP_ATOM.match(self.text, offset) if self.syntax == "sexp" else \
-                    _JSON_VALUE.match(self.text, offset)
+                match = _match_at(_SEXP_ATOM if self.syntax == "sexp" else _JSON_VALUE,
+                                  self.text, offset)
                 offset = match.end()
                 continue
             if char == ";" and self.syntax == "sexp":
@@ -126,7 +134,7 @@ class Patcher:
 
     def _json_container_start(self, path: Path) -> tuple[int, str]:
         start = self.offset(path)
-        key = _JSON_VALUE.match(self.text, start)
+        key = _match_at(_JSON_VALUE, self.text, start)
         start = self._skip_space(self._skip_space(key.end()) + 1)
         return start, self.text[start]
 
@@ -188,6 +196,7 @@ class Patcher:
             self.edits.append(Edit(at, at, f"{newline}{indent}{form_text}"))
             return
         end = self.container_end(after) + 1
+        assert json_item is not None  # a JSON file's caller gives the item's JSON form
         self.edits.append(Edit(end, end, ",\n" + self._json_block(json_item, indent)))
 
     def add_list(self, after_key: Path, key: str, json_item: dict) -> None:

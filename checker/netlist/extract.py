@@ -235,6 +235,7 @@ class _Board:
             elif isinstance(card, Instance):
                 self.instance(card)
             else:
+                assert isinstance(card, OtherCard)  # the reader makes only these four kinds
                 self.other(card)
         self.resolve_rails(pending)
         for net, (name, volts, origin) in self.scope.rails.items():
@@ -328,9 +329,10 @@ class _Board:
         if kind == "current":
             tree["kind"] = "current"
         function = card.function.key if card.function else None
-        arguments = [self.number(w, f"{card.function.text} of {name}")
-                     for w in card.arguments] if card.function else []
-        if None in arguments:
+        numbers = [self.number(w, f"{card.function.text} of {name}")
+                   for w in card.arguments] if card.function else []
+        arguments = [n for n in numbers if n is not None]
+        if len(arguments) != len(numbers):
             return []
         if function == "sin" and len(arguments) >= 2:
             tree["amplitude"] = abs(arguments[1])
@@ -339,7 +341,7 @@ class _Board:
                 tree["band"] = [arguments[2], arguments[2]]
         elif function == "pulse" and len(arguments) >= 2:
             tree["range"] = sorted([sign * arguments[0], sign * arguments[1]])
-        elif function is not None:
+        elif card.function is not None:  # (function is its key)
             self.note(NOT_ANALYSED, card.function, f"not analysed: the {card.function.text}"
                       f" waveform of {name}; its range is taken as unknown", (net,), (name,))
         elif kind == "current" or card.dc is not None and not card.ac:
@@ -509,13 +511,13 @@ class _Board:
         owned: dict[int, list] = {n: [] for n in range(len(ordered))}
         orphans = []
         for item in islands.values():
-            members = item.readers or item.drivers
-            if not members:
+            touching = item.readers or item.drivers
+            if not touching:
                 if item.passives:
                     orphans.append(item)
                 continue
-            owned[stage_of_group[groups.find(next(iter(members)))]].append(item)
-        bridge_owner = {}
+            owned[stage_of_group[groups.find(next(iter(touching)))]].append(item)
+        bridge_owner: dict[int, list[_Passive]] = {}
         for j, passive in enumerate(bridges):
             if j in owner_of_bridge:
                 stage = stage_of_group[groups.find(owner_of_bridge[j])]
@@ -678,7 +680,7 @@ def extract(netlist: Netlist, netlist_map: NetlistMap | None) -> Extraction:
 
 
 def _no_opamp_problem(board: _Board) -> InputProblem:
-    called = {}
+    called: dict[str, Instance] = {}
     for card in board.netlist.cards:
         if isinstance(card, Instance):
             called.setdefault(card.subcircuit.text, card)
@@ -796,7 +798,7 @@ class _StageTrees:
         stage["opamps"] = []
         for opamp in opamps:
             path = at + ("opamps", len(stage["opamps"]))
-            item = {"ref": writer.ref(opamp.ref, opamp=True)}
+            item: dict[str, object] = {"ref": writer.ref(opamp.ref, opamp=True)}
             if opamp.model.part is not None:
                 item["part"] = opamp.model.part
             if opamp.model.params:

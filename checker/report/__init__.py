@@ -9,6 +9,7 @@ maps a format name to its module, imported on first use.
 from __future__ import annotations
 
 import importlib
+from typing import Protocol
 
 FORMATS = {
     "text": "checker.report.text",
@@ -28,6 +29,15 @@ def writes_folder(name: str, path: str | None) -> bool:
     """True when format ``name`` written to ``path`` is a folder rather than a file."""
     return name in FOLDER_FORMATS and path is not None and \
         not path.lower().endswith(FOLDER_FORMATS[name])
+
+
+class Receiver(Protocol):
+    """What a run hands results to: a format's Writer, or a wrapper around one (such as
+    checker.shown.ShownWriter)."""
+
+    def add(self, result) -> None: ...
+
+    def close(self) -> None: ...
 
 
 class Writer:

@@ -21,7 +21,7 @@ def severity_by_rule(findings: list[Finding]) -> list[tuple[str, int, int, int]]
             continue
         row = counts.setdefault(f.rule, [0, 0, 0])
         row[{Severity.ERROR: 0, Severity.WARNING: 1}.get(f.severity, 2)] += 1
-    return sorted(((rule, *row) for rule, row in counts.items()),
+    return sorted(((rule, row[0], row[1], row[2]) for rule, row in counts.items()),
                   key=lambda r: (-(r[1] + r[2] + r[3]), r[0]))
 
 
@@ -76,7 +76,7 @@ def folder_rollup(results: list[FileResult]) -> list[tuple[str, int, int, int, i
         row[1] += len(result.stages)
         row[2] += sum(f.severity == Severity.ERROR for f in active)
         row[3] += sum(f.severity == Severity.WARNING for f in active)
-    return [(name, *row) for name, row in sorted(rows.items())]
+    return [(name, row[0], row[1], row[2], row[3]) for name, row in sorted(rows.items())]
 
 
 def rollup_table(rows: list[tuple[str, int, int, int, int]], width: int = 80) -> list[str]:

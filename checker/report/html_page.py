@@ -179,6 +179,7 @@ class Writer(BaseWriter):
             section = self._stage(result, stage, anchor)
             if self.folder is None:
                 link = f"#{anchor}"
+                assert self.spool is not None  # one file: __init__ opened the spool
                 self.spool.write(self.env.get_template("_stage.html.j2").render(
                     stage=section, overview_link="#overview", **self._base()))
             else:
@@ -246,6 +247,7 @@ class Writer(BaseWriter):
             head, tail = self.env.get_template("one_file.html.j2").render(
                 overview=overview, **self._base()).split("<!--stages-->", 1)
             self.out.write(head)
+            assert self.spool is not None  # one file: __init__ opened the spool
             self.spool.seek(0)
             shutil.copyfileobj(self.spool, self.out)
             self.spool.close()

@@ -18,6 +18,7 @@ import math
 import re
 from contextlib import contextmanager
 from io import StringIO
+from typing import TYPE_CHECKING, Any
 
 import matplotlib
 import numpy as np
@@ -34,6 +35,9 @@ from checker.records import Plot, StageSheet
 from checker.report import stage_views as views
 from checker.units import format_si
 
+if TYPE_CHECKING:
+    from matplotlib.typing import RcKeyType
+
 # Our palette: four line colours a step of about 19 apart in CIE L* (24, 42, 62, 80), so
 # they stay apart in greyscale, and each drawn with its own line style too; shading is
 # light (L* above 85) so lines stay readable on it.
@@ -46,7 +50,7 @@ DANGER = "#f4d9d3"  # the right half-plane, the clipped region
 RAIL = "#d9d9d9"
 SHADES = (BAND, WINDOW, DANGER, RAIL)
 WIDTH_IN = 7.0
-RC = {
+RC: dict[RcKeyType, Any] = {
     "font.family": "DejaVu Sans",
     "font.size": 8.5,
     "axes.titlesize": 9.5,
@@ -129,7 +133,7 @@ def stage_sheet(stage, figures, findings, verdicts, settings_of, scope: str) -> 
 
 
 # -- canvases ------------------------------------------------------------------------------
-_CANVASES: dict[str, tuple] = {}
+_CANVASES: dict[tuple[str, float, int], tuple] = {}
 
 
 def _canvas(kind: str, height_in: float, rows: int = 1):
@@ -281,8 +285,8 @@ def draw_loop(view: views.LoopView, salt: str) -> Plot:
         curves = (curve,) + view.fixes
         low = min(float(c.frequencies_hz[0]) for c in curves)
         high = max(float(c.frequencies_hz[-1]) for c in curves)
-        top = bottom = None
-        phase_low = phase_high = None
+        top, bottom = -math.inf, math.inf  # curves holds at least the stage's own loop
+        phase_low, phase_high = math.inf, -math.inf
         for k, c in enumerate(curves):
             db = _db(c.loop_gain)
             degrees = unwrapped_phase_deg(c.loop_gain)
@@ -292,12 +296,10 @@ def draw_loop(view: views.LoopView, salt: str) -> Plot:
             style = dict(color=SERIES[k], linestyle=STYLES[k], linewidth=1.6 if k == 0 else 1.3)
             mag.plot(c.frequencies_hz, db, label=label, **style)
             phase.plot(c.frequencies_hz, degrees, **style)
-            top = max(top if top is not None else -math.inf, float(np.max(db)))
-            bottom = min(bottom if bottom is not None else math.inf, float(np.min(db)))
-            phase_low = min(phase_low if phase_low is not None else math.inf,
-                            float(np.min(degrees)))
-            phase_high = max(phase_high if phase_high is not None else -math.inf,
-                             float(np.max(degrees)))
+            top = max(top, float(np.max(db)))
+            bottom = min(bottom, float(np.min(db)))
+            phase_low = min(phase_low, float(np.min(degrees)))
+            phase_high = max(phase_high, float(np.max(degrees)))
         top = max(top, 20.0)
         bottom = min(max(bottom, top - 200.0, -120.0), -40.0)
         mag.set_ylim(bottom - 5, top + 10)
@@ -454,7 +456,8 @@ def draw_range(view: views.RangeView, salt: str) -> Plot:
                          f" {format_si(r.clip_low, 'V')} to {format_si(r.clip_high, 'V')},"
                          f" rails {format_si(r.rail_low, 'V')} and"
                          f" {format_si(r.rail_high, 'V')}" + (", clips" if clipped else ""))
-            if view.required_headroom_v and r.clip_low is not None:
+            # node_range sets both clip ends or neither
+            if view.required_headroom_v and r.clip_low is not None and r.clip_high is not None:
                 for edge in (r.clip_low + view.required_headroom_v,
                              r.clip_high - view.required_headroom_v):
                     ax.plot([edge, edge], [y - 0.35, y + 0.35], color=LIMIT, linestyle="--",

@@ -117,7 +117,7 @@ def result_entry(finding: Finding, root: str, index: dict[str, int]) -> dict:
             "region": {"startLine": finding.line, "startColumn": finding.column}}}],
         "partialFingerprints": {"ampcheckFinding/v1": fingerprint(finding, uri)},
     }
-    properties = {}
+    properties: dict[str, object] = {}
     if finding.stage:
         properties["stage"] = finding.stage
     if finding.elements:

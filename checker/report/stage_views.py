@@ -164,6 +164,7 @@ def _stability_fixes(findings: list[Finding], refs: list[str]) -> dict[str, list
 
 def _fixed_loop(stage: Stage, figures, finding: Finding, ref: str) -> LoopCurve | None:
     suggestion = finding.suggestion
+    assert suggestion is not None  # _stability_fixes keeps only findings with changes
     try:
         copy = apply_changes(stage, suggestion.changes)
         solved = analyse(copy, figures.options)
@@ -279,7 +280,7 @@ def spread_views(stage: Stage, figures, findings: list[Finding], settings_of
     tolerance, and a differential pair's CMRR spread where it requires a rejection or
     the difference-balance rule reports one: the Monte Carlo boards of the same
     sampler (seed and count from the rule's settings), the worst case marked."""
-    views = []
+    views: list[SpreadView] = []
     require = stage.require
     closed = all(figures.loops[o.ref].negative_somewhere for o in stage.opamps)
     if not closed:
@@ -297,11 +298,11 @@ def spread_views(stage: Stage, figures, findings: list[Finding], settings_of
             else:
                 samples = np.array([spread.nominal])
             band = require.gain * require.gain_tolerance
-            limits = tuple(sorted((require.gain - band, require.gain + band)))
+            low, high = sorted((require.gain - band, require.gain + band))
             views.append(SpreadView(
                 "gain", signal.label, samples, spread.nominal, spread.worst.gain,
                 "worst corner" if spread.worst.exact else "Monte Carlo extreme",
-                limits, "V/V"))
+                (low, high), "V/V"))
     balance = any(f.rule == "difference-balance" and not f.details.get("unchecked")
                   for f in findings)
     if require.cmrr is not None or balance:

@@ -72,7 +72,7 @@ def parts_table(library: dict) -> Table:
 
 def parts_blocks(library: dict) -> Group:
     """One block per part (name, class, then heading: value pairs) for a narrow screen."""
-    blocks = []
+    blocks: list[Text | Padding] = []
     for name in sorted(library):
         part = library[name]
         pairs = Columns([Text.from_markup(f"[dim]{h}[/] {cell(part)}")
