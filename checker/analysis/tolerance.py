@@ -148,15 +148,16 @@ def _solver(base, B, a, b, rows, low_rank: bool):
         layers[layer].append(position)
     columns_array, signs_array = np.array(columns, dtype=np.int64), np.array(signs)
     stamps = []
-    for layer in layers:
-        chosen = np.array(layer, dtype=np.int64)
+    for members in layers:
+        chosen = np.array(members, dtype=np.int64)
         for sign in (1.0, -1.0):  # an add and a subtract: no multiply by the sign
             part = chosen[signs_array[chosen] == sign]
-            entries: np.ndarray | slice = stored[part]
+            touched = stored[part]
+            entries: np.ndarray | slice = touched
             # the first layer touches each touched entry once, stored first: slices
-            if entries.size and np.array_equal(entries, np.arange(entries[0],
-                                                                  entries[0] + entries.size)):
-                entries = slice(int(entries[0]), int(entries[0]) + entries.size)
+            if touched.size and np.array_equal(touched, np.arange(touched[0],
+                                                                  touched[0] + touched.size)):
+                entries = slice(int(touched[0]), int(touched[0]) + touched.size)
             if part.size:
                 stamps.append((entries, columns_array[part], sign))
     position = {int(unknown): at for at, unknown in enumerate(solver.wanted_order)}
