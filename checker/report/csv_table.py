@@ -13,6 +13,7 @@ from __future__ import annotations
 import csv
 
 from checker.report import Writer as BaseWriter
+from checker.report.machine_units import machine_unit
 
 COLUMNS = ["record", "path", "line", "column", "severity", "rule", "stage", "elements",
            "message", "measured", "limit", "unit", "suggestion", "suggested_value",
@@ -36,13 +37,13 @@ class Writer(BaseWriter):
             self.rows.writerow([
                 "caution", c.path, c.line, c.column, "caution", c.caution, c.stage,
                 " ".join(c.elements), c.message, _number(c.measured), _number(c.limit),
-                c.unit or "", "", "", "", "", c.acknowledged or "", "", by_stage[c.stage]])
+                machine_unit(c.unit) or "", "", "", "", "", c.acknowledged or "", "", by_stage[c.stage]])
         for f in result.findings():
             s = f.suggestion
             self.rows.writerow([
                 "finding", f.path, f.line, f.column, f.severity.label, f.rule, f.stage or "",
                 " ".join(f.elements), f.message, _number(f.measured), _number(f.limit),
-                f.unit or "", s.text if s else "", _number(s.value) if s else "",
+                machine_unit(f.unit) or "", s.text if s else "", _number(s.value) if s else "",
                 s.check.summary() if s and s.check else "",
                 "yes" if s and s.withheld else "", f.waiver or "",
                 "yes" if f.baselined else "", by_stage.get(f.stage, "")])
@@ -52,5 +53,5 @@ class Writer(BaseWriter):
                 self.rows.writerow([
                     "requirement", result.path, v.line, v.column, v.status, v.requirement,
                     stage.name, " ".join(v.explained_by), f"{v.required}: {statement}",
-                    _number(v.measured), _number(v.limit), v.unit or "", "", "", "", "", "",
+                    _number(v.measured), _number(v.limit), machine_unit(v.unit) or "", "", "", "", "", "",
                     "", by_stage[stage.name]])

@@ -23,6 +23,7 @@ from checker.records import CAUTION_TAG, Caution
 from checker.report import Writer as BaseWriter
 from checker.report.context import ReportContext
 from checker.report.finite import finite_json
+from checker.report.machine_units import machine_unit
 from checker.records import FileResult
 
 LEVEL = {Severity.ERROR: "error", Severity.WARNING: "warning", Severity.INFO: "note"}
@@ -63,7 +64,8 @@ def caution_result(caution: Caution, root: str, index: dict[str, int]) -> dict:
         properties["elements"] = list(caution.elements)
     for key in ("measured", "limit", "unit", "acknowledged"):
         if getattr(caution, key) is not None:
-            properties[key] = getattr(caution, key)
+            value = getattr(caution, key)
+            properties[key] = machine_unit(value) if key == "unit" else value
     text = caution.message + (f" (Acknowledged: {caution.acknowledged}.)"
                               if caution.acknowledged is not None else "")
     return {
@@ -124,7 +126,8 @@ def result_entry(finding: Finding, root: str, index: dict[str, int]) -> dict:
         properties["elements"] = list(finding.elements)
     for key in ("measured", "limit", "unit"):
         if getattr(finding, key) is not None:
-            properties[key] = getattr(finding, key)
+            value = getattr(finding, key)
+            properties[key] = machine_unit(value) if key == "unit" else value
     if properties:
         item["properties"] = properties
     suppressions = []

@@ -1,0 +1,59 @@
+"""Machine outputs (JSON, CSV, SARIF): units, lists and the SARIF conventions."""
+
+import csv
+import io
+import json
+
+from checker.cli import main
+from checker.report.json_document import FORMAT_VERSION
+from checker.report.machine_units import machine_unit
+
+# samples/conductivity.stage: a required gain of -10 ±2 % with 1 % resistors; its
+# gain-tolerance finding reads "-9.705 at the worst corner ..., 2.95 % from the required
+# -10" (the project's own figure), so the machine value is the fraction 1 - 9.705/10.
+SAMPLE = "samples/conductivity.stage"
+WORST_ERROR = 1 - 9.705 / 10  # 0.0295
+
+
+def run(capsys, *args) -> str:
+    main(["check", *args, "--fail-on", "never"])
+    return capsys.readouterr().out
+
+
+def test_a_fraction_is_named_ratio_and_any_other_unit_is_kept():
+    assert machine_unit("%") == "ratio"
+    assert machine_unit("°") == "°"
+    assert machine_unit(None) is None
+
+
+def test_json_names_a_fraction_ratio_in_findings_suggestions_and_verdicts(capsys):
+    document = json.loads(run(capsys, SAMPLE, "--format", "json"))
+    assert document["version"] == FORMAT_VERSION == 4
+    stage = document["files"][0]["stages"][0]
+    finding = next(f for f in stage["findings"] if f["rule"] == "gain-tolerance")
+    assert abs(finding["measured"] - WORST_ERROR) < 1e-4
+    assert (finding["unit"], finding["limit"]) == ("ratio", 0.02)
+    assert (finding["suggestion"]["unit"], finding["suggestion"]["value"]) == ("ratio", 0.005)
+    verdict = next(v for v in stage["requirements"] if v["requirement"] == "gain-tolerance")
+    assert verdict["unit"] == "ratio"
+    assert "%" not in [f["unit"] for f in stage["findings"]]
+
+
+def test_csv_names_a_fraction_ratio(capsys):
+    rows = list(csv.DictReader(io.StringIO(run(capsys, SAMPLE, "--format", "csv"))))
+    tolerance = [r for r in rows if r["rule"] == "gain-tolerance"]
+    assert [r["record"] for r in tolerance] == ["finding", "requirement"]
+    assert {r["unit"] for r in tolerance} == {"ratio"}
+    assert abs(float(tolerance[0]["measured"]) - WORST_ERROR) < 1e-4
+
+
+def test_sarif_names_a_fraction_ratio(capsys):
+    document = json.loads(run(capsys, SAMPLE, "--format", "sarif"))
+    results = document["runs"][0]["results"]
+    result = next(r for r in results if r["ruleId"] == "gain-tolerance")
+    assert result["properties"]["unit"] == "ratio"
+    assert abs(result["properties"]["measured"] - WORST_ERROR) < 1e-4
+
+
+def test_the_human_text_keeps_the_percentage(capsys):
+    assert "measured 2.95 %, limit 2 %" in run(capsys, SAMPLE)
