@@ -57,3 +57,24 @@ def test_sarif_names_a_fraction_ratio(capsys):
 
 def test_the_human_text_keeps_the_percentage(capsys):
     assert "measured 2.95 %, limit 2 %" in run(capsys, SAMPLE)
+
+
+def test_csv_elements_split_back_into_the_json_lists(capsys):
+    # Designators and labels may hold spaces ("load out", "supply vcc"): "; " joins them.
+    document = json.loads(run(capsys, "samples/", "--format", "json"))
+    expected = sorted((f["path"], f["line"], f["column"], f["rule"], tuple(f["elements"]))
+                      for file in document["files"] for s in file["stages"]
+                      for f in s["findings"])
+    expected += sorted((c["path"], c["line"], c["column"], c["caution"], tuple(c["elements"]))
+                       for c in document["cautions"])
+    rows = list(csv.DictReader(io.StringIO(run(capsys, "samples/", "--format", "csv"))))
+
+    def split(cell: str) -> tuple:
+        return tuple(cell.split("; ")) if cell else ()
+
+    found = sorted((r["path"], int(r["line"]), int(r["column"]), r["rule"], split(r["elements"]))
+                   for r in rows if r["record"] == "finding")
+    found += sorted((r["path"], int(r["line"]), int(r["column"]), r["rule"],
+                     split(r["elements"])) for r in rows if r["record"] == "caution")
+    assert found == expected
+    assert ("U1", "load out") in [item[4] for item in found]  # logger-output.stage.json
