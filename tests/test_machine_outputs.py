@@ -3,6 +3,7 @@
 import csv
 import io
 import json
+from pathlib import Path
 
 from checker.cli import main
 from checker.report.json_document import FORMAT_VERSION
@@ -78,3 +79,32 @@ def test_csv_elements_split_back_into_the_json_lists(capsys):
                      split(r["elements"])) for r in rows if r["record"] == "caution")
     assert found == expected
     assert ("U1", "load out") in [item[4] for item in found]  # logger-output.stage.json
+
+
+def test_a_json_tolerance_given_as_a_fraction_is_hinted_as_its_percentage(tmp_path, capsys):
+    # 0.01 as a fraction is 1 % (and "0.01%" would be 0.0001): the hint must say "1%".
+    document = json.loads(Path("samples/logger-output.stage.json").read_text(encoding="utf-8"))
+    document["stages"][0]["resistors"][0]["tolerance"] = 0.01
+    stage = tmp_path / "fraction.stage.json"
+    text = json.dumps(document, indent=2)
+    stage.write_text(text, encoding="utf-8")
+    line = next(n for n, row in enumerate(text.splitlines(), 1) if '"tolerance": 0.01' in row)
+    column = text.splitlines()[line - 1].index('"tolerance"') + 1  # the key's position
+    out = run(capsys, str(stage), "--format", "compact")
+    message = ('a tolerance needs a percent sign: write "1%" for a fraction of 0.01'
+               ' ("0.01%" is 0.0001)')
+    assert (f"fraction.stage.json:{line}:{column}: error input-invalid: tolerance of resistor"
+            f" R1: {message}") in out
+    assert 'write "0.01%"' not in out
+
+
+def test_a_tolerance_hint_for_whole_numbers_and_sexp_text():
+    import pytest
+
+    from checker.units import UnitError, parse_value
+
+    for value, hint in ((5, 'write "5%"'), ("0.5", "write 50% for a fraction of 0.5"),
+                        ("2", "write 2%"), (0.005, 'write "0.5%" for a fraction of 0.005')):
+        with pytest.raises(UnitError) as error:
+            parse_value(value, "percentage")
+        assert hint in str(error.value)
