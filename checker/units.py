@@ -130,7 +130,11 @@ def parse_value(value: object, kind: str) -> float:
         raise UnitError(f"expected {_a(kind)} value, got {value!r}")
     if isinstance(value, (int, float)):
         if kind == "percentage":
-            raise UnitError(_percent_hint(float(value), _short(value), quote='"'))
+            try:
+                number = float(value)
+            except OverflowError:  # an integer with hundreds of digits: no fraction
+                number = math.inf
+            raise UnitError(_percent_hint(number, _short(value), quote='"'))
         try:
             number = float(value)
         except OverflowError:  # an integer with hundreds of digits

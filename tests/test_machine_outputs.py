@@ -254,3 +254,13 @@ def house_divider(view):
     assert entry["properties"]["tags"] == ["design-review", "user-rule"]
     assert entry["help"]["markdown"].startswith("### What it checks\n\nNothing at all.")
     assert "`spread` = [1, 2]" in entry["help"]["markdown"]
+
+
+def test_a_huge_or_non_finite_tolerance_number_still_gets_a_clear_message():
+    import pytest
+
+    from checker.units import UnitError, parse_value
+
+    for value in (10 ** 400, float("nan"), float("inf")):
+        with pytest.raises(UnitError, match="a tolerance needs a percent sign"):
+            parse_value(value, "percentage")
