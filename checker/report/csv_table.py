@@ -6,6 +6,10 @@ the rule in `rule`) or ``requirement`` (its status, met / not-met / could-not-ch
 `severity`, its keyword in `rule`, what was measured in `message`). The last column,
 `cautions`, names the cautions of the row's stage on every row of it, so a sheet
 filtered or sorted by anything else still shows them.
+
+A cell holding a list (`elements`, `cautions`) joins its items with ``"; "``: a
+designator or a source label may contain spaces (``supply vcc``, ``bridge sensor``), so
+a space could not split it back.
 """
 
 from __future__ import annotations
@@ -13,10 +17,18 @@ from __future__ import annotations
 import csv
 
 from checker.report import Writer as BaseWriter
+from checker.report.machine_units import machine_unit
 
 COLUMNS = ["record", "path", "line", "column", "severity", "rule", "stage", "elements",
            "message", "measured", "limit", "unit", "suggestion", "suggested_value",
            "fix_check", "fix_withheld", "waived", "baselined", "cautions"]
+
+
+LIST_SEPARATOR = "; "
+
+
+def _joined(items) -> str:
+    return LIST_SEPARATOR.join(items)
 
 
 def _number(value) -> str:
@@ -30,19 +42,19 @@ class Writer(BaseWriter):
         self.rows.writerow(COLUMNS)
 
     def add(self, result) -> None:
-        by_stage = {stage.name: " ".join(sorted({c.caution for c in stage.cautions}))
+        by_stage = {stage.name: _joined(sorted({c.caution for c in stage.cautions}))
                     for stage in result.stages}
         for c in result.cautions():
             self.rows.writerow([
                 "caution", c.path, c.line, c.column, "caution", c.caution, c.stage,
-                " ".join(c.elements), c.message, _number(c.measured), _number(c.limit),
-                c.unit or "", "", "", "", "", c.acknowledged or "", "", by_stage[c.stage]])
+                _joined(c.elements), c.message, _number(c.measured), _number(c.limit),
+                machine_unit(c.unit) or "", "", "", "", "", c.acknowledged or "", "", by_stage[c.stage]])
         for f in result.findings():
             s = f.suggestion
             self.rows.writerow([
                 "finding", f.path, f.line, f.column, f.severity.label, f.rule, f.stage or "",
-                " ".join(f.elements), f.message, _number(f.measured), _number(f.limit),
-                f.unit or "", s.text if s else "", _number(s.value) if s else "",
+                _joined(f.elements), f.message, _number(f.measured), _number(f.limit),
+                machine_unit(f.unit) or "", s.text if s else "", _number(s.value) if s else "",
                 s.check.summary() if s and s.check else "",
                 "yes" if s and s.withheld else "", f.waiver or "",
                 "yes" if f.baselined else "", by_stage.get(f.stage, "")])
@@ -51,6 +63,6 @@ class Writer(BaseWriter):
                 statement = v.statement + (f"; {v.reason}" if v.reason else "")
                 self.rows.writerow([
                     "requirement", result.path, v.line, v.column, v.status, v.requirement,
-                    stage.name, " ".join(v.explained_by), f"{v.required}: {statement}",
-                    _number(v.measured), _number(v.limit), v.unit or "", "", "", "", "", "",
+                    stage.name, _joined(v.explained_by), f"{v.required}: {statement}",
+                    _number(v.measured), _number(v.limit), machine_unit(v.unit) or "", "", "", "", "", "",
                     "", by_stage[stage.name]])

@@ -1,4 +1,7 @@
-"""The versioned JSON report document (format "ampcheck-report", version 3).
+"""The versioned JSON report document (format "ampcheck-report", version 4).
+
+A fraction (a tolerance, a gain error) is named with the unit "ratio" beside its
+value, never "%" (checker/report/machine_units.py).
 
 Numbers are SI floats, null where a figure does not apply; findings sorted by path,
 line, column, severity, rule. Safety cautions sit beside the findings in each stage and,
@@ -15,10 +18,11 @@ from checker.records import BASES, STATUSES, Caution, Verdict
 from checker.report.context import ReportContext
 from checker.report import Writer as BaseWriter
 from checker.report.finite import finite_json
+from checker.report.machine_units import machine_unit
 from checker.records import FileResult
 
 FORMAT_NAME = "ampcheck-report"
-FORMAT_VERSION = 3
+FORMAT_VERSION = 4
 
 
 def change_dict(change) -> dict:
@@ -48,22 +52,22 @@ def finding_dict(finding: Finding) -> dict:
     suggestion = None
     if finding.suggestion is not None:
         s = finding.suggestion
-        suggestion = {"text": s.text, "value": s.value, "unit": s.unit, "element": s.element,
-                      "changes": [change_dict(c) for c in s.changes],
+        suggestion = {"text": s.text, "value": s.value, "unit": machine_unit(s.unit),
+                      "element": s.element, "changes": [change_dict(c) for c in s.changes],
                       "check": check_dict(s.check), "withheld": s.withheld}
     return {"rule": finding.rule, "severity": finding.severity.label,
             "message": finding.message, "stage": finding.stage,
             "elements": list(finding.elements), "path": finding.path, "line": finding.line,
             "column": finding.column, "measured": finding.measured, "limit": finding.limit,
-            "unit": finding.unit, "suggestion": suggestion, "waived": finding.waiver,
-            "baselined": finding.baselined}
+            "unit": machine_unit(finding.unit), "suggestion": suggestion,
+            "waived": finding.waiver, "baselined": finding.baselined}
 
 
 def verdict_dict(verdict: Verdict) -> dict:
     return {"requirement": verdict.requirement, "status": verdict.status,
             "required": verdict.required, "statement": verdict.statement,
             "reason": verdict.reason, "measured": verdict.measured, "limit": verdict.limit,
-            "unit": verdict.unit, "line": verdict.line, "column": verdict.column,
+            "unit": machine_unit(verdict.unit), "line": verdict.line, "column": verdict.column,
             "explained_by": list(verdict.explained_by)}
 
 
@@ -72,7 +76,7 @@ def caution_dict(caution: Caution) -> dict:
             "statement": caution.statement, "stage": caution.stage,
             "elements": list(caution.elements), "path": caution.path, "line": caution.line,
             "column": caution.column, "basis": caution.basis, "measured": caution.measured,
-            "limit": caution.limit, "unit": caution.unit,
+            "limit": caution.limit, "unit": machine_unit(caution.unit),
             "acknowledged": caution.acknowledged}
 
 
@@ -130,6 +134,7 @@ class Writer(BaseWriter):
 
 
 _NUMBER = {"type": ["number", "null"]}
+_UNIT = {"type": ["string", "null"], "not": {"const": "%"}}  # a fraction is "ratio"
 _FINDING = {
     "type": "object",
     "required": ["rule", "severity", "message", "stage", "elements", "path", "line", "column",
@@ -146,7 +151,7 @@ _FINDING = {
         "column": {"type": "integer", "minimum": 1},
         "measured": _NUMBER,
         "limit": _NUMBER,
-        "unit": {"type": ["string", "null"]},
+        "unit": _UNIT,
         "waived": {"type": ["string", "null"]},
         "baselined": {"type": "boolean"},
         "suggestion": {"oneOf": [{"type": "null"}, {
@@ -154,7 +159,7 @@ _FINDING = {
             "required": ["text", "value", "unit", "element", "changes", "check", "withheld"],
             "additionalProperties": False,
             "properties": {"text": {"type": "string"}, "value": _NUMBER,
-                           "unit": {"type": ["string", "null"]},
+                           "unit": _UNIT,
                            "element": {"type": ["string", "null"]},
                            "changes": {"type": "array", "items": {
                                "type": "object", "required": ["change"],
@@ -191,7 +196,7 @@ _VERDICT = {
         "reason": {"type": ["string", "null"]},
         "measured": _NUMBER,
         "limit": _NUMBER,
-        "unit": {"type": ["string", "null"]},
+        "unit": _UNIT,
         "line": {"type": "integer", "minimum": 1},
         "column": {"type": "integer", "minimum": 1},
         "explained_by": {"type": "array", "items": {"type": "string"}},
@@ -214,13 +219,13 @@ _CAUTION = {
         "basis": {"enum": list(BASES)},
         "measured": _NUMBER,
         "limit": _NUMBER,
-        "unit": {"type": ["string", "null"]},
+        "unit": _UNIT,
         "acknowledged": {"type": ["string", "null"]},
     },
 }
 REPORT_SCHEMA = {
     "$schema": "https://json-schema.org/draft/2020-12/schema",
-    "title": "ampcheck report, version 3",
+    "title": f"ampcheck report, version {FORMAT_VERSION}",
     "type": "object",
     "required": ["format", "version", "tool", "summary", "files", "cautions"],
     "additionalProperties": False,

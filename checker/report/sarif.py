@@ -1,9 +1,16 @@
 """SARIF 2.1.0 output (OASIS Static Analysis Results Interchange Format).
 
-Rule entries carry each rule's documentation; results carry level, message, a physical
-location with a repository-relative URI and start line, a stable partial fingerprint
-(file, stage, elements, rule: no line numbers), and suppressions for waived and
-baselined findings. Safety cautions are results too, at level warning, tagged
+Rule entries carry each rule's documentation: ``help.text`` and ``help.markdown`` built
+from its docstring sections and example stages (checker/rule_help.py; an engine
+finding's from its catalogue entry), and ``properties.tags``, ``design-review`` and the
+area it checks (checker/rule_tags.py). No ``security-severity`` and no ``security``
+tag: these are design findings, not vulnerabilities. Results carry level, message, a
+physical location with a repository-relative URI and start line, and a stable
+fingerprint (file, stage, elements, rule: no line numbers) under our own
+``ampcheckFinding/v1`` and under ``primaryLocationLineHash`` too, since code scanning
+computes a hash of the line's text under that key whenever it is absent, and editing a
+value on the reported line would then reopen the alert. Waived and baselined findings
+carry suppressions. Safety cautions are results too, at level warning, tagged
 ``ampcheck-safety-caution`` in ``properties.tags`` (as are their rule entries); an
 acknowledged caution carries its reason in ``properties.acknowledged`` and no
 suppression, so viewers that hide suppressed results still show it. No timestamps, so
@@ -17,13 +24,16 @@ import json
 import os
 
 from checker.cautions import KINDS as CAUTION_KINDS
-from checker.catalogue import ENGINE_RULES, ENGINE_SEVERITIES
+from checker.catalogue import ENGINE_CATALOGUE, ENGINE_RULES
 from checker.findings import Finding, Severity
 from checker.records import CAUTION_TAG, Caution
 from checker.report import Writer as BaseWriter
 from checker.report.context import ReportContext
 from checker.report.finite import finite_json
+from checker.report.machine_units import machine_unit
 from checker.records import FileResult
+from checker.rule_help import help_markdown, help_text
+from checker.rule_tags import rule_tags
 
 LEVEL = {Severity.ERROR: "error", Severity.WARNING: "warning", Severity.INFO: "note"}
 SCHEMA_URI = "https://docs.oasis-open.org/sarif/sarif/v2.1.0/errata01/os/schemas/sarif-schema-2.1.0.json"
@@ -47,10 +57,24 @@ def fingerprint(finding: Finding | Caution, uri: str) -> str:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()[:32]
 
 
+FINGERPRINT_KEY = "ampcheckFinding/v1"
+LINE_HASH_KEY = "primaryLocationLineHash"  # code scanning's own key: ours stands in for it
+
+
+def partial_fingerprints(finding: Finding | Caution, uri: str) -> dict[str, str]:
+    """Our stable fingerprint under our key and under code scanning's line-hash key."""
+    value = fingerprint(finding, uri)
+    return {FINGERPRINT_KEY: value, LINE_HASH_KEY: value}
+
+
+def _help(item) -> dict:
+    return {"text": help_text(item), "markdown": help_markdown(item)}
+
+
 def _caution_entry(caution_id: str) -> dict:
     kind = CAUTION_KINDS[caution_id]
     return {"id": kind.id, "name": kind.id, "shortDescription": {"text": kind.summary},
-            "fullDescription": {"text": kind.summary}, "help": {"text": kind.doc},
+            "fullDescription": {"text": kind.summary}, "help": _help(kind),
             "defaultConfiguration": {"level": "warning"},
             "properties": {"tags": [CAUTION_TAG]}}
 
@@ -63,7 +87,8 @@ def caution_result(caution: Caution, root: str, index: dict[str, int]) -> dict:
         properties["elements"] = list(caution.elements)
     for key in ("measured", "limit", "unit", "acknowledged"):
         if getattr(caution, key) is not None:
-            properties[key] = getattr(caution, key)
+            value = getattr(caution, key)
+            properties[key] = machine_unit(value) if key == "unit" else value
     text = caution.message + (f" (Acknowledged: {caution.acknowledged}.)"
                               if caution.acknowledged is not None else "")
     return {
@@ -72,7 +97,7 @@ def caution_result(caution: Caution, root: str, index: dict[str, int]) -> dict:
         "locations": [{"physicalLocation": {
             "artifactLocation": {"uri": uri, "uriBaseId": "SRCROOT"},
             "region": {"startLine": caution.line, "startColumn": caution.column}}}],
-        "partialFingerprints": {"ampcheckFinding/v1": fingerprint(caution, uri)},
+        "partialFingerprints": partial_fingerprints(caution, uri),
         "properties": properties,
     }
 
@@ -82,20 +107,19 @@ def _rule_entry(rule_id: str, context: ReportContext) -> dict:
         return _caution_entry(rule_id)
     rule = context.rules.get(rule_id)
     if rule is None:
-        summary = ENGINE_RULES.get(rule_id, rule_id)
-        return {"id": rule_id, "shortDescription": {"text": summary},
-                "fullDescription": {"text": summary},
-                "defaultConfiguration": {"level": LEVEL[ENGINE_SEVERITIES.get(
-                    rule_id, Severity.ERROR)]}}
+        item = ENGINE_CATALOGUE[rule_id]  # the rule table holds no other ids
+        return {"id": item.id, "name": item.id, "shortDescription": {"text": item.summary},
+                "fullDescription": {"text": " ".join(item.means.split())},
+                "help": _help(item),
+                "defaultConfiguration": {"level": LEVEL[item.severity]},
+                "properties": {"tags": rule_tags(item.id)}}
     sections = rule.sections()
-    markdown = "\n\n".join(f"**{heading}**\n\n{' '.join(text.split())}"
-                           for heading, text in sections.items())
     return {"id": rule.id, "name": rule.id,
             "shortDescription": {"text": rule.summary},
             "fullDescription": {"text": " ".join(sections.get("What it checks", "").split())},
-            "help": {"text": rule.doc, "markdown": markdown},
+            "help": _help(rule),
             "defaultConfiguration": {"level": LEVEL[rule.severity]},
-            "properties": {"settings": rule.settings}}
+            "properties": {"tags": rule_tags(rule.id), "settings": rule.settings}}
 
 
 def result_entry(finding: Finding, root: str, index: dict[str, int]) -> dict:
@@ -115,7 +139,7 @@ def result_entry(finding: Finding, root: str, index: dict[str, int]) -> dict:
         "locations": [{"physicalLocation": {
             "artifactLocation": {"uri": uri, "uriBaseId": "SRCROOT"},
             "region": {"startLine": finding.line, "startColumn": finding.column}}}],
-        "partialFingerprints": {"ampcheckFinding/v1": fingerprint(finding, uri)},
+        "partialFingerprints": partial_fingerprints(finding, uri),
     }
     properties: dict[str, object] = {}
     if finding.stage:
@@ -124,7 +148,8 @@ def result_entry(finding: Finding, root: str, index: dict[str, int]) -> dict:
         properties["elements"] = list(finding.elements)
     for key in ("measured", "limit", "unit"):
         if getattr(finding, key) is not None:
-            properties[key] = getattr(finding, key)
+            value = getattr(finding, key)
+            properties[key] = machine_unit(value) if key == "unit" else value
     if properties:
         item["properties"] = properties
     suppressions = []
