@@ -82,7 +82,7 @@ def _caution_entry(caution_id: str) -> dict:
 def caution_result(caution: Caution, root: str, index: dict[str, int]) -> dict:
     """A caution as a SARIF result, tagged as one; never suppressed."""
     uri = os.path.relpath(os.path.abspath(caution.path), root).replace(os.sep, "/")
-    properties = {"tags": [CAUTION_TAG], "stage": caution.stage, "basis": caution.basis}
+    properties: dict[str, object] = {"tags": [CAUTION_TAG], "stage": caution.stage, "basis": caution.basis}
     if caution.elements:
         properties["elements"] = list(caution.elements)
     for key in ("measured", "limit", "unit", "acknowledged"):
