@@ -20,7 +20,8 @@ from checker.analysis.mna import SingularCircuit
 from checker.analysis.noise import noise_band, output_noise
 from checker.analysis.poles import stage_poles
 from checker.analysis.signal import SignalFigures, stage_signals
-from checker.analysis.spread import GainSpread, SpreadOptions, resistor_tolerances
+from checker.analysis.spread import (GainSpread, SpreadOptions, method_note, method_text,
+                                     resistor_tolerances)
 from checker.limits import reaches, within
 from checker.model import Stage
 from checker.records import MET, NOT_MET, UNCHECKED, Verdict
@@ -229,9 +230,10 @@ def _gain_tolerance(c: _Context) -> Verdict:
         if worst is None or spread.worst.error > worst.worst.error:
             worst = spread
     assert worst is not None  # c.signals is not empty (checked above)
-    how = "at the worst corner" if worst.worst.exact else "at the Monte Carlo extremes"
+    how = method_text(worst.worst, worst.options.samples)
     statement = (f"gain from {worst.signal.label} {worst.worst.gain:.4g} {how} of the"
-                 f" resistors' tolerances (nominal {worst.nominal:.4g})")
+                 f" resistors' tolerances (nominal {worst.nominal:.4g})"
+                 + method_note(worst.worst))
     met = within(worst.worst.error, r.gain_tolerance)
     reason = None if met else (f"{format_si(worst.worst.error, '%', 4)} from the required"
                                f" {r.gain:.4g}")
@@ -481,9 +483,10 @@ def _cmrr(c: _Context) -> Verdict:
         return c.verdict("cmrr", NOT_MET, text, "no closed loop", reason="; ".join(blocked))
     _solver, _refs, _tolerances, _assumed, worst = rejection_spread(
         c.figures, pair, c.spread_options("cmrr"))
-    how = "at the worst corner" if worst.exact else "at the worst Monte Carlo board"
+    how = method_text(worst, c.spread_options("cmrr").samples)
     shown = "infinite" if math.isinf(worst.cmrr) else f"{_db(worst.cmrr):.1f} dB"
-    statement = f"common-mode rejection of {pair.label} {shown} {how} of the resistors"
+    statement = (f"common-mode rejection of {pair.label} {shown} {how} of the resistors"
+                 + method_note(worst))
     met = reaches(worst.cmrr, required)
     return c.verdict("cmrr", MET if met else NOT_MET, text, statement,
                      measured=_db(worst.cmrr), limit=_db(required), unit="dB",

@@ -5,7 +5,8 @@ from __future__ import annotations
 import math
 
 from checker.analysis.signal import stage_signals
-from checker.analysis.spread import SpreadOptions
+from checker.analysis.spread import (MONTE_CARLO, SpreadOptions, method_note, method_text,
+                                     worst_case_record)
 from checker.analysis.topology import classify
 from checker.changes import SetTolerance
 from checker.engine import rule
@@ -34,8 +35,15 @@ def difference_balance(view):
         `cmrr` requirement (error) or, without one, `min_cmrr_db` (warning). A Monte
         Carlo run (`samples` boards, uniform, seeded with `seed`) estimates the share
         of boards that do. Resistors without a tolerance count at `default_tolerance`.
-        With more than `max_corner_resistors` resistors that matter, the Monte Carlo
-        extremes stand in for the corners. The transfers are read where the first
+        With more than `max_corner_resistors` resistors that matter, the corners are
+        not all solved: a first-order choice takes their place (the corner that the
+        signs of the ratio Acm/Ad's sensitivities to each resistor choose, checked at
+        that corner so that no single resistor's flip lowers the CMRR further, a few
+        rounds at most), and the worse of it and the worst Monte Carlo board is
+        reported; the message says it is a first-order choice, not full enumeration,
+        and whether the corner was verified. Near a balanced stage's null the
+        common-mode gain is small and its sensitivities can change sign across the
+        band: there first order can fall short of the true worst corner. The transfers are read where the first
         source's figures are (0 Hz for a source with no band or a band from 0 Hz, else
         its band centre), the same spread the `cmrr` requirement's verdict reads; the
         sources' own impedances are part of the transfers, so an unbalanced source
@@ -112,7 +120,8 @@ def difference_balance(view):
         if view.fixes_wanted else None  # for the reader; a re-check reads findings alone
     listed = ", ".join(f"{r} {format_si(tolerances[r], '%')}" for r in refs)
     how = ("at the worst corner" if worst.exact else
-           f"at the worst of {int(settings['samples'])} Monte Carlo boards")
+           f"at the worst of {int(settings['samples'])} Monte Carlo boards"
+           if worst.method == MONTE_CARLO else method_text(worst, int(settings["samples"])))
     gains = (f"differential gain {worst.differential:.4g}, common-mode gain"
              f" {worst.common:.3g}")
     nominal = ("infinite" if math.isinf(solver.nominal_cmrr)
@@ -122,7 +131,8 @@ def difference_balance(view):
                f" ({listed}; {gains}), below {against} {limit_db:.1f} dB; nominal"
                f" {nominal}"
                + (f"; {share * 100:.1f} % of {int(settings['samples'])} Monte Carlo boards"
-                  " (uniform) reach it" if share is not None else ""))
+                  " (uniform) reach it" if share is not None else "")
+               + method_note(worst))
     if assumed:
         message += (f"; {', '.join(assumed)} {'has' if len(assumed) == 1 else 'have'} no"
                     f" tolerance, {format_si(settings['default_tolerance'], '%')} assumed"
@@ -133,6 +143,8 @@ def difference_balance(view):
                                                               options),
                        cmrr_ratio=worst.cmrr, share_within=share,
                        exact_corners=worst.exact, assumed_tolerance=list(assumed),
+                       **({} if worst_case_record(worst) is None
+                          else {"worst_case": worst_case_record(worst)}),
                        **view.answers("cmrr"))
 
 

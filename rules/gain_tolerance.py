@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 from checker.analysis.signal import stage_signals
-from checker.analysis.spread import SpreadOptions
+from checker.analysis.spread import (MONTE_CARLO, SpreadOptions, method_note, method_text,
+                                     worst_case_record)
 from checker.changes import SetTolerance
 from checker.engine import rule
 from checker.findings import Suggestion
@@ -33,8 +34,16 @@ def gain_tolerance(view):
         boards, each resistor uniform within its tolerance, seeded with `seed`)
         estimates the share of boards inside the band. A resistor without a
         tolerance is taken at `default_tolerance` and the message says so. With more
-        than `max_corner_resistors` resistors that matter, the Monte Carlo extremes
-        stand in for the corners.
+        than `max_corner_resistors` resistors that matter, the corners are not all
+        solved: a first-order choice takes their place, the corner of the highest and
+        of the lowest gain as the signs of the gain's sensitivities to each resistor
+        choose it, checked at that corner (no single resistor's flip may make it
+        worse, else those are flipped, a few rounds at most), and the worse of it and
+        the Monte Carlo extremes is reported. The message says plainly that it is a
+        first-order choice, not full enumeration, and whether the corner was
+        verified; it is exact where the gain is monotonic in each resistor across
+        the band (the usual ratio of resistors), and can fall short where a
+        sensitivity is near zero and changes sign.
 
     Why it matters:
         A gain set by a resistor ratio is only as accurate as the resistors: in an
@@ -50,8 +59,11 @@ def gain_tolerance(view):
         the rule says so.
 
     Sources:
-        Worst-case analysis by corner enumeration and the uniform distribution for a
-        tolerance band: common practice. The rule of thumb that a ratio of two
+        Worst-case analysis by corner enumeration, the first-order (sensitivity)
+        choice of the worst corner and the uniform distribution for a tolerance
+        band: common practice. A network function is bilinear in any one element
+        (J. Vlach, K. Singhal, Computer Methods for Circuit Analysis and Design,
+        2nd ed.), so at 0 Hz monotonic in each resistor. The rule of thumb that a ratio of two
         resistors of tolerance t is good to about 2t: common practice.
 
     Passes:
@@ -94,14 +106,14 @@ def gain_tolerance(view):
     listed = ", ".join(f"{r} {_percent(tolerances[r])}" for r in refs)
     corner = ", ".join(f"{r} {'+' if s > 0 else '-'}{_percent(tolerances[r])}"
                        for r, s in zip(refs, worst.signs))
-    how = "at the worst corner" if worst.exact else \
-        f"at the extremes of {int(settings['samples'])} Monte Carlo boards"
+    how = method_text(worst, int(settings["samples"]))
     message = (f"the gain from {spread.signal.label} is {spread.nominal:.4g} nominal, but over"
                f" the resistors' tolerances ({listed}) it reaches {worst.gain:.4g} {how}"
-               + (f" ({corner})" if worst.exact else "") +
+               + (f" ({corner})" if worst.method != MONTE_CARLO else "") +
                f", {_percent(worst.error)} from the required {required:.4g}, beyond"
                f" ±{_percent(band)}"
-               + (f"; {_share_text(share, int(settings['samples']))}" if share is not None else ""))
+               + (f"; {_share_text(share, int(settings['samples']))}" if share is not None else "")
+               + method_note(worst))
     if spread.assumed:
         message += (f"; {', '.join(spread.assumed)}"
                     f" {'has' if len(spread.assumed) == 1 else 'have'} no"
@@ -112,8 +124,16 @@ def gain_tolerance(view):
                        suggestion=lambda: _suggest(spread, required, band, options),
                        nominal_gain=spread.nominal, worst_gain=worst.gain,
                        share_within=share, exact_corners=worst.exact,
+                       **_worst_case(worst),
                        assumed_tolerance=list(spread.assumed),
                        **view.answers("gain-tolerance"))
+
+
+def _worst_case(worst) -> dict:
+    """The ``worst_case`` detail (method, verified) where the corners were not all
+    enumerated; nothing where they were (the finding as before)."""
+    record = worst_case_record(worst)
+    return {} if record is None else {"worst_case": record}
 
 
 def _options(settings) -> SpreadOptions:

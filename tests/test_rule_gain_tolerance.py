@@ -119,12 +119,18 @@ def test_monte_carlo_share_within_the_band():
     assert finding.details["share_within"] == pytest.approx(0.75, abs=0.015)
 
 
-def test_too_many_resistors_fall_back_to_monte_carlo_extremes():
+def test_too_many_resistors_take_the_first_order_corner():
+    # beyond max_corner_resistors the corner is chosen by the sensitivities' signs: for
+    # a ratio R2/R1 that is R2 high, R1 low, the true worst corner (common practice)
     finding = only(inverting(), RULE, settings={"max_corner_resistors": 1})
     corner = 1.01 / 0.99 - 1
     assert finding.details["exact_corners"] is False
-    assert 0.95 * corner <= finding.measured <= corner
-    assert "Monte Carlo boards" in finding.message
+    assert finding.details["worst_case"] == {"method": "sensitivity", "verified": True}
+    assert finding.measured == pytest.approx(corner, abs=1e-5)  # finite loop gain
+    # the same corner as the full enumeration finds
+    assert finding.measured == pytest.approx(only(inverting(), RULE).measured, rel=1e-12)
+    assert "at the first-order worst corner (R1 -1 %, R2 +1 %)" in finding.message
+    assert "not full enumeration" in finding.message
 
 
 def test_stage_with_only_a_current_source_is_reported_unchecked():

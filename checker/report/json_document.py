@@ -60,7 +60,18 @@ def finding_dict(finding: Finding) -> dict:
             "elements": list(finding.elements), "path": finding.path, "line": finding.line,
             "column": finding.column, "measured": finding.measured, "limit": finding.limit,
             "unit": machine_unit(finding.unit), "suggestion": suggestion,
-            "waived": finding.waiver, "baselined": finding.baselined}
+            "waived": finding.waiver, "baselined": finding.baselined,
+            **_worst_case(finding)}
+
+
+def _worst_case(finding: Finding) -> dict:
+    """A tolerance finding's ``worst_case`` (its method and whether its corner was
+    verified) where the corners were not all enumerated; absent otherwise."""
+    record = finding.details.get("worst_case")
+    if not isinstance(record, dict):
+        return {}
+    return {"worst_case": {"method": str(record["method"]),
+                           "verified": bool(record["verified"])}}
 
 
 def verdict_dict(verdict: Verdict) -> dict:
@@ -154,6 +165,10 @@ _FINDING = {
         "unit": _UNIT,
         "waived": {"type": ["string", "null"]},
         "baselined": {"type": "boolean"},
+        "worst_case": {"type": "object", "required": ["method", "verified"],
+                       "additionalProperties": False,
+                       "properties": {"method": {"enum": ["sensitivity", "monte-carlo"]},
+                                      "verified": {"type": "boolean"}}},
         "suggestion": {"oneOf": [{"type": "null"}, {
             "type": "object",
             "required": ["text", "value", "unit", "element", "changes", "check", "withheld"],

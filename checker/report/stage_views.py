@@ -22,7 +22,7 @@ from checker.analysis.loop import Margins
 from checker.analysis.noise import noise_band, noise_density
 from checker.analysis.poles import stage_poles
 from checker.analysis.signal import stage_signals
-from checker.analysis.spread import SpreadOptions, rejection
+from checker.analysis.spread import ENUMERATION, SENSITIVITY, SpreadOptions, rejection
 from checker.changes import apply_changes
 from checker.findings import Finding
 from checker.model import Stage
@@ -106,7 +106,7 @@ class SpreadView:
     samples: np.ndarray  # the Monte Carlo boards' values (gain V/V, or CMRR dB)
     nominal: float
     worst: float
-    worst_how: str  # "worst corner" | "Monte Carlo extreme"
+    worst_how: str  # "worst corner" | "first-order worst corner" | "Monte Carlo extreme"
     limits: tuple[float | None, float | None]  # the allowed window (None: open side)
     unit: str  # "V/V" or "dB"
 
@@ -301,7 +301,7 @@ def spread_views(stage: Stage, figures, findings: list[Finding], settings_of
             low, high = sorted((require.gain - band, require.gain + band))
             views.append(SpreadView(
                 "gain", signal.label, samples, spread.nominal, spread.worst.gain,
-                "worst corner" if spread.worst.exact else "Monte Carlo extreme",
+                worst_how(spread.worst),
                 (low, high), "V/V"))
     balance = any(f.rule == "difference-balance" and not f.details.get("unchecked")
                   for f in findings)
@@ -321,9 +321,15 @@ def spread_views(stage: Stage, figures, findings: list[Finding], settings_of
             views.append(SpreadView(
                 "cmrr", pair.label, samples, float(_db(solver.nominal_cmrr)),
                 float(_db(worst.cmrr)),
-                "worst corner" if worst.exact else "Monte Carlo extreme",
+                worst_how(worst),
                 (float(_db(limit)), None), "dB"))
     return views
+
+
+def worst_how(worst) -> str:
+    """A spread's worst case named by how it was found (spread.py's methods)."""
+    return {ENUMERATION: "worst corner", SENSITIVITY: "first-order worst corner"}.get(
+        worst.method, "Monte Carlo extreme")
 
 
 def _db(ratio):

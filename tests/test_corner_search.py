@@ -1,0 +1,236 @@
+"""The first-order worst corner (corner_search.py, spread.py) against brute-force
+enumeration of every corner.
+
+The reference is the exhaustive one: every one of the 2^k corners solved through the
+same tolerance engine (itself checked against dense solves in test_tolerance_engine.py)
+and the worst taken. The first-order corner must equal it where the figure is
+monotonic in each resistor with one sign over the box, and must never be better than
+the Monte Carlo extreme it is reported against.
+"""
+
+from __future__ import annotations
+
+import json
+import random
+
+import numpy as np
+import pytest
+from rule_helpers import figures_of, only, stage_text
+
+from checker.analysis.signal import stage_signals
+from checker.analysis.spread import (ENUMERATION, MONTE_CARLO, SENSITIVITY, GainSpread,
+                                     SpreadOptions, rejection)
+from checker.analysis.tolerance import corner_values
+from checker.cli import main
+
+OPAMP = "(part precision-bipolar)"
+ENUMERATE = SpreadOptions(max_corner_resistors=20)
+FIRST_ORDER = SpreadOptions(max_corner_resistors=0)
+
+
+def ladder_stage(rungs: int = 6, tolerance: str = "1%", require: str = "(gain 4) "
+                 "(gain-tolerance 0.5%)") -> str:
+    """A non-inverting stage fed through a resistor ladder (``rungs`` series parts, each
+    rung's node shunted to ground) with a T network in its feedback: 2 rungs + 4
+    resistors, all of them varied, and a gain that moves both ways with them."""
+    parts, previous = [], "in"
+    values = [4.7, 10, 22, 6.8, 15, 33, 8.2, 12]
+    for k in range(rungs):
+        node = "pos" if k == rungs - 1 else f"l{k}"
+        parts.append(f"(resistor RS{k + 1} {previous} {node} {values[k % 8]}k"
+                     f" (tolerance {tolerance}))")
+        parts.append(f"(resistor RP{k + 1} {node} gnd {values[(k + 3) % 8] * 10:g}k"
+                     f" (tolerance {tolerance}))")
+        previous = node
+    parts += [f"(resistor RG fb gnd 10k (tolerance {tolerance}))",
+              f"(resistor RT1 fb t 10k (tolerance {tolerance}))",
+              f"(resistor RT2 t out 10k (tolerance {tolerance}))",
+              f"(resistor RT3 t gnd 47k (tolerance {tolerance}))"]
+    body = "\n  ".join(parts)
+    return stage_text(f"""
+(version 1)
+(stage ladder (ground gnd) (supply vcc 15V) (supply vee -15V)
+  (opamp U1 {OPAMP} (in+ pos) (in- fb) (out out) (v+ vcc) (v- vee))
+  {body}
+  (source in (range -0.1V 0.1V) (band 0Hz 10Hz))
+  (load out (resistance 10k))
+  (require {require}))
+""")
+
+
+def spread_of(text: str):
+    figures = figures_of(text)
+    signal = stage_signals(figures)[0]
+    solver = GainSpread(figures, signal.weights, signal.reference_hz)
+    refs = [p.ref for p in figures.stage.resistors()]
+    tolerances = {p.ref: p.tolerance for p in figures.stage.resistors()}
+    return solver, refs, tolerances
+
+
+def brute_force_gains(solver, refs, tolerances):
+    """Every corner's gain through the engine: (2^k,), corners in itertools order."""
+    return solver.gains(corner_values(refs, solver.nominal_values, tolerances))
+
+
+def test_ladder_first_order_corner_equals_the_enumerated_worst():
+    text = ladder_stage()
+    solver, refs, tolerances = spread_of(text)
+    assert len(refs) == 16
+    required = solver.nominal  # the spread about the nominal gain, both ways
+    gains = brute_force_gains(solver, refs, tolerances)  # 65,536 corners
+    errors = np.abs(gains / required - 1)
+    worst = solver.worst_gain(refs, tolerances, required, SpreadOptions())
+    assert worst.method == SENSITIVITY and worst.verified and not worst.exact
+    assert worst.error == pytest.approx(float(errors.max()), rel=1e-9)
+    at = int(np.argmax(errors))
+    signs = corner_values(refs, dict.fromkeys(refs, 1.0), dict.fromkeys(refs, 1.0))
+    assert tuple(float(np.sign(signs[r][at] - 1)) for r in refs) == worst.signs
+    # both extremes of the box are found: the highest and the lowest corner
+    high, low = solver.gain_corners(refs, tolerances)
+    assert high.objective == pytest.approx(float(gains.max()), rel=1e-12)
+    assert -low.objective == pytest.approx(float(gains.min()), rel=1e-12)
+    assert high.verified and low.verified
+
+
+def test_first_order_corner_is_at_least_as_bad_as_the_monte_carlo_extreme():
+    solver, refs, tolerances = spread_of(ladder_stage())
+    required = solver.nominal
+    options = SpreadOptions()
+    boards = solver.gains(solver.samples(refs, tolerances, options, False))
+    carlo = float(np.max(np.abs(boards / required - 1)))
+    worst = solver.worst_gain(refs, tolerances, required, options)
+    assert worst.error >= carlo
+    # 10,000 uniform boards in 16 dimensions come nowhere near a corner
+    assert worst.error > 1.2 * carlo
+
+
+def test_twelve_resistor_rejection_first_order_corner_equals_enumeration():
+    # a difference stage whose four arms are chains of three 1 % parts: 12 varied
+    # resistors; the lowest CMRR over all 4,096 corners by brute force
+    arms = [("a", "n", 10), ("n", "out", 100), ("b", "p", 10), ("p", "gnd", 100)]
+    parts = []
+    for arm, (start, end, total) in enumerate(arms):
+        nets = [start, f"x{arm}1", f"x{arm}2", end]
+        for k, share in enumerate((0.2, 0.3, 0.5)):
+            parts.append(f"(resistor R{arm}{k} {nets[k]} {nets[k + 1]}"
+                         f" {total * share:g}k (tolerance 1%))")
+    text = stage_text(f"""
+(version 1)
+(stage diff12 (ground gnd) (supply vcc 15V) (supply vee -15V)
+  (opamp U1 {OPAMP} (in+ p) (in- n) (out out) (v+ vcc) (v- vee))
+  {' '.join(parts)}
+  (source a (range 2.4V 2.6V) (band 0Hz 10Hz))
+  (source b (range 2.4V 2.6V) (band 0Hz 10Hz))
+  (load out (resistance 10k)))
+""")
+    figures = figures_of(text)
+    pair = next(s for s in stage_signals(figures) if s.pair)
+    solver = GainSpread(figures, pair.weights, pair.reference_hz)
+    refs = [p.ref for p in figures.stage.resistors()]
+    tolerances = dict.fromkeys(refs, 0.01)
+    assert len(refs) == 12
+    h = solver.transfers(corner_values(refs, solver.nominal_values, tolerances))
+    enumerated = float(rejection(h).min())
+    worst = solver.worst_rejection(refs, tolerances, SpreadOptions())
+    assert worst.method == SENSITIVITY and worst.verified
+    assert worst.cmrr == pytest.approx(enumerated, rel=1e-9)
+    # (1 + G)/(4t) with G = 10, t = 1 %: 275, the common-practice worst-case estimate
+    assert 0.9 * 275 < worst.cmrr < 1.1 * 275
+    boards = solver.transfers(solver.samples(refs, tolerances, SpreadOptions(), False))
+    assert worst.cmrr <= float(rejection(boards).min())
+
+
+def random_stage(seed: int) -> str:
+    """An inverting stage with a mesh of 9 or 10 resistors, 2 or 3 of them random."""
+    rng = random.Random(seed)
+    nets = ["in", "fb", "out", "m1", "m2"]
+    parts = ["(resistor R1 in fb 10k (tolerance 1%))",
+             "(resistor R2 fb out 47k (tolerance 1%))",
+             "(resistor R3 in m1 22k (tolerance 2%))", "(resistor R4 m1 fb 33k (tolerance 1%))",
+             "(resistor R5 m1 gnd 47k (tolerance 5%))", "(resistor R6 m2 fb 22k (tolerance 1%))",
+             "(resistor R7 m2 out 100k (tolerance 1%))"]
+    for k in range(8, 8 + 2 + seed % 2):
+        a, b = rng.sample(nets + ["gnd"], 2)
+        ohms = rng.choice([1, 2.2, 4.7, 10, 22, 47, 100])
+        tol = rng.choice(["0.5%", "1%", "5%", "10%"])
+        parts.append(f"(resistor R{k} {a} {b} {ohms:g}k (tolerance {tol}))")
+    return stage_text(f"""
+(version 1)
+(stage mesh (ground gnd) (supply vcc 15V) (supply vee -15V)
+  (opamp U1 {OPAMP} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+  {' '.join(parts)}
+  (source in (range -0.1V 0.1V) (band 0Hz 10Hz) (impedance 50))
+  (load out (resistance 10k)))
+""")
+
+
+def one_signed(gains: np.ndarray, k: int) -> bool:
+    """Whether every resistor moves the gain one way at every corner of the others
+    (the case where the signs' corner is the box's extreme)."""
+    cube = gains.reshape((2,) * k)
+    for axis in range(k):
+        step = np.take(cube, 1, axis=axis) - np.take(cube, 0, axis=axis)
+        scale = 1e-12 * float(np.max(np.abs(gains)))
+        if np.any(step > scale) and np.any(step < -scale):
+            return False
+    return True
+
+
+def test_random_small_stages_first_order_matches_enumeration_where_one_signed():
+    matched = 0
+    for seed in range(24):
+        solver, refs, tolerances = spread_of(random_stage(seed))
+        refs = solver.sensitive(refs, tolerances)
+        k = len(refs)
+        assert 4 <= k <= 10
+        gains = brute_force_gains(solver, refs, tolerances)
+        if not one_signed(gains, k):
+            continue
+        for required in (solver.nominal, 1.03 * solver.nominal, 0.97 * solver.nominal):
+            full = solver.worst_gain(refs, tolerances, required, ENUMERATE)
+            first = solver.worst_gain(refs, tolerances, required, FIRST_ORDER)
+            assert full.method == ENUMERATION
+            assert first.method in (SENSITIVITY, MONTE_CARLO)
+            assert first.method == SENSITIVITY and first.verified
+            assert first.error == pytest.approx(full.error, rel=1e-9)
+            assert first.signs == full.signs
+        matched += 1
+    # resistor networks are monotonic in each resistor: nearly every case qualifies
+    assert matched >= 20
+
+
+def test_gain_tolerance_finding_says_first_order_and_reports_the_method(tmp_path, capsys):
+    text = ladder_stage()
+    finding = only(text, "gain-tolerance")
+    assert finding.details["worst_case"] == {"method": "sensitivity", "verified": True}
+    assert finding.details["exact_corners"] is False
+    assert "at the first-order worst corner" in finding.message
+    assert "not full enumeration" in finding.message
+    assert "(verified: no single resistor's flip makes it worse)" in finding.message
+    solver, refs, tolerances = spread_of(text)
+    errors = np.abs(brute_force_gains(solver, refs, tolerances) / 4 - 1)
+    assert finding.measured == pytest.approx(float(errors.max()), rel=1e-9)
+    path = tmp_path / "ladder.stage"
+    path.write_text(text)
+    main(["check", str(path), "--format", "json", "--fail-on", "never"])
+    document = json.loads(capsys.readouterr().out)
+    stage = document["files"][0]["stages"][0]
+    found = [f for f in stage["findings"] if f["rule"] == "gain-tolerance"]
+    assert found[0]["worst_case"] == {"method": "sensitivity", "verified": True}
+    verdict = next(v for v in stage["requirements"] if v["requirement"] == "gain-tolerance")
+    assert "first-order worst corner" in verdict["statement"]
+    assert "not full enumeration" in verdict["statement"]
+
+
+def test_enumerated_finding_carries_no_worst_case_field(tmp_path, capsys):
+    text = ladder_stage(rungs=2)  # 8 resistors: every corner solved
+    finding = only(text, "gain-tolerance")
+    assert "worst_case" not in finding.details
+    assert "at the worst corner (" in finding.message
+    path = tmp_path / "short.stage"
+    path.write_text(text)
+    main(["check", str(path), "--format", "json", "--fail-on", "never"])
+    document = json.loads(capsys.readouterr().out)
+    found = [f for f in document["files"][0]["stages"][0]["findings"]
+             if f["rule"] == "gain-tolerance"]
+    assert "worst_case" not in found[0]
