@@ -42,8 +42,8 @@ def difference_balance(view):
         rounds at most), and the worse of it and the worst Monte Carlo board is
         reported; the message says it is a first-order choice, not full enumeration,
         and whether the corner was verified. Near a balanced stage's null the
-        common-mode gain is small and its sensitivities can change sign across the
-        band: there first order can fall short of the true worst corner. The transfers are read where the first
+        common-mode gain is small and its sensitivities can change sign within the
+        tolerances: there first order can fall short of the true worst corner. The transfers are read where the first
         source's figures are (0 Hz for a source with no band or a band from 0 Hz, else
         its band centre), the same spread the `cmrr` requirement's verdict reads; the
         sources' own impedances are part of the transfers, so an unbalanced source

@@ -41,8 +41,8 @@ def gain_tolerance(view):
         worse, else those are flipped, a few rounds at most), and the worse of it and
         the Monte Carlo extremes is reported. The message says plainly that it is a
         first-order choice, not full enumeration, and whether the corner was
-        verified; it is exact where the gain is monotonic in each resistor across
-        the band (the usual ratio of resistors), and can fall short where a
+        verified; it is exact where the gain is monotonic in each resistor over
+        its tolerance (the usual ratio of resistors), and can fall short where a
         sensitivity is near zero and changes sign.
 
     Why it matters:
