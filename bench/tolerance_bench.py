@@ -16,6 +16,13 @@ with the two rules and the requirement verdicts (the verdicts share the spreads;
 analysis figures they read are included), and the process's peak resident memory
 (resource.getrusage max RSS) after the check, beside its peak when the stage was built.
 
+Then the first-order worst corner alone (corner_search.py, what the rules use beyond
+``max_corner_resistors``): on the same stages at 20, 50 and 100 passives, the CPU time of
+the sensitivity pass (central differences at nominal, then the single-flip verification
+rounds) for the gain's highest and lowest corners and for the pair's lowest CMRR, from a
+fresh analysis each time (the factorisation included); the rounds used and whether each
+corner was verified. Target: well under 1 s at 100 passives.
+
 Run: .venv/bin/python bench/tolerance_bench.py [--sizes 5 20 50 100] [--repeats 3]
 """
 
@@ -84,6 +91,41 @@ def measure(passives: int, repeats: int) -> dict:
             "findings": found}
 
 
+FIRST_ORDER_SIZES = (20, 50, 100)
+
+
+def first_order(passives: int, repeats: int) -> dict:
+    """The sensitivity pass alone, best CPU time of ``repeats`` fresh analyses."""
+    from checker.analysis import AnalysisOptions, analyse
+    from checker.analysis.signal import stage_signals
+    from checker.analysis.spread import GainSpread
+    from checker.build import build_stages
+    from checker.io.load import parse_text
+    from checker.parts.library import load_library
+
+    stage = build_stages(parse_text(stage_text(passives), "bench.stage"), load_library())[0]
+    refs = [p.ref for p in stage.resistors()]
+    tolerances = {p.ref: p.tolerance for p in stage.resistors()}
+    gain_cpu, cmrr_cpu, notes = [], [], ""
+    for _ in range(repeats):
+        figures = analyse(stage, AnalysisOptions())
+        signals = stage_signals(figures)
+        signal = signals[0]
+        pair = next(s for s in signals if s.pair)
+        start = time.process_time()
+        gain = GainSpread(figures, signal.weights, signal.reference_hz)
+        high, low = gain.gain_corners(refs, tolerances)
+        middle = time.process_time()
+        spread = GainSpread(figures, pair.weights, pair.reference_hz)
+        corner = spread.rejection_corner(refs, tolerances)
+        gain_cpu.append(middle - start)
+        cmrr_cpu.append(time.process_time() - middle)
+        notes = (f"gain high {high.rounds} rounds {'verified' if high.verified else 'NOT'},"
+                 f" low {low.rounds} {'verified' if low.verified else 'NOT'};"
+                 f" cmrr {corner.rounds} {'verified' if corner.verified else 'NOT'}")
+    return {"gain": min(gain_cpu), "cmrr": min(cmrr_cpu), "notes": notes}
+
+
 def in_child(passives: int, repeats: int) -> dict:
     root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
     env = dict(os.environ, PYTHONPATH=root + os.pathsep + os.environ.get("PYTHONPATH", ""))
@@ -97,11 +139,19 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--sizes", type=int, nargs="+", default=list(SIZES))
     parser.add_argument("--repeats", type=int, default=3)
+    parser.add_argument("--first-order-sizes", type=int, nargs="+",
+                        default=list(FIRST_ORDER_SIZES))
     parser.add_argument("--child", type=int, help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.child is not None:
         print(json.dumps(measure(args.child, args.repeats)))
         return
+    print("first-order worst corner (sensitivity pass + verification), CPU s, best of"
+          f" {args.repeats}; target for 100 passives: well under 1 s")
+    print(f"{'passives':>8} {'gain (2 corners)':>17} {'CMRR':>8}  rounds")
+    for size in args.first_order_sizes:
+        figures = first_order(size, args.repeats)
+        print(f"{size:8d} {figures['gain']:17.4f} {figures['cmrr']:8.4f}  {figures['notes']}")
     print("tolerance rules (gain-tolerance + difference-balance + verdicts), best of"
           f" {args.repeats}; target for 100 passives: < 1 s, < 200 MB")
     print(f"{'passives':>8} {'rules CPU s':>12} {'rules wall s':>13}"
