@@ -20,6 +20,7 @@ from rule_helpers import figures_of, only, stage_text
 from checker.analysis.signal import stage_signals
 from checker.analysis.spread import (ENUMERATION, MONTE_CARLO, SENSITIVITY, GainSpread,
                                      SpreadOptions, rejection)
+from checker.analysis.corner_search import central_differences, climb, start_signs
 from checker.analysis.tolerance import corner_values
 from checker.cli import main
 
@@ -234,3 +235,59 @@ def test_enumerated_finding_carries_no_worst_case_field(tmp_path, capsys):
     found = [f for f in document["files"][0]["stages"][0]["findings"]
              if f["rule"] == "gain-tolerance"]
     assert "worst_case" not in found[0]
+
+
+# -- the search itself on figures written out by hand ----------------------------------
+# Two "resistors" of nominal 1 and tolerance 50 %: x = (value - 1)/0.5 is -1 or +1 at
+# the corners, and the objectives below are polynomials in x whose corners are plain.
+REFS = ["A", "B"]
+NOMINAL = {"A": 1.0, "B": 1.0}
+HALF = {"A": 0.5, "B": 0.5}
+
+
+def unit(values):
+    return (values["A"] - 1) / 0.5, (values["B"] - 1) / 0.5
+
+
+def test_central_differences_span_the_whole_tolerance():
+    d = central_differences(lambda v: 3 * unit(v)[0] - unit(v)[1], REFS, NOMINAL, HALF)
+    assert d.tolist() == pytest.approx([6.0, -2.0])  # f(+1) - f(-1) of 3x and -y
+
+
+def test_a_joint_flip_that_loses_falls_back_to_the_best_corner_seen():
+    # f = xy + 0.5x - 0.1y: the nominal signs pick (+1, -1), f = -0.4; both single flips
+    # improve (to 0.6 and 1.4), flipping both lands on (-1, +1) = -1.6, so the search
+    # returns to (+1, +1) = 1.4, the box's maximum, and verifies it there
+    def f(v):
+        x, y = unit(v)
+        return x * y + 0.5 * x - 0.1 * y
+
+    start = start_signs(central_differences(f, REFS, NOMINAL, HALF))
+    assert start.tolist() == [1.0, -1.0]
+    corner = climb(f, REFS, NOMINAL, HALF, start)
+    assert corner.signs.tolist() == [1.0, 1.0]
+    assert corner.objective == pytest.approx(1.4)
+    assert corner.verified and corner.rounds == 3
+
+
+def test_a_verified_corner_can_be_local_not_global():
+    # f = xy + 0.5x + 0.5y: at (-1, -1) f = 0 and each single flip gives -1, so it is
+    # verified, though (+1, +1) gives 2: the limit the module's docstring names
+    def f(v):
+        x, y = unit(v)
+        return x * y + 0.5 * x + 0.5 * y
+
+    corner = climb(f, REFS, NOMINAL, HALF, np.array([-1.0, -1.0]))
+    assert corner.verified and corner.objective == pytest.approx(0.0)
+    assert climb(f, REFS, NOMINAL, HALF, start_signs(
+        central_differences(f, REFS, NOMINAL, HALF))).objective == pytest.approx(2.0)
+
+
+def test_a_corner_still_moving_after_the_last_round_is_not_verified():
+    def f(v):
+        x, y = unit(v)
+        return x + y
+
+    corner = climb(f, REFS, NOMINAL, HALF, np.array([-1.0, -1.0]), max_rounds=1)
+    assert not corner.verified
+    assert corner.objective == pytest.approx(0.0)  # the best seen: one flip away
