@@ -146,3 +146,16 @@ def test_inverting_stage_is_not_a_difference_stage():
           (require (cmrr 80dB)))
         """
     assert findings(text, RULE) == []
+
+
+def test_beyond_max_corner_resistors_the_first_order_corner_is_the_enumerated_one():
+    # a balanced stage (nominal Acm = 0): the ratio Acm/Ad starts at zero and moves both
+    # ways; the first-order corner must still be the worst of the 16 by hand
+    finding = only(difference(), RULE, settings={"max_corner_resistors": 2})
+    assert finding.details["exact_corners"] is False
+    assert finding.details["worst_case"] == {"method": "sensitivity", "verified": True}
+    assert finding.measured == pytest.approx(db(corner_cmrr(1.0, 0.01)), abs=1e-3)
+    assert finding.measured == pytest.approx(only(difference(), RULE).measured, rel=1e-9)
+    assert "at the first-order worst corner of its resistors" in finding.message
+    assert "not full enumeration" in finding.message
+    assert "worst_case" not in only(difference(), RULE).details
