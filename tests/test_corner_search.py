@@ -19,8 +19,8 @@ from rule_helpers import figures_of, only, stage_text
 
 from checker.analysis.signal import stage_signals
 from checker.analysis.spread import (ENUMERATION, MONTE_CARLO, SENSITIVITY, GainSpread,
-                                     SpreadOptions, rejection)
-from checker.analysis.corner_search import central_differences, climb, start_signs
+                                     SpreadOptions, method_note, method_text, rejection)
+from checker.analysis.corner_search import Corner, central_differences, climb, start_signs
 from checker.analysis.tolerance import corner_values
 from checker.cli import main
 
@@ -325,3 +325,25 @@ def test_mid_band_magnitude_first_order_corner_equals_enumeration():
     worst = solver.worst_gain(refs, tolerances, solver.nominal, SpreadOptions())
     assert worst.method == SENSITIVITY and worst.verified
     assert worst.error == pytest.approx(float(errors.max()), rel=1e-9)
+
+
+def test_a_monte_carlo_board_worse_than_the_corner_is_reported_as_such(monkeypatch):
+    # force a poor first-order choice (of all 65,536 corners the one nearest the
+    # nominal gain) to see the other branch: the Monte Carlo extreme is then worse,
+    # reported with its method and not verified
+    solver, refs, tolerances = spread_of(ladder_stage())
+    honest = solver.gain_corners(refs, tolerances)
+    nearest = int(np.argmin(np.abs(brute_force_gains(solver, refs, tolerances)
+                                   - solver.nominal)))
+    sides = corner_values(refs, dict.fromkeys(refs, 1.0), dict.fromkeys(refs, 1.0))
+    signs = np.array([np.sign(sides[r][nearest] - 1) for r in refs])
+    poor = [Corner(signs, 0.0, True, 1)] * 2
+    monkeypatch.setattr(solver, "gain_corners", lambda refs, tolerances: poor)
+    worst = solver.worst_gain(refs, tolerances, solver.nominal, SpreadOptions())
+    assert worst.method == MONTE_CARLO and not worst.verified and not worst.exact
+    boards = solver.gains(solver.samples(refs, tolerances, SpreadOptions(), False))
+    assert worst.error == pytest.approx(float(np.max(np.abs(boards / solver.nominal - 1))))
+    assert method_text(worst, 10000) == "at the extremes of 10000 Monte Carlo boards"
+    assert "worse than the first-order corner" in method_note(worst)
+    assert "neither is a full enumeration" in method_note(worst)
+    assert honest[0].verified and honest[1].verified
