@@ -178,12 +178,9 @@ class GainSpread:
                           ENUMERATION if exact else MONTE_CARLO, exact)
         if exact:
             return carlo
-        corners = self.gain_corners(refs, tolerances)
-        chosen = []
-        for corner in corners:
-            gain = float(self.gains(corner_samples(refs, self.nominal_values, tolerances,
-                                                   corner.signs))[0])
-            chosen.append((abs(gain / required - 1), gain, corner))
+        high, low = self.gain_corners(refs, tolerances)
+        chosen = [(abs(gain / required - 1), gain, corner)
+                  for gain, corner in ((high.objective, high), (-low.objective, low))]
         error, gain, corner = max(chosen, key=lambda item: item[0])
         if error >= carlo.error:
             return WorstGain(gain, error, tuple(float(s) for s in corner.signs), False,
@@ -191,9 +188,11 @@ class GainSpread:
         return carlo
 
     def gain_corners(self, refs, tolerances) -> list:
-        """The first-order corners of the highest and of the lowest gain (corner_search)."""
+        """The first-order corners of the highest and of the lowest gain (corner_search;
+        the second's objective is the negated gain)."""
         nominal = self.nominal_values
         differences = central_differences(self.gains, refs, nominal, tolerances)
+
         def lowest(values: dict[str, np.ndarray]) -> np.ndarray:
             return -self.gains(values)
 
