@@ -20,7 +20,8 @@ from rule_helpers import figures_of, only, stage_text
 from checker.analysis.signal import stage_signals
 from checker.analysis.spread import (ENUMERATION, MONTE_CARLO, SENSITIVITY, GainSpread,
                                      SpreadOptions, method_note, method_text, rejection)
-from checker.analysis.corner_search import Corner, central_differences, climb, start_signs
+from checker.analysis.corner_search import (Corner, central_differences, climb,
+                                           corner_samples, start_signs)
 from checker.analysis.tolerance import corner_values
 from checker.cli import main
 
@@ -337,7 +338,9 @@ def test_a_monte_carlo_board_worse_than_the_corner_is_reported_as_such(monkeypat
                                    - solver.nominal)))
     sides = corner_values(refs, dict.fromkeys(refs, 1.0), dict.fromkeys(refs, 1.0))
     signs = np.array([np.sign(sides[r][nearest] - 1) for r in refs])
-    poor = [Corner(signs, 0.0, True, 1)] * 2
+    gain = float(solver.gains(corner_samples(refs, solver.nominal_values, tolerances,
+                                             signs))[0])
+    poor = [Corner(signs, gain, True, 1), Corner(signs, -gain, True, 1)]  # high, low
     monkeypatch.setattr(solver, "gain_corners", lambda refs, tolerances: poor)
     worst = solver.worst_gain(refs, tolerances, solver.nominal, SpreadOptions())
     assert worst.method == MONTE_CARLO and not worst.verified and not worst.exact
