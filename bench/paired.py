@@ -79,9 +79,10 @@ def run_function(function, runs: Runs) -> None:
 
 
 def paired_children(commands: dict[str, list[str]], rounds: int,
-                    probe: bool = True) -> dict[str, Runs]:
+                    probe: bool = True, python: str = sys.executable) -> dict[str, Runs]:
     """Each command run ``rounds`` times, in turn (A B A B ...), with a bare numpy
-    import timed in each round under the name ``"numpy import"`` when ``probe``."""
+    import by ``python`` timed in each round under the name ``"numpy import"`` when
+    ``probe``."""
     results = {name: Runs() for name in commands}
     if probe:
         results["numpy import"] = Runs()
@@ -89,7 +90,7 @@ def paired_children(commands: dict[str, list[str]], rounds: int,
         for name, command in commands.items():
             run_child(command, results[name])
         if probe:
-            run_child(NUMPY_IMPORT, results["numpy import"])
+            run_child([python] + NUMPY_IMPORT[1:], results["numpy import"])
     return results
 
 
