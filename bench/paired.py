@@ -18,7 +18,13 @@ import tempfile
 import time
 from dataclasses import dataclass, field
 
-NUMPY_IMPORT = [sys.executable, "-c", "import numpy"]
+# A bare numpy import with BLAS held to one thread, as ampcheck's main() holds it: an
+# import with the default threads spends CPU on spinning threads the check never starts.
+NUMPY_IMPORT = [sys.executable, "-c",
+                "import os\n"
+                "for v in ('OPENBLAS_NUM_THREADS', 'OMP_NUM_THREADS', 'MKL_NUM_THREADS'):\n"
+                "    os.environ.setdefault(v, '1')\n"
+                "import numpy"]
 
 
 @dataclass
