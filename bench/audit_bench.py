@@ -10,10 +10,14 @@ Targets (issue: performance): cold one-file check <= 2x `import numpy`; >= 1,000
 stages/s with 2 jobs on the plain set and >= 500 on the requirement set; 2 jobs >= 1.8x
 one; peak memory per process < 100 MB and flat in the file count.
 
+Every child runs from a throw-away install of this checkout as a user's pip install
+makes it (bench/user_install.py: copied, compiled to bytecode, no editable finder), and
+the numpy import beside it runs on the same interpreter; the developer's editable
+install would time a start that compiles every module from source where
+PYTHONDONTWRITEBYTECODE is set.
+
 Run: .venv/bin/python bench/audit_bench.py [--files 2000] [--memory-files 4000]
     [--rounds 3]
-from a virtual environment with a regular (not editable) install, so that the cold
-start reads compiled modules as a user's does.
 """
 
 from __future__ import annotations
@@ -28,9 +32,9 @@ sys.path.insert(0, HERE)
 
 from generate_stages import generate  # noqa: E402
 from paired import Runs, paired_children, run_child, target  # noqa: E402
+from user_install import user_install  # noqa: E402
 
-_SCRIPT = os.path.join(os.path.dirname(sys.executable), "ampcheck")
-AMPCHECK = [_SCRIPT] if os.path.exists(_SCRIPT) else [sys.executable, "-m", "checker"]
+AMPCHECK: list[str] = []  # the user install's ampcheck, set by main()
 QUIET = ["--format", "compact", "--fail-on", "never", "--no-progress"]
 
 
@@ -46,9 +50,11 @@ def main() -> None:
     parser.add_argument("--cold-rounds", type=int, default=9)
     args = parser.parse_args()
     with tempfile.TemporaryDirectory() as folder:
+        AMPCHECK[:] = user_install(os.path.join(folder, "install"))
+        python = AMPCHECK[0]
         one = generate(os.path.join(folder, "one"), 1)[0]
         cold = paired_children({"cold check": AMPCHECK + ["check", one] + QUIET},
-                               args.cold_rounds)
+                               args.cold_rounds, python=python)
         ratio = cold["cold check"].wall_median / cold["numpy import"].wall_median
         print(f"cold one-file check: {cold['cold check'].wall_text()} wall,"
               f" {cold['cold check'].cpu_text()} CPU; bare numpy import"
@@ -59,7 +65,7 @@ def main() -> None:
             target_folder = os.path.join(folder, name)
             paths = generate(target_folder, args.files, requirements=requirements)
             runs = paired_children({f"{jobs} job(s)": audit(target_folder, jobs)
-                                    for jobs in (1, 2)}, args.rounds)
+                                    for jobs in (1, 2)}, args.rounds, python=python)
             rates = {jobs: len(paths) / runs[f"{jobs} job(s)"].wall_median for jobs in (1, 2)}
             for jobs in (1, 2):
                 r = runs[f"{jobs} job(s)"]

@@ -18,7 +18,13 @@ import tempfile
 import time
 from dataclasses import dataclass, field
 
-NUMPY_IMPORT = [sys.executable, "-c", "import numpy"]
+# A bare numpy import with BLAS held to one thread, as ampcheck's main() holds it: an
+# import with the default threads spends CPU on spinning threads the check never starts.
+NUMPY_IMPORT = [sys.executable, "-c",
+                "import os\n"
+                "for v in ('OPENBLAS_NUM_THREADS', 'OMP_NUM_THREADS', 'MKL_NUM_THREADS'):\n"
+                "    os.environ.setdefault(v, '1')\n"
+                "import numpy"]
 
 
 @dataclass
@@ -79,9 +85,10 @@ def run_function(function, runs: Runs) -> None:
 
 
 def paired_children(commands: dict[str, list[str]], rounds: int,
-                    probe: bool = True) -> dict[str, Runs]:
+                    probe: bool = True, python: str = sys.executable) -> dict[str, Runs]:
     """Each command run ``rounds`` times, in turn (A B A B ...), with a bare numpy
-    import timed in each round under the name ``"numpy import"`` when ``probe``."""
+    import by ``python`` timed in each round under the name ``"numpy import"`` when
+    ``probe``."""
     results = {name: Runs() for name in commands}
     if probe:
         results["numpy import"] = Runs()
@@ -89,7 +96,7 @@ def paired_children(commands: dict[str, list[str]], rounds: int,
         for name, command in commands.items():
             run_child(command, results[name])
         if probe:
-            run_child(NUMPY_IMPORT, results["numpy import"])
+            run_child([python] + NUMPY_IMPORT[1:], results["numpy import"])
     return results
 
 

@@ -9,8 +9,10 @@ picklable FileResults; the parent streams them to the reporters in sorted-path o
 from __future__ import annotations
 
 import os
+import sys
 from collections.abc import Iterator
-from dataclasses import dataclass, field, replace
+from dataclasses import field, replace
+from checker.record import record
 from functools import lru_cache
 from typing import TYPE_CHECKING, Any
 
@@ -30,7 +32,7 @@ if TYPE_CHECKING:  # loaded lazily at run time (only netlist files need it)
 DEFAULT_STRAY_F = 1e-12  # layout stray at an inverting input (common practice: 0.5-2 pF)
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Request:
     """The command line's part of every file's options (picklable)."""
 
@@ -96,7 +98,7 @@ def _library(paths: tuple[str, ...]):
     return load_library(list(paths))
 
 
-@dataclass
+@record
 class FileSetup:
     rules: list
     options: RunOptions
@@ -235,10 +237,11 @@ def check_files(paths: list[str], request: Request, jobs: int = 1) -> Iterator[F
 def forget() -> None:
     """Drop cached configurations and libraries (files may have changed since the last
     run in this process)."""
-    from checker.netlist.mapping import load_map
-
-    for cached in (config_at, rules_for, _library, find_config_file, _netlist_map, load_map):
+    for cached in (config_at, rules_for, _library, find_config_file, _netlist_map):
         cached.cache_clear()
+    mapping = sys.modules.get("checker.netlist.mapping")  # only loaded if a netlist was
+    if mapping is not None:
+        mapping.load_map.cache_clear()
 
 
 def preflight(paths: list[str], request: Request) -> None:

@@ -12,7 +12,8 @@ import json
 import os
 from collections import Counter
 from collections.abc import Sequence
-from dataclasses import dataclass, replace
+from dataclasses import replace
+from checker.record import record
 
 from checker.catalogue import engine_severity
 from checker.findings import Finding
@@ -39,7 +40,7 @@ def key_of(finding: Finding, folder: str) -> Key:
             finding.rule)
 
 
-@dataclass
+@record
 class Baseline:
     path: str
     counts: Counter  # Key -> how many findings it accepts

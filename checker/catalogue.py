@@ -11,7 +11,7 @@ it without loading the engine.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from checker.record import record
 
 from checker.findings import Severity
 
@@ -19,7 +19,7 @@ from checker.findings import Severity
 ENGINE_DOC_SECTIONS = ("What it means", "Why it matters", "How to fix")
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class EngineRule:
     """One finding the engine emits itself: its id, severity, summary and docs."""
 

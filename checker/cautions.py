@@ -27,7 +27,8 @@ How a source's voltage is read (our reading, stated in docs/format.md):
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import replace
+from checker.record import record
 
 from checker.limits import above
 from checker.model import Source, Stage, Waiver
@@ -43,7 +44,7 @@ MAINS_DERIVED = "mains-derived"
 MAINS_VALUES = ("isolated", "not-isolated")  # the stage format's (mains ...) values
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class CautionKind:
     """One kind of caution, documented like a rule (``ampcheck explain ID``)."""
 

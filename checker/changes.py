@@ -10,12 +10,13 @@ file. :func:`apply_changes` never touches the original: stages are frozen.
 from __future__ import annotations
 
 from collections.abc import Set as AbstractSet
-from dataclasses import dataclass, replace
+from dataclasses import replace
+from checker.record import record
 
 from checker.model import OpAmpPart, Passive, Stage
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class SetValue:
     """A resistor, capacitor or inductor takes a new value (SI)."""
 
@@ -23,7 +24,7 @@ class SetValue:
     value: float
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class SetTolerance:
     """Resistors made to a tighter tolerance (fraction)."""
 
@@ -31,13 +32,13 @@ class SetTolerance:
     tolerance: float
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class SetPowerRating:
     element: str
     watts: float
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class AddPassive:
     """A new part between two nets (a net not yet in the stage is created by it)."""
 
@@ -49,19 +50,19 @@ class AddPassive:
     tolerance: float | None = None  # fraction; None: unstated
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class RemovePassive:
     element: str
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class SwapInputs:
     """An op-amp's in+ and in- exchanged."""
 
     opamp: str
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class SetLoad:
     """The load on ``net`` takes a new resistance."""
 
@@ -69,7 +70,7 @@ class SetLoad:
     resistance_ohm: float
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class SetPartParameter:
     """An op-amp's part with one parameter changed (a part to choose: the name stays,
     the reports call it adjusted)."""
@@ -79,7 +80,7 @@ class SetPartParameter:
     value: float
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class UsePart:
     """An op-amp given another part (a built-in class or one from a library)."""
 
@@ -87,7 +88,7 @@ class UsePart:
     part: OpAmpPart
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class IsolateOutput:
     """A resistor between ``net`` and a new net that takes every load on ``net``; the
     feedback stays on ``net`` (taken before the resistor)."""
@@ -97,7 +98,7 @@ class IsolateOutput:
     ohms: float
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class SeriesAtInput:
     """Op-amp ``opamp``'s non-inverting input moved to a new net that reaches its old net
     through a resistor."""

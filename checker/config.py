@@ -31,15 +31,11 @@ import fnmatch
 import os
 import re
 import sys
-from dataclasses import dataclass, field
+from dataclasses import field
+from checker.record import record
 from functools import lru_cache
 from collections.abc import Callable
 from typing import NoReturn
-
-if sys.version_info >= (3, 11):
-    import tomllib
-else:  # pragma: no cover - Python 3.10
-    import tomli as tomllib
 
 from checker.cautions import KINDS as CAUTION_KINDS
 from checker.cautions import not_a_rule
@@ -60,13 +56,13 @@ class ConfigError(Exception):
     """A configuration mistake, with the file and line of the key."""
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Valued:
     value: object
     origin: str  # "default", "command line", or "FILE:LINE"
 
 
-@dataclass
+@record
 class Config:
     """A resolved configuration: each value with its origin."""
 
@@ -141,6 +137,10 @@ def _key_lines(text: str) -> dict[tuple, int]:
 
 def _read(path: str) -> tuple[dict, dict[tuple, int], tuple] | None:
     """(table, key lines, prefix) of a config file; None when it has no ampcheck part."""
+    if sys.version_info >= (3, 11):  # imported here: most runs read no configuration
+        import tomllib
+    else:  # pragma: no cover - Python 3.10
+        import tomli as tomllib
     try:
         if not os.path.isfile(path):
             raise ConfigError(f"{path}: not a regular file")

@@ -19,7 +19,8 @@ import sys
 import textwrap
 from collections.abc import Callable, Iterable
 from collections.abc import Set as AbstractSet
-from dataclasses import dataclass, field, replace
+from dataclasses import field, replace
+from checker.record import record
 from types import ModuleType
 
 from checker.analysis import AnalysisOptions, Figures, analyse
@@ -50,7 +51,7 @@ class RuleError(Exception):
     """A rule module or definition that cannot be used (a configuration error)."""
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Rule:
     id: str
     severity: Severity
@@ -175,7 +176,7 @@ def load_rules(folders: Iterable[str] = ()) -> dict[str, Rule]:
     return dict(sorted(found.items()))
 
 
-@dataclass
+@record
 class StageView:
     """What a rule sees of one stage: the model, its figures, the rule's settings."""
 
@@ -239,7 +240,7 @@ class StageView:
                             severity=Severity.INFO, unchecked=True)
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class RunOptions:
     analysis: AnalysisOptions = AnalysisOptions(stray_capacitance_f=1e-12)
     select: frozenset[str] | None = None  # None: every rule
@@ -258,7 +259,7 @@ class RunOptions:
         return merged
 
 
-@dataclass
+@record
 class StageCheck:
     """One stage checked: its findings (sorted), its requirements' verdicts and its
     safety cautions (always, whatever the rules, settings and severities)."""

@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass, field
+from dataclasses import field
+from checker.record import record
 
 from checker.build import build_stages
 from checker.findings import Finding, input_finding
@@ -13,7 +14,7 @@ from checker.model import OpAmpPart, Stage
 from checker.netlist import NETLIST_ENDINGS, is_netlist
 
 
-@dataclass
+@record
 class LoadedFile:
     """One input file: the stages it built, or the problems that stopped it."""
 

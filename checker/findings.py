@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 import enum
-from dataclasses import dataclass, field
+from dataclasses import field
+from checker.record import record
 
 
 class Severity(enum.IntEnum):
@@ -25,7 +26,7 @@ class Severity(enum.IntEnum):
             raise ValueError(f"unknown severity {text!r}: use error, warning or info") from None
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class FixCheck:
     """What re-checking a fix's changes with every rule found: whether the finding it
     was proposed for is gone, and what else it changes."""
@@ -51,7 +52,7 @@ class FixCheck:
         return "re-checked with every rule: " + "; ".join(parts)
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Suggestion:
     """A computed fix: what to change, and the value to change it to where there is one.
 
@@ -70,7 +71,7 @@ class Suggestion:
     withheld: bool = False
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Finding:
     rule: str
     severity: Severity

@@ -12,7 +12,8 @@ an edit of this file and is left out with the reason.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import field
+from checker.record import record
 
 from checker import changes as ch
 from checker.io.patch import Patcher, PatchError
@@ -22,7 +23,7 @@ PASSIVE_LISTS = {"resistor": "resistors", "capacitor": "capacitors", "inductor":
 _UNIT_OF = {"resistor": "Ω", "capacitor": "F", "inductor": "H"}
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Outcome:
     """One fix considered: applied, or left out with why."""
 
@@ -35,7 +36,7 @@ class Outcome:
     text: str = ""  # the fix's own words
 
 
-@dataclass
+@record
 class Mended:
     text: str
     outcomes: list[Outcome] = field(default_factory=list)

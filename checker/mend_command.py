@@ -3,7 +3,6 @@ a unified diff, or (with --in-place only) written over the file itself."""
 
 from __future__ import annotations
 
-import difflib
 import os
 import sys
 
@@ -93,6 +92,8 @@ def run(args) -> int:
               file=sys.stderr)
         return EXIT_OK
     if args.diff:
+        import difflib  # only the --diff output needs it
+
         sys.stdout.writelines(difflib.unified_diff(
             text.splitlines(keepends=True), mended.text.splitlines(keepends=True),
             fromfile=path, tofile=mended_path(path)))

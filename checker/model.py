@@ -6,10 +6,11 @@ rules. Nothing here knows about syntax or files beyond the Origin of each elemen
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, fields
+from dataclasses import field, fields
+from checker.record import record
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Origin:
     """Where an element was written: file path, 1-based line and column."""
 
@@ -21,7 +22,7 @@ class Origin:
         return f"{self.path}:{self.line}:{self.column}"
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class OpAmpPart:
     """An op-amp's parameters; None where the part does not state one.
 
@@ -94,7 +95,7 @@ PART_ATTRIBUTES: dict[str, str] = {
 assert set(PART_ATTRIBUTES.values()) <= {f.name for f in fields(OpAmpPart)}
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class OpAmp:
     ref: str
     part: OpAmpPart
@@ -111,7 +112,7 @@ class OpAmp:
                 "v+": self.v_pos, "v-": self.v_neg}
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Passive:
     """A resistor, capacitor or inductor between ``net_a`` and ``net_b``."""
 
@@ -132,7 +133,7 @@ class Passive:
         return self.net_b if net == self.net_a else self.net_a
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Supply:
     net: str
     voltage_v: float
@@ -146,7 +147,7 @@ class Supply:
         return self.low_v is not None and self.high_v is not None
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Source:
     """A signal source at ``net``: a voltage behind a series impedance, or a current
     with a shunt impedance and capacitance (a sensor such as a photodiode).
@@ -172,7 +173,7 @@ class Source:
         return self.label or f"source at {self.net}"
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Load:
     net: str
     origin: Origin
@@ -182,7 +183,7 @@ class Load:
     feeds_net: str | None = None
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Requirements:
     """What the stage must achieve; None where the file states nothing. ``positions``
     gives where each stated keyword was written."""
@@ -222,7 +223,7 @@ REQUIREMENT_ATTRIBUTES: dict[str, str] = {
 }
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Waiver:
     """A rule's finding accepted in the stage file, on the stage or on one element."""
 
@@ -232,7 +233,7 @@ class Waiver:
     element: str | None = None  # designator, source name or "load NET"; None: whole stage
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class ReaderNote:
     """What the reader of a foreign file (a netlist) left out or assumed for a stage, for
     the rules that report it (``not-analysed``, ``boundary-assumed``)."""
@@ -243,7 +244,7 @@ class ReaderNote:
     elements: tuple[str, ...] = ()
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Stage:
     name: str
     origin: Origin

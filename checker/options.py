@@ -18,13 +18,13 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass
+from checker.record import record
 from typing import TypeGuard
 
 from checker.units import UnitError, check_plausible, parse_value
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Option:
     """One configuration key (and, where it has one, its ``check`` flag)."""
 
@@ -135,7 +135,7 @@ UNIT_ENDINGS = {"_deg": ("angle", "°"), "_ohm": ("resistance", "Ω"), "_db": ("
                 "_k": ("temperature", "K")}
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Setting:
     """One rule setting: its name in the rule's code, its configuration key, its unit."""
 

@@ -6,7 +6,8 @@ alone.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import field
+from checker.record import record
 
 from checker.findings import Finding, Severity
 
@@ -16,7 +17,7 @@ UNCHECKED = "could-not-check"
 STATUSES = (MET, NOT_MET, UNCHECKED)
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Verdict:
     """One stated requirement, answered: met, not met, or could not check (and why).
 
@@ -59,7 +60,7 @@ DEFERRAL = ("this tool does not assess electrical safety; the applicable safety 
 BASES = ("dc", "ac-peak", "declared")
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Caution:
     """A safety caution on a stage: a supply span or a source beyond the extra-low-voltage
     limits, or a supply or stage declared derived from the mains.
@@ -92,7 +93,7 @@ class Caution:
                 self.statement)
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Plot:
     """One drawn figure of a stage, for the HTML review: an SVG text and its words.
 
@@ -106,7 +107,7 @@ class Plot:
     svg: str
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class ElementRow:
     """One element of a stage as the review lists it: designator, kind, nets, value."""
 
@@ -117,7 +118,7 @@ class ElementRow:
     line: int
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class StageSheet:
     """What the HTML review shows of a stage beyond findings and verdicts: its element
     list, its plots, and a note for each plot that was not drawn (and why)."""
@@ -127,7 +128,7 @@ class StageSheet:
     notes: tuple[str, ...] = ()
 
 
-@dataclass
+@record
 class StageResult:
     """What a report needs of one stage: small and picklable (no model, no arrays), so a
     worker process can send it back and a long audit keeps little in memory."""
@@ -143,7 +144,7 @@ class StageResult:
     gain_unit: str = "V/V"  # the summary gain's unit: "Ω" (V/A) from a current source
 
 
-@dataclass
+@record
 class FileResult:
     path: str
     problems: list[Finding] = field(default_factory=list)  # input-invalid findings

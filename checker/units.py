@@ -18,7 +18,7 @@ from __future__ import annotations
 import math
 import re
 import sys
-from dataclasses import dataclass
+from checker.record import record
 
 PREFIXES: dict[str, float] = {
     "f": 1e-15,
@@ -37,7 +37,7 @@ PREFIXES: dict[str, float] = {
 }
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Quantity:
     """A kind of value: its canonical SI symbol and the spellings accepted for it."""
 

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 import re
-from dataclasses import dataclass
+from checker.record import record
 
 _FORMAT_PREFIXES = ((1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""),
                     (1e-3, "m"), (1e-6, "u"), (1e-9, "n"), (1e-12, "p"), (1e-15, "f"))
@@ -19,7 +19,7 @@ _RKM = re.compile(r"^[+-]?\d*[RrfpnuµμmkKMGT]\d+")
 _NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)(e[+-]?\d+)?", re.IGNORECASE)
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Style:
     rkm: bool = False
     unit: str = ""  # the unit symbol the file writes after the prefix, if any

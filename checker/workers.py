@@ -16,12 +16,10 @@ Every other result is the one a single process gives.
 
 from __future__ import annotations
 
-import multiprocessing
 import signal
 import time
 from collections import deque
 from collections.abc import Callable, Iterator
-from multiprocessing.connection import wait
 from typing import TypeVar
 
 POLL_S = 0.25  # the longest the parent waits before it looks at its workers again
@@ -51,6 +49,8 @@ def _serve(connection, work: Callable) -> None:
 
 
 def _context():
+    import multiprocessing  # imported here: a one-job run never needs it (cold start)
+
     method = "fork" if "fork" in multiprocessing.get_all_start_methods() else "spawn"
     return multiprocessing.get_context(method)
 
@@ -102,6 +102,8 @@ def ordered(work: Callable[[Task], Result], tasks: list[Task], jobs: int, chunk:
 
     A batch whose worker is silent for longer than ``patience_per_task_s`` per task
     (plus 30 s) counts as stuck; None: only a dead worker is noticed."""
+    from multiprocessing.connection import wait  # here, as in _context: cold start
+
     context = _context()
     pending = deque((start, tasks[start:start + chunk]) for start in range(0, len(tasks), chunk))
     done: dict[int, list] = {}

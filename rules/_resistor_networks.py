@@ -7,14 +7,15 @@ Not a rule module (the leading underscore keeps the loader away from it).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, replace
+from dataclasses import replace
+from checker.record import record
 
 from checker.analysis.topology import classify
 from checker.model import OpAmp, Passive, Stage
 from checker.preferred import ladder, nearest, series_for_tolerance
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Network:
     """One op-amp's resistors, by the role that decides what a bad value costs."""
 

@@ -15,7 +15,8 @@ voltage sits in series with the non-inverting input; bias currents flow into eac
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, replace
+from dataclasses import field, replace
+from checker.record import record
 
 import numpy as np
 
@@ -24,7 +25,7 @@ from checker.model import OpAmp, Stage
 DEFAULT_OPEN_LOOP_GAIN = 1e6  # used only where a part gives none
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Conductance:
     a: int
     b: int
@@ -32,7 +33,7 @@ class Conductance:
     element: str  # designator or a label such as "U1.Rin"
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Capacitance:
     a: int
     b: int
@@ -40,7 +41,7 @@ class Capacitance:
     element: str
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Branch:
     """A branch-current unknown: a voltage source (``henries`` 0) or an inductor."""
 
@@ -50,7 +51,7 @@ class Branch:
     henries: float = 0.0
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class GainBlock:
     """An op-amp's controlled source: V(out_int) = A(s) * (V(in+) - V(in-) + Vos)."""
 
@@ -80,7 +81,7 @@ class GainBlock:
         return gain
 
 
-@dataclass
+@record
 class Circuit:
     """A stage as primitives over numbered nodes, ready to stamp."""
 

@@ -39,7 +39,7 @@ exhaustive, and the report says which was done.
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
+from checker.record import record
 
 import numpy as np
 
@@ -49,7 +49,7 @@ RELATIVE = 1e-10  # a flip must move the objective by more than this share to co
 Values = dict[str, np.ndarray]
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Corner:
     signs: np.ndarray  # each resistor's end: +1 high, -1 low
     objective: float  # the (maximised) objective there

@@ -9,7 +9,7 @@ and Engineers, Cambridge University Press 2011, section 6.4).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from checker.record import record
 
 from checker.model import OpAmp
 
@@ -17,7 +17,7 @@ PARAMETER_NAMES = {"offset_voltage_v": "offset voltage", "bias_current_a": "bias
                    "offset_current_a": "offset current"}
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class DcErrorTerms:
     """One op-amp's contribution to the DC error at a net (volts, SI)."""
 

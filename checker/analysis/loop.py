@@ -15,7 +15,7 @@ z / (1 - A_k z) and T = A_k w; w is the feedback factor beta, so 1/w is the nois
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from checker.record import record
 
 import numpy as np
 
@@ -33,7 +33,7 @@ def return_ratio(gain: np.ndarray, z: np.ndarray) -> tuple[np.ndarray, np.ndarra
     return T, beta
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Margins:
     crossover_hz: float | None  # None: |T| never falls through 1 (or never reaches it)
     phase_margin_deg: float | None

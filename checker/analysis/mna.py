@@ -17,7 +17,7 @@ excitations; one ``np.linalg.solve`` call covers every frequency and excitation.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from checker.record import record
 
 import numpy as np
 
@@ -30,7 +30,7 @@ class SingularCircuit(Exception):
     """The stage's equations have no unique solution; the message names the culprit."""
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Matrices:
     G: np.ndarray  # (n, n) conductances and branch incidences
     C: np.ndarray  # (n, n) capacitances and -L of inductor branches

@@ -11,7 +11,7 @@ integral (trapezoid rule on a log grid, the white density extended to 0 Hz below
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from checker.record import record
 
 import numpy as np
 
@@ -21,14 +21,14 @@ BOLTZMANN = 1.380649e-23  # J/K, exact in the SI (2019 redefinition; CODATA)
 INTERNAL = (".Rin", ".Ro")  # parts of the op-amp model, not resistors on the board
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class NoiseContribution:
     name: str  # "R2 thermal", "U1 voltage noise", "U1 current noise (in-)"
     element: str
     vrms: float
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class NoiseResult:
     band_low_hz: float
     band_high_hz: float
@@ -58,7 +58,7 @@ def thermal_density(resistance_ohm: float, temperature_k: float) -> float:
     return math.sqrt(4 * BOLTZMANN * temperature_k * resistance_ohm)
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class NoiseDensity:
     """Output noise density over a frequency grid, in total and per noise source."""
 

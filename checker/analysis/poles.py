@@ -20,7 +20,7 @@ unknowns plus one per op-amp with a GBW.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from checker.record import record
 
 import numpy as np
 
@@ -33,7 +33,7 @@ FASTEST_POLE_HZ = 1e12
 RIGHT_HALF_TOLERANCE = 1e-9  # Re(s) > this x |s| counts as the right half-plane
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Pair:
     """A complex-conjugate pole pair s = -zeta wn +/- j wn sqrt(1 - zeta^2)."""
 
@@ -66,7 +66,7 @@ class Pair:
         return 20 * math.log10(1 / (2 * self.damping * math.sqrt(1 - self.damping ** 2)))
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class StagePoles:
     poles: np.ndarray  # complex, rad/s, (P,): every finite natural frequency
     right_half: np.ndarray  # those with Re(s) > 0 (growing), (R,)

@@ -5,7 +5,7 @@ floats, or complex arrays over the analysis grid (shape (F,)).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from checker.record import record
 
 import numpy as np
 
@@ -13,7 +13,7 @@ from checker.analysis.loop import Margins
 from checker.model import Source
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class AnalysisOptions:
     """Knobs of the analysis; the engine fills them from configuration."""
 
@@ -25,7 +25,7 @@ class AnalysisOptions:
     points: int = 80
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class AnalysisProblem:
     """A structural reason the stage cannot be solved as drawn, naming nets or elements."""
 
@@ -36,7 +36,7 @@ class AnalysisProblem:
     kind: str = "singular"  # "singular" | "output-on-rail" | "floating"
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class LoopFigures:
     """One op-amp's loop, from its return ratio T(f)."""
 
@@ -87,7 +87,7 @@ class LoopFigures:
         return self.loop_gain_dc <= -1.0
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class SourceFigures:
     """What one signal source sees and what it gets at the stage output."""
 
@@ -114,7 +114,7 @@ class SourceFigures:
         return float(20 * np.log10(abs(self.gain_mid) / abs(self.gain_from_source_mid)))
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class NodeRange:
     """A net's DC voltage over the sources' ranges, with offset and bias errors."""
 
@@ -151,7 +151,7 @@ class NodeRange:
         return value
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class OutputCurrent:
     """An op-amp's output current over the sources' ranges (positive: sourced)."""
 

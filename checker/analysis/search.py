@@ -15,7 +15,7 @@ one is returned with its margin.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from checker.record import record
 
 import numpy as np
 
@@ -25,7 +25,7 @@ from checker.analysis.updates import loop_gain_candidates, margins_with_admittan
 CONFIRMATIONS = 6  # exact margins solved at most per search
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Found:
     value: float  # the chosen candidate (SI)
     margin_deg: float  # its confirmed phase margin

@@ -12,7 +12,7 @@ requirements.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from checker.record import record
 
 import numpy as np
 
@@ -22,7 +22,7 @@ from checker.analysis.spread import Signal
 PAIR_MIN_REJECTION = 10.0  # 20 dB: a summing stage of mixed signs stays two signals
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class SignalFigures:
     """One signal's gain from the source(s) to the stage output."""
 

@@ -20,7 +20,7 @@ so a verdict and the rule that explains it read the same numbers.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from checker.record import record
 
 import numpy as np
 
@@ -31,7 +31,7 @@ from checker.analysis.tolerance import corner_values, transfer_samples, uniform_
 Signal = tuple[tuple[int, float], ...]
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class SpreadOptions:
     """How a spread is sampled: the settings of the rules that read it."""
 
@@ -61,7 +61,7 @@ def _real(values: np.ndarray) -> np.ndarray:
 ENUMERATION, SENSITIVITY, MONTE_CARLO = "enumeration", "sensitivity", "monte-carlo"
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class WorstGain:
     gain: float  # the worst sample's gain
     error: float  # |gain / required - 1| there
@@ -71,7 +71,7 @@ class WorstGain:
     verified: bool = True  # SENSITIVITY: no single resistor's flip makes it worse
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class WorstRejection:
     cmrr: float  # |Ad/Acm| at the worst sample (inf where Acm = 0)
     differential: float  # |Ad| there

@@ -27,7 +27,7 @@ from __future__ import annotations
 
 import functools
 import itertools
-from dataclasses import dataclass
+from checker.record import record
 
 import numpy as np
 
@@ -165,7 +165,7 @@ def _solver(base, B, a, b, rows, low_rank: bool):
                    np.array([position[int(r)] for r in rows], dtype=np.int64))
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class _Sparse:
     lu: BatchedLU
     base_values: np.ndarray  # (entries,) the nominal matrix's stored entries

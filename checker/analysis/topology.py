@@ -9,12 +9,12 @@ feedback.
 from __future__ import annotations
 
 from collections import deque
-from dataclasses import dataclass
+from checker.record import record
 
 from checker.model import OpAmp, Passive, Stage
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Topology:
     name: str
     feedback_elements: tuple[str, ...] = ()  # passives from the output to the inverting input

@@ -17,17 +17,18 @@ A form is ``(keyword positional... (child ...)...)``:
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import field
+from checker.record import record
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Child:
     key: str
     shape: str  # "scalar" | "pair" | name of a Form
     repeated: bool = False
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Form:
     positional: tuple[str, ...] = ()
     children: dict[str, Child] = field(default_factory=dict)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import os
 import stat
-from dataclasses import dataclass
+from checker.record import record
 
 from checker.io.json_reader import read_json
 from checker.io.positions import InputErrors, InputProblem, LineIndex, Path, Position
@@ -16,7 +16,7 @@ PART_ENDINGS = (".parts", ".parts.json")
 MAX_FILE_BYTES = 4 * 1024 * 1024
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class ParsedFile:
     """A file's validated plain tree and the position of each of its nodes."""
 

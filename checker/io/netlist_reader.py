@@ -23,7 +23,8 @@ every problem located (at most MAX_REPORTED).
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass, field
+from dataclasses import field
+from checker.record import record
 
 from checker.io.positions import InputErrors, InputProblem
 
@@ -36,7 +37,7 @@ _WORD = re.compile(r"[^\s(),=;]+|[(),=]")
 _FUNCTIONS = {"sin", "pulse", "pwl", "exp", "sffm", "am", "trrandom", "trnoise"}
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Word:
     """One word of a card and where it starts (1-based line and column)."""
 
@@ -50,7 +51,7 @@ class Word:
         return self.text.casefold()
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Parameter:
     """A ``name=value`` pair on a card."""
 
@@ -58,7 +59,7 @@ class Parameter:
     value: Word
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Card:
     """What every element record shares: its name word and the subcircuit it is in."""
 
@@ -78,7 +79,7 @@ class Card:
         return self.name.column
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class TwoTerminal(Card):
     """``R``, ``C`` or ``L``: two nodes, a value, then extras and parameters."""
 
@@ -88,7 +89,7 @@ class TwoTerminal(Card):
     parameters: tuple[Parameter, ...] = ()
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class SourceCard(Card):
     """``V`` or ``I``: two nodes, then an optional DC value, AC part and function."""
 
@@ -100,7 +101,7 @@ class SourceCard(Card):
     extras: tuple[Word, ...] = ()
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Instance(Card):
     """``X``: a subcircuit instance: nodes in order, the subcircuit's name, parameters."""
 
@@ -109,14 +110,14 @@ class Instance(Card):
     parameters: tuple[Parameter, ...] = ()
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class OtherCard(Card):
     """An element of a kind ampcheck does not analyse; its words as written."""
 
     words: tuple[Word, ...] = ()
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Command:
     """A dot-command other than the structural ones: its name (``include``) and words."""
 
@@ -129,7 +130,7 @@ class Command:
         return self.name.text[1:].casefold()
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Subcircuit:
     """A ``.subckt`` definition: its name, pin nodes and the cards inside."""
 
@@ -139,7 +140,7 @@ class Subcircuit:
     end_line: int
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Netlist:
     """A netlist file as records: top-level cards, definitions, other dot-commands."""
 

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import json
 import re
-from dataclasses import dataclass
+from checker.record import record
 
 from checker.io.positions import Path, Position
 
@@ -35,7 +35,7 @@ def _match_at(pattern: re.Pattern[str], text: str, offset: int) -> re.Match[str]
     return match
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Edit:
     start: int
     end: int

@@ -3,12 +3,12 @@
 from __future__ import annotations
 
 import bisect
-from dataclasses import dataclass
+from checker.record import record
 
 Path = tuple  # a path into the plain tree: ("stages", 0, "resistors", 1, "value")
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Position:
     """A 1-based line and column in a file."""
 
@@ -16,7 +16,7 @@ class Position:
     column: int
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class InputProblem:
     """Something wrong with an input file, located as precisely as the reader could."""
 

@@ -30,7 +30,8 @@ from __future__ import annotations
 import os
 import re
 from collections import Counter
-from dataclasses import dataclass, field
+from dataclasses import field
+from checker.record import record
 
 from checker.io.netlist_reader import (Card, Command, Instance, Netlist, OtherCard,
                                        SourceCard, TwoTerminal, Word)
@@ -71,7 +72,7 @@ _NODE_COUNT = {"D": 2, "Q": 3, "M": 4, "J": 3, "Z": 3, "E": 4, "F": 2, "G": 4, "
                "N": 0, "P": 0}
 
 
-@dataclass
+@record
 class Extraction:
     """A netlist's stages as a stage-format tree, positions at the netlist's lines, the
     notes per stage, and per element the comment a stage-file writer puts beside it."""
@@ -84,7 +85,7 @@ class Extraction:
     links: list[tuple[str, str, str]] = field(default_factory=list)
 
 
-@dataclass
+@record
 class _Passive:
     ref: str
     letter: str
@@ -94,7 +95,7 @@ class _Passive:
     card: TwoTerminal
 
 
-@dataclass
+@record
 class _OpAmp:
     index: int
     ref: str
@@ -111,7 +112,7 @@ class _OpAmp:
         return (self.pins["in+"], self.pins["in-"])
 
 
-@dataclass
+@record
 class _Signal:
     """A V or I source of the netlist that is a signal, not a rail."""
 
@@ -121,7 +122,7 @@ class _Signal:
     tree: dict
 
 
-@dataclass
+@record
 class _Island:
     nets: set[str] = field(default_factory=set)
     passives: list[_Passive] = field(default_factory=list)

@@ -21,7 +21,8 @@ values.
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass, field
+from dataclasses import field
+from checker.record import record
 from functools import lru_cache
 
 from checker.io.grammar import FORMS, PART_PARAMETERS, REQUIREMENTS, Child, Form
@@ -88,7 +89,7 @@ _SOURCE_KINDS = {"range": "signal", "amplitude": "signal", "offset": "signal",
 _LOAD_KINDS = {"resistance": "resistance", "capacitance": "capacitance"}
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class OpAmpModel:
     """A subcircuit (or model) name that means an op-amp: its part and pin order."""
 
@@ -99,7 +100,7 @@ class OpAmpModel:
     origin: Origin
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class EdgeDeclaration:
     """What sits at a net: a source driving it and/or a load on it (stage-format trees
     without their net)."""
@@ -112,7 +113,7 @@ class EdgeDeclaration:
     load_origin: Origin | None = None
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class StageDeclaration:
     """Options for the stage an op-amp ends up in."""
 
@@ -126,7 +127,7 @@ class StageDeclaration:
     waive: tuple[dict, ...] = ()
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class Scope:
     """Rails, grounds, edge and stage declarations: the whole map's, or one board's."""
 
@@ -141,7 +142,7 @@ class Scope:
                      {**self.edges, **board.edges}, {**self.stages, **board.stages})
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class NetlistMap:
     path: str
     models: dict[str, OpAmpModel] = field(default_factory=dict)  # by case-folded name

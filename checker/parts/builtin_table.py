@@ -6,7 +6,7 @@ only while SOURCE_DIGEST matches generic.parts (tests/test_part_table.py).
 
 from checker.model import OpAmpPart, Origin
 
-SOURCE_DIGEST = "d9f8d7228764f5573126c8124f8ecfb0bb6f311cd23c35c331380296b4b3c744"
+SOURCE_DIGEST = "crc32-701a12e3-5623"
 
 PARTS = {
     'gp-bipolar': OpAmpPart(name='gp-bipolar', family='general-purpose bipolar', note='Generic class values, from memory; not a real part.', open_loop_gain=200000.0, gbw_hz=1000000.0, second_pole_hz=None, slew_rate_v_per_s=500000.0, offset_voltage_v=0.002, bias_current_a=8e-08, offset_current_a=2e-08, input_capacitance_cm_f=2e-12, input_capacitance_diff_f=1.5e-12, input_resistance_ohm=2000000.0, output_resistance_ohm=75.0, output_headroom_high_v=1.5, output_headroom_low_v=1.5, headroom_load_ohm=10000.0, output_current_a=0.025, input_range_low_v=2.0, input_range_high_v=-2.0, supply_min_v=10.0, supply_max_v=36.0, supply_abs_max_v=40.0, voltage_noise_v_per_rthz=2e-08, current_noise_a_per_rthz=5e-13, min_stable_gain=None, builtin=True, origin=Origin(path='<built-in>/generic.parts', line=14, column=1)),

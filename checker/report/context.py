@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from checker.record import record
 
 from checker.findings import Finding, Severity
 from checker.records import Caution
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class ReportContext:
     tool_version: str
     fail_on: Severity | None  # None: never fail

@@ -13,7 +13,7 @@ op-amp output, the noise of ``stage_noise`` with its density from
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from checker.record import record
 
 import numpy as np
 
@@ -40,7 +40,7 @@ NOISE_POINTS = 60  # points of the noise-density plot (the verdict integrates on
 NOISE_CONTRIBUTORS = 3  # the largest contributors drawn beside the total
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class LoopCurve:
     label: str
     frequencies_hz: np.ndarray  # (F,)
@@ -49,14 +49,14 @@ class LoopCurve:
     withheld: bool = False  # a fix the re-check withheld (it brings in an error)
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class LoopView:
     ref: str
     curve: LoopCurve
     fixes: tuple[LoopCurve, ...]
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class ResponseView:
     label: str  # the signal: "conductivity cell", "bridge-a − bridge-b"
     frequencies_hz: np.ndarray
@@ -69,7 +69,7 @@ class ResponseView:
     edges: tuple[float | None, float | None]  # -3 dB edges (low, high)
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class RangeRow:
     label: str  # "U1 out"
     rail_low: float
@@ -82,13 +82,13 @@ class RangeRow:
     high: float
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class RangeView:
     rows: tuple[RangeRow, ...]
     required_headroom_v: float | None
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class NoiseView:
     frequencies_hz: np.ndarray
     total: np.ndarray  # V/sqrt(Hz), (F,)
@@ -99,7 +99,7 @@ class NoiseView:
     missing: tuple[str, ...]
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class SpreadView:
     quantity: str  # "gain" or "cmrr"
     label: str
@@ -111,7 +111,7 @@ class SpreadView:
     unit: str  # "V/V" or "dB"
 
 
-@dataclass(frozen=True)
+@record(frozen=True)
 class PoleView:
     poles: np.ndarray  # rad/s, complex
     stable: bool
