@@ -58,6 +58,7 @@ class Solution:
         self.stage = stage
         self.options = options
         self._unreferenced_cache: dict[bool, tuple[int, ...]] = {}
+        self._frequency_cache: dict[bytes, dict] = {}
 
     # -- structure -------------------------------------------------------------------
     @cached_property
@@ -193,28 +194,84 @@ class Solution:
         kept unknowns, dropped unknowns)."""
         return without_rails(self.ac_matrices, self.circuit)
 
-    def solve(self, frequencies: np.ndarray, B: np.ndarray) -> np.ndarray:
-        """Solve the AC system at ``frequencies`` (F,) for right-hand sides ``B``, either
-        (n, m) for every frequency or (F, n, m); returns X (F, n, m)."""
-        self.require_solvable()
-        frequencies = np.asarray(frequencies, dtype=float)
-        s = 2j * np.pi * frequencies
-        gains = self.open_loop_gains(frequencies)
-        matrices, keep, dropped = self.reduced
+    def _at(self, frequencies: np.ndarray) -> dict:
+        """The cache of one frequency array (keyed by its bytes): its open-loop gains,
+        its system stacks (whole and without the rails) and the columns solved there."""
+        key = frequencies.tobytes()
+        entry = self._frequency_cache.get(key)
+        if entry is None:
+            entry = self._frequency_cache[key] = {"columns": {}}
+        return entry
+
+    def _stack(self, frequencies: np.ndarray, entry: dict, whole: bool) -> np.ndarray:
+        """Y (F, n, n) at ``frequencies``, the whole system or the one without the
+        rails, assembled once per frequency array."""
+        kind = "whole" if whole else "reduced"
+        if kind not in entry:
+            if "gains" not in entry:
+                entry["gains"] = self.open_loop_gains(frequencies)
+            matrices = self.ac_matrices if whole else self.reduced[0]
+            entry[kind] = system_stack(matrices, entry["gains"], 2j * np.pi * frequencies)
+        return entry[kind]
+
+    def _solve_new(self, frequencies: np.ndarray, entry: dict, B: np.ndarray) -> np.ndarray:
+        """X (F, n, m) for right-hand sides B, (n, m) or (F, n, m), not cached."""
+        _matrices, keep, dropped = self.reduced
         n = self.circuit.size
         if not dropped.size or B[..., dropped, :].any():
             # nothing to drop, or an excitation on a rail: solve the whole system
-            Y = system_stack(self.ac_matrices, gains, s)
             if B.ndim == 2:
                 B = np.broadcast_to(B, (frequencies.size,) + B.shape)
-            return solve(Y, B)
-        Y = system_stack(matrices, gains, s)
+            return solve(self._stack(frequencies, entry, whole=True), B)
         B = B[..., keep, :]
         if B.ndim == 2:
             B = np.broadcast_to(B, (frequencies.size,) + B.shape)
         X = np.zeros((frequencies.size, n, B.shape[-1]), dtype=complex)
-        X[:, keep, :] = solve(Y, B)
+        X[:, keep, :] = solve(self._stack(frequencies, entry, whole=False), B)
         return X
+
+    def solve(self, frequencies: np.ndarray, B: np.ndarray) -> np.ndarray:
+        """Solve the AC system at ``frequencies`` (F,) for right-hand sides ``B``, either
+        (n, m) for every frequency or (F, n, m); returns X (F, n, m).
+
+        The system of each frequency array is assembled once, and a column B (n,)
+        solved before at the same frequencies is read back, not solved again (fix
+        searches and refinements ask for the same columns many times)."""
+        self.require_solvable()
+        frequencies = np.asarray(frequencies, dtype=float)
+        entry = self._at(frequencies)
+        if B.ndim != 2:
+            return self._solve_new(frequencies, entry, B)
+        columns = entry["columns"]
+        keys = [B[:, j].tobytes() for j in range(B.shape[1])]
+        new = [j for j, key in enumerate(keys) if key not in columns]
+        if new:
+            unique = list(dict.fromkeys(keys[j] for j in new))
+            first = [keys.index(key) for key in unique]
+            X_new = self._solve_new(frequencies, entry, B[:, first])
+            for k, key in enumerate(unique):
+                columns[key] = X_new[:, :, k]
+        return np.stack([columns[key] for key in keys], axis=2)
+
+    def node_transfers(self, frequencies: np.ndarray, node: int, B: np.ndarray
+                       ) -> np.ndarray:
+        """The voltage of node ``node`` (not ground) for each right-hand side of B
+        (n, m) at ``frequencies`` (F,): (F, m), from one solve of the transposed system
+        whatever m: e_node^T Y^-1 B = (Y^-T e_node)^T B, the adjoint network (S. W.
+        Director and R. A. Rohrer, "The generalized adjoint network and network
+        sensitivities", IEEE Trans. Circuit Theory, 1969)."""
+        self.require_solvable()
+        frequencies = np.asarray(frequencies, dtype=float)
+        entry = self._at(frequencies)
+        _matrices, keep, dropped = self.reduced
+        e = np.zeros((self.circuit.size, 1))
+        e[node - 1, 0] = 1.0
+        whole = not dropped.size or bool(B[dropped].any()) or node - 1 in dropped
+        if not whole:
+            B, e = B[keep], e[keep]
+        Y = self._stack(frequencies, entry, whole)
+        z = solve(np.swapaxes(Y, 1, 2), np.broadcast_to(e, (frequencies.size,) + e.shape))
+        return z[:, :, 0] @ B
 
     def solve_excitations(self, frequencies: np.ndarray, names) -> np.ndarray:
         """X (F, n, len(names)) for the named excitations at ``frequencies``."""
