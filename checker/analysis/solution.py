@@ -194,6 +194,11 @@ class Solution:
         kept unknowns, dropped unknowns)."""
         return without_rails(self.ac_matrices, self.circuit)
 
+    @cached_property
+    def _supply_branch_rows(self) -> list[int]:
+        circuit = self.circuit
+        return [circuit.row_of_branch(branch) for branch in circuit.supply_branch.values()]
+
     def _at(self, frequencies: np.ndarray) -> dict:
         """The cache of one frequency array (keyed by its bytes): its open-loop gains,
         its system stacks (whole and without the rails) and the columns solved there."""
@@ -259,14 +264,18 @@ class Solution:
         (n, m) at ``frequencies`` (F,): (F, m), from one solve of the transposed system
         whatever m: e_node^T Y^-1 B = (Y^-T e_node)^T B, the adjoint network (S. W.
         Director and R. A. Rohrer, "The generalized adjoint network and network
-        sensitivities", IEEE Trans. Circuit Theory, 1969)."""
+        sensitivities", IEEE Trans. Circuit Theory, 1969). A current into a rail moves
+        no other voltage (the rail is held by its ideal source), so B's rows of the
+        rail nodes drop out with the rails; only a right-hand side on a supply's branch
+        row, or a rail as ``node``, needs the whole system."""
         self.require_solvable()
         frequencies = np.asarray(frequencies, dtype=float)
         entry = self._at(frequencies)
         _matrices, keep, dropped = self.reduced
         e = np.zeros((self.circuit.size, 1))
         e[node - 1, 0] = 1.0
-        whole = not dropped.size or bool(B[dropped].any()) or node - 1 in dropped
+        branches = self._supply_branch_rows
+        whole = not dropped.size or bool(B[branches].any()) or node - 1 in dropped
         if not whole:
             B, e = B[keep], e[keep]
         Y = self._stack(frequencies, entry, whole)
