@@ -58,7 +58,7 @@ class Solution:
         self.stage = stage
         self.options = options
         self._unreferenced_cache: dict[bool, tuple[int, ...]] = {}
-        self._frequency_cache: dict[bytes, dict] = {}
+        self._frequency_cache: dict[tuple, dict] = {}
 
     # -- structure -------------------------------------------------------------------
     @cached_property
@@ -120,8 +120,18 @@ class Solution:
         return frequency_grid(self.stage, self.options.points)
 
     def open_loop_gains(self, frequencies: np.ndarray) -> np.ndarray:
-        """A_k(j 2 pi f) of every op-amp: (F, K) complex."""
-        s = 2j * np.pi * np.asarray(frequencies)
+        """A_k(j 2 pi f) of every op-amp: (F, K) complex, read-only (computed once per
+        frequency array)."""
+        frequencies = np.asarray(frequencies, dtype=float)
+        entry = self._at(frequencies)
+        gains = entry.get("gains")
+        if gains is None:
+            gains = entry["gains"] = self._gains_of(frequencies)
+            gains.flags.writeable = False
+        return gains
+
+    def _gains_of(self, frequencies: np.ndarray) -> np.ndarray:
+        s = 2j * np.pi * frequencies
         blocks = self.circuit.gain_blocks
         if len(blocks) == 1:
             return blocks[0].gain(s)[:, None]
@@ -202,7 +212,7 @@ class Solution:
     def _at(self, frequencies: np.ndarray) -> dict:
         """The cache of one frequency array (keyed by its bytes): its open-loop gains,
         its system stacks (whole and without the rails) and the columns solved there."""
-        key = frequencies.tobytes()
+        key = (frequencies.shape, frequencies.tobytes())
         entry = self._frequency_cache.get(key)
         if entry is None:
             entry = self._frequency_cache[key] = {"columns": {}}
@@ -213,10 +223,9 @@ class Solution:
         rails, assembled once per frequency array."""
         kind = "whole" if whole else "reduced"
         if kind not in entry:
-            if "gains" not in entry:
-                entry["gains"] = self.open_loop_gains(frequencies)
             matrices = self.ac_matrices if whole else self.reduced[0]
-            entry[kind] = system_stack(matrices, entry["gains"], 2j * np.pi * frequencies)
+            entry[kind] = system_stack(matrices, self.open_loop_gains(frequencies),
+                                       2j * np.pi * frequencies)
         return entry[kind]
 
     def _solve_new(self, frequencies: np.ndarray, entry: dict, B: np.ndarray) -> np.ndarray:
@@ -250,6 +259,12 @@ class Solution:
         columns = entry["columns"]
         keys = [B[:, j].tobytes() for j in range(B.shape[1])]
         new = [j for j, key in enumerate(keys) if key not in columns]
+        if len(new) == len(keys) and len(set(keys)) == len(keys):  # all new: one solve
+            X = self._solve_new(frequencies, entry, B)
+            kept = X.copy()  # the caller owns X; the cache keeps its own
+            for k, key in enumerate(keys):
+                columns[key] = kept[:, :, k]
+            return X
         if new:
             unique = list(dict.fromkeys(keys[j] for j in new))
             first = [keys.index(key) for key in unique]
@@ -356,7 +371,13 @@ class Solution:
         """DC voltage at ``net`` per unit of excitation ``name``."""
         index, rows = self._dc_table
         node = self.circuit.node(net)
-        return 0.0 if node == 0 else rows[node - 1][index[_named(name)]]
+        if node == 0:
+            return 0.0
+        try:
+            column = index[name]  # an Excitation, or a plain pair equal to one
+        except (KeyError, TypeError):
+            column = index[_named(name)]
+        return rows[node - 1][column]
 
     def dc_unknown(self, row: int, name) -> float:
         """Unknown ``row`` (a node voltage or a branch current) at DC per unit of
