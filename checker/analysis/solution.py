@@ -257,7 +257,8 @@ class Solution:
         if B.ndim != 2:
             return self._solve_new(frequencies, entry, B)
         columns = entry["columns"]
-        keys = [B[:, j].tobytes() for j in range(B.shape[1])]
+        kind = B.dtype.str
+        keys = [(kind, B[:, j].tobytes()) for j in range(B.shape[1])]
         new = [j for j, key in enumerate(keys) if key not in columns]
         if len(new) == len(keys) and len(set(keys)) == len(keys):  # all new: one solve
             X = self._solve_new(frequencies, entry, B)
