@@ -59,6 +59,7 @@ class Solution:
         self.options = options
         self._unreferenced_cache: dict[bool, tuple[int, ...]] = {}
         self._frequency_cache: dict[tuple, dict] = {}
+        self._excitation_cache: dict[tuple, np.ndarray] = {}
 
     # -- structure -------------------------------------------------------------------
     @cached_property
@@ -170,8 +171,17 @@ class Solution:
         return vector
 
     def excitations(self, names) -> np.ndarray:
-        """Right-hand sides (n, m) of ``names``."""
-        return np.stack([self.excitation_vector(name) for name in names], axis=1)
+        """Right-hand sides (n, m) of ``names``, read-only (built once per list)."""
+        names = tuple(names)
+        try:
+            B = self._excitation_cache.get(names)
+        except TypeError:  # a name that is no hashable pair: built each time
+            return np.stack([self.excitation_vector(name) for name in names], axis=1)
+        if B is None:
+            B = np.stack([self.excitation_vector(name) for name in names], axis=1)
+            B.flags.writeable = False
+            self._excitation_cache[names] = B
+        return B
 
     @cached_property
     def grid_excitations(self) -> tuple[Excitation, ...]:
