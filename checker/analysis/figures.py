@@ -82,6 +82,10 @@ class Figures:
         """The AC system solved for right-hand sides B: Solution.solve."""
         return self.solution.solve(frequencies, B)
 
+    def node_transfers(self, frequencies: np.ndarray, node: int, B: np.ndarray) -> np.ndarray:
+        """Node ``node``'s voltage per right-hand side of B (n, m): Solution.node_transfers."""
+        return self.solution.node_transfers(frequencies, node, B)
+
     def node_response(self, net: str, column) -> np.ndarray:
         """AC voltage at ``net`` over the grid per unit of the excitation ``column``:
         ("source", i) for source i's EMF or current, ("output",) for 1 A into the output

@@ -112,10 +112,18 @@ def without_rails(matrices: Matrices, circuit: Circuit
 def system_stack(matrices: Matrices, gains: np.ndarray, s: np.ndarray) -> np.ndarray:
     """Y(s) for every frequency: (F, n, n) complex.
 
-    ``gains`` is (F, K): A_k(s) of each gain block at each frequency.
+    ``gains`` is (F, K): A_k(s) of each gain block at each frequency. On the j omega
+    axis (every AC solve) G and omega C are written straight into the real and imaginary
+    parts, the same numbers as G + s C without a complex product.
     """
-    Y = s.astype(complex)[:, None, None] * matrices.C  # one pass to a fresh complex stack
-    Y += matrices.G
+    s = np.asarray(s)
+    if not s.real.any():
+        Y = np.empty((s.size,) + matrices.C.shape, dtype=complex)
+        Y.real[...] = matrices.G
+        np.multiply(s.imag[:, None, None], matrices.C, out=Y.imag)
+    else:
+        Y = s.astype(complex)[:, None, None] * matrices.C  # one pass to a fresh stack
+        Y += matrices.G
     for k, row in enumerate(matrices.control_rows):
         if matrices.control_pos[k] >= 0:
             Y[:, row, matrices.control_pos[k]] -= gains[:, k]

@@ -82,8 +82,9 @@ class NoiseDensity:
 def noise_density(figures, frequencies_hz: np.ndarray, temperature_k: float = 300.0,
                   net: str | None = None) -> NoiseDensity:
     """Noise density at ``net`` (default the stage output) at ``frequencies_hz`` (F,,
-    all above 0 Hz): each source's transfer solved in one batched call, times its
-    density (module docstring)."""
+    all above 0 Hz): every source's transfer to the net from one solve of the
+    transposed system (Solution.node_transfers), times its density (module docstring).
+    The voltage noise's column is a unit at the gain block's row, times A(s)."""
     circuit = figures.circuit
     stage = figures.stage
     node = circuit.node(net or stage.output_net)
@@ -92,20 +93,23 @@ def noise_density(figures, frequencies_hz: np.ndarray, temperature_k: float = 30
     names: list[tuple[str, str]] = []
     densities: list[float] = []
     columns: list[np.ndarray] = []
+    scales: list[np.ndarray | float] = []  # each column's factor over the frequencies
 
-    def add(name: str, element: str, density_sq: float, column: np.ndarray) -> None:
+    def add(name: str, element: str, density_sq: float, column: np.ndarray,
+            scale: np.ndarray | float = 1.0) -> None:
         names.append((name, element))
         densities.append(density_sq)
         columns.append(column)
+        scales.append(scale)
 
     for item in circuit.conductances:
         if item.element.endswith(INTERNAL):
             continue
-        column = np.zeros((frequencies.size, n), dtype=complex)
+        column = np.zeros(n)
         if item.a:
-            column[:, item.a - 1] += 1.0
+            column[item.a - 1] += 1.0
         if item.b:
-            column[:, item.b - 1] -= 1.0
+            column[item.b - 1] -= 1.0
         add(f"{item.element} thermal", item.element,
             4 * BOLTZMANN * temperature_k * item.siemens, column)
     missing = []
@@ -115,23 +119,24 @@ def noise_density(figures, frequencies_hz: np.ndarray, temperature_k: float = 30
         if part.voltage_noise_v_per_rthz is None or part.current_noise_a_per_rthz is None:
             missing.append(block.ref)
         if part.voltage_noise_v_per_rthz:
-            column = np.zeros((frequencies.size, n), dtype=complex)
-            column[:, circuit.row_of_branch(circuit.gain_branch[block.ref])] = gains[:, k]
+            column = np.zeros(n)
+            column[circuit.row_of_branch(circuit.gain_branch[block.ref])] = 1.0
             add(f"{block.ref} voltage noise", block.ref, part.voltage_noise_v_per_rthz ** 2,
-                column)
+                column, gains[:, k])
         if part.current_noise_a_per_rthz:
             for pin, pin_node in (("in+", block.in_pos), ("in-", block.in_neg)):
                 if not pin_node:
                     continue
-                column = np.zeros((frequencies.size, n), dtype=complex)
-                column[:, pin_node - 1] = -1.0
+                column = np.zeros(n)
+                column[pin_node - 1] = -1.0
                 add(f"{block.ref} current noise ({pin})", block.ref,
                     part.current_noise_a_per_rthz ** 2, column)
     if not columns or node == 0:
         return NoiseDensity(frequencies, (), np.zeros((frequencies.size, 0)), tuple(missing))
-    B = np.stack(columns, axis=2)  # (F, n, m)
-    X = figures.solve_columns(frequencies, B)
-    transfer_sq = np.abs(X[:, node - 1, :]) ** 2  # (F, m)
+    B = np.stack(columns, axis=1)  # (n, m)
+    transfer = figures.node_transfers(frequencies, node, B)  # (F, m), one adjoint solve
+    transfer_sq = np.abs(transfer * np.stack(
+        [np.broadcast_to(scale, frequencies.shape) for scale in scales], axis=1)) ** 2
     power = transfer_sq * np.asarray(densities)[None, :]  # V^2/Hz per source
     return NoiseDensity(frequencies, tuple(names), power, tuple(missing))
 

@@ -58,6 +58,8 @@ class Solution:
         self.stage = stage
         self.options = options
         self._unreferenced_cache: dict[bool, tuple[int, ...]] = {}
+        self._frequency_cache: dict[tuple, dict] = {}
+        self._excitation_cache: dict[tuple, np.ndarray] = {}
 
     # -- structure -------------------------------------------------------------------
     @cached_property
@@ -119,8 +121,18 @@ class Solution:
         return frequency_grid(self.stage, self.options.points)
 
     def open_loop_gains(self, frequencies: np.ndarray) -> np.ndarray:
-        """A_k(j 2 pi f) of every op-amp: (F, K) complex."""
-        s = 2j * np.pi * np.asarray(frequencies)
+        """A_k(j 2 pi f) of every op-amp: (F, K) complex, read-only (computed once per
+        frequency array)."""
+        frequencies = np.asarray(frequencies, dtype=float)
+        entry = self._at(frequencies)
+        gains = entry.get("gains")
+        if gains is None:
+            gains = entry["gains"] = self._gains_of(frequencies)
+            gains.flags.writeable = False
+        return gains
+
+    def _gains_of(self, frequencies: np.ndarray) -> np.ndarray:
+        s = 2j * np.pi * frequencies
         blocks = self.circuit.gain_blocks
         if len(blocks) == 1:
             return blocks[0].gain(s)[:, None]
@@ -159,8 +171,17 @@ class Solution:
         return vector
 
     def excitations(self, names) -> np.ndarray:
-        """Right-hand sides (n, m) of ``names``."""
-        return np.stack([self.excitation_vector(name) for name in names], axis=1)
+        """Right-hand sides (n, m) of ``names``, read-only (built once per list)."""
+        names = tuple(names)
+        try:
+            B = self._excitation_cache.get(names)
+        except TypeError:  # a name that is no hashable pair: built each time
+            return np.stack([self.excitation_vector(name) for name in names], axis=1)
+        if B is None:
+            B = np.stack([self.excitation_vector(name) for name in names], axis=1)
+            B.flags.writeable = False
+            self._excitation_cache[names] = B
+        return B
 
     @cached_property
     def grid_excitations(self) -> tuple[Excitation, ...]:
@@ -193,28 +214,99 @@ class Solution:
         kept unknowns, dropped unknowns)."""
         return without_rails(self.ac_matrices, self.circuit)
 
-    def solve(self, frequencies: np.ndarray, B: np.ndarray) -> np.ndarray:
-        """Solve the AC system at ``frequencies`` (F,) for right-hand sides ``B``, either
-        (n, m) for every frequency or (F, n, m); returns X (F, n, m)."""
-        self.require_solvable()
-        frequencies = np.asarray(frequencies, dtype=float)
-        s = 2j * np.pi * frequencies
-        gains = self.open_loop_gains(frequencies)
-        matrices, keep, dropped = self.reduced
+    @cached_property
+    def _supply_branch_rows(self) -> list[int]:
+        circuit = self.circuit
+        return [circuit.row_of_branch(branch) for branch in circuit.supply_branch.values()]
+
+    def _at(self, frequencies: np.ndarray) -> dict:
+        """The cache of one frequency array (keyed by its bytes): its open-loop gains,
+        its system stacks (whole and without the rails) and the columns solved there."""
+        key = (frequencies.shape, frequencies.tobytes())
+        entry = self._frequency_cache.get(key)
+        if entry is None:
+            entry = self._frequency_cache[key] = {"columns": {}}
+        return entry
+
+    def _stack(self, frequencies: np.ndarray, entry: dict, whole: bool) -> np.ndarray:
+        """Y (F, n, n) at ``frequencies``, the whole system or the one without the
+        rails, assembled once per frequency array."""
+        kind = "whole" if whole else "reduced"
+        if kind not in entry:
+            matrices = self.ac_matrices if whole else self.reduced[0]
+            entry[kind] = system_stack(matrices, self.open_loop_gains(frequencies),
+                                       2j * np.pi * frequencies)
+        return entry[kind]
+
+    def _solve_new(self, frequencies: np.ndarray, entry: dict, B: np.ndarray) -> np.ndarray:
+        """X (F, n, m) for right-hand sides B, (n, m) or (F, n, m), not cached."""
+        _matrices, keep, dropped = self.reduced
         n = self.circuit.size
         if not dropped.size or B[..., dropped, :].any():
             # nothing to drop, or an excitation on a rail: solve the whole system
-            Y = system_stack(self.ac_matrices, gains, s)
             if B.ndim == 2:
                 B = np.broadcast_to(B, (frequencies.size,) + B.shape)
-            return solve(Y, B)
-        Y = system_stack(matrices, gains, s)
+            return solve(self._stack(frequencies, entry, whole=True), B)
         B = B[..., keep, :]
         if B.ndim == 2:
             B = np.broadcast_to(B, (frequencies.size,) + B.shape)
         X = np.zeros((frequencies.size, n, B.shape[-1]), dtype=complex)
-        X[:, keep, :] = solve(Y, B)
+        X[:, keep, :] = solve(self._stack(frequencies, entry, whole=False), B)
         return X
+
+    def solve(self, frequencies: np.ndarray, B: np.ndarray) -> np.ndarray:
+        """Solve the AC system at ``frequencies`` (F,) for right-hand sides ``B``, either
+        (n, m) for every frequency or (F, n, m); returns X (F, n, m).
+
+        The system of each frequency array is assembled once, and a column B (n,)
+        solved before at the same frequencies is read back, not solved again (fix
+        searches and refinements ask for the same columns many times)."""
+        self.require_solvable()
+        frequencies = np.asarray(frequencies, dtype=float)
+        entry = self._at(frequencies)
+        if B.ndim != 2:
+            return self._solve_new(frequencies, entry, B)
+        columns = entry["columns"]
+        kind = B.dtype.str
+        keys = [(kind, B[:, j].tobytes()) for j in range(B.shape[1])]
+        new = [j for j, key in enumerate(keys) if key not in columns]
+        if len(new) == len(keys) and len(set(keys)) == len(keys):  # all new: one solve
+            X = self._solve_new(frequencies, entry, B)
+            kept = X.copy()  # the caller owns X; the cache keeps its own
+            for k, key in enumerate(keys):
+                columns[key] = kept[:, :, k]
+            return X
+        if new:
+            unique = list(dict.fromkeys(keys[j] for j in new))
+            first = [keys.index(key) for key in unique]
+            X_new = self._solve_new(frequencies, entry, B[:, first])
+            for k, key in enumerate(unique):
+                columns[key] = X_new[:, :, k]
+        return np.stack([columns[key] for key in keys], axis=2)
+
+    def node_transfers(self, frequencies: np.ndarray, node: int, B: np.ndarray
+                       ) -> np.ndarray:
+        """The voltage of node ``node`` (not ground) for each right-hand side of B
+        (n, m) at ``frequencies`` (F,): (F, m), from one solve of the transposed system
+        whatever m: e_node^T Y^-1 B = (Y^-T e_node)^T B, the adjoint network (S. W.
+        Director and R. A. Rohrer, "The generalized adjoint network and network
+        sensitivities", IEEE Trans. Circuit Theory, 1969). A current into a rail moves
+        no other voltage (the rail is held by its ideal source), so B's rows of the
+        rail nodes drop out with the rails; only a right-hand side on a supply's branch
+        row, or a rail as ``node``, needs the whole system."""
+        self.require_solvable()
+        frequencies = np.asarray(frequencies, dtype=float)
+        entry = self._at(frequencies)
+        _matrices, keep, dropped = self.reduced
+        e = np.zeros((self.circuit.size, 1))
+        e[node - 1, 0] = 1.0
+        branches = self._supply_branch_rows
+        whole = not dropped.size or bool(B[branches].any()) or node - 1 in dropped
+        if not whole:
+            B, e = B[keep], e[keep]
+        Y = self._stack(frequencies, entry, whole)
+        z = solve(np.swapaxes(Y, 1, 2), np.broadcast_to(e, (frequencies.size,) + e.shape))
+        return z[:, :, 0] @ B
 
     def solve_excitations(self, frequencies: np.ndarray, names) -> np.ndarray:
         """X (F, n, len(names)) for the named excitations at ``frequencies``."""
@@ -290,7 +382,13 @@ class Solution:
         """DC voltage at ``net`` per unit of excitation ``name``."""
         index, rows = self._dc_table
         node = self.circuit.node(net)
-        return 0.0 if node == 0 else rows[node - 1][index[_named(name)]]
+        if node == 0:
+            return 0.0
+        try:
+            column = index[name]  # an Excitation, or a plain pair equal to one
+        except (KeyError, TypeError):
+            column = index[_named(name)]
+        return rows[node - 1][column]
 
     def dc_unknown(self, row: int, name) -> float:
         """Unknown ``row`` (a node voltage or a branch current) at DC per unit of

@@ -87,7 +87,9 @@ def loop_with_admittances(figures: Figures, ref: str, changes, frequencies: np.n
         D = np.stack([np.broadcast_to(np.asarray(y, dtype=complex), (F,))
                       for _a, _b, y in changes], axis=1)  # (F, k)
         M = np.eye(size)[None] + rows[:, :, 1:] * D[:, None, :]
-        w = np.linalg.solve(M, rows[:, :, :1])[:, :, 0]
+        # one change (Sherman-Morrison): a division; a zero M is left to solve to report
+        w = rows[:, :, 0] / M[:, :, 0] if size == 1 and M.all() else \
+            np.linalg.solve(M, rows[:, :, :1])[:, :, 0]
         d = d + np.einsum("fk,fk->f", inputs[:, 1:], D * w)
     return return_ratio(figures.open_loop_gains(frequencies)[:, k_opamp], d)
 
