@@ -426,9 +426,9 @@ def cmd_check(args) -> int:
     try:
         paths, missing = discover(args.paths,
                                   lambda path: audit.netlist_map_path(path, request) is not None)
+        paths = _without_excluded(paths, args, request)  # reads each folder's configuration
     except ConfigError as error:
         raise UsageError(str(error)) from None
-    paths = _without_excluded(paths, args, request)
     if not paths and not missing:
         raise UsageError("no stage files (*.stage, *.stage.json) found in "
                          + ", ".join(args.paths))

@@ -71,6 +71,7 @@ def run(args) -> int:
         print(f"ampcheck mend: {path} is not mended: it does not read", file=sys.stderr)
         return EXIT_FINDINGS
     try:
+        audit.config_for(path, request)  # a broken configuration is the run's error
         result = audit.reviewed(path, request)
     except (ConfigError, RuleError) as error:
         raise MendError(str(error)) from None

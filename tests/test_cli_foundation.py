@@ -130,6 +130,19 @@ def test_check_of_a_folder_without_stage_files_is_a_usage_error(tmp_path, capsys
     assert_no_traceback(out, err)
 
 
+@pytest.mark.parametrize("name", ["ampcheck.toml", "pyproject.toml"])
+def test_a_broken_configuration_in_a_checked_folder_is_a_clear_usage_error(
+        tmp_path, capsys, name):
+    """A folder's configuration is read while the found files are filtered; its TOML
+    error must reach the user with file, line and column, never as an internal error."""
+    (tmp_path / "a.stage").write_text(GOOD_STAGE)
+    (tmp_path / name).write_text("[tool.ampcheck\nbad")
+    code, out, err = run(capsys, "check", str(tmp_path), "--no-progress")
+    assert code == 2 and out == ""
+    assert f"{tmp_path / name}: invalid TOML" in err and "line 1, column 15" in err
+    assert_no_traceback(out, err)
+
+
 def test_check_takes_a_named_file_whatever_its_ending(tmp_path, capsys):
     (tmp_path / "stage.txt").write_text(GOOD)
     _code, files, _err = check_json(capsys, str(tmp_path / "stage.txt"))

@@ -200,3 +200,14 @@ def test_values_are_written_in_the_file_s_style(example, value, ohms, unit, expe
 def test_tolerances_are_written_as_percentages():
     assert format_fraction(0.005) == "0.5%"
     assert format_fraction(0.0025) == "0.25%"
+
+
+def test_a_broken_configuration_stops_mend_with_its_file_and_line(tmp_path, capsys):
+    source = copy(tmp_path, "flood-alarm.stage")
+    (tmp_path / "ampcheck.toml").write_text("[tool.ampcheck\nbad")
+    before = digest(source)
+    code, out, err = run(capsys, str(source), "--diff")
+    assert code == 2 and out == ""
+    assert f"{tmp_path / 'ampcheck.toml'}: invalid TOML" in err and "line 1, column 15" in err
+    assert "does not build" not in err and "Traceback" not in err
+    assert digest(source) == before
