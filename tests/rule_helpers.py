@@ -33,6 +33,19 @@ def stage_text(text: str) -> str:
     return textwrap.dedent(text).lstrip("\n")
 
 
+def mesh_stage(opamp: str, elements: list[str]) -> str:
+    """Stage text of an inverting stage "mesh" (in+ at ground, feedback node fb, output
+    out, +-15 V) whose resistor network is ``elements``; one source at net in, 10k load."""
+    return stage_text(f"""
+        (version 1)
+        (stage mesh (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 {opamp} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          {' '.join(elements)}
+          (source in (range -0.1V 0.1V) (band 0Hz 10Hz) (impedance 50))
+          (load out (resistance 10k)))
+        """)
+
+
 def build(text: str) -> list[Stage]:
     """Every stage of a stage file given as text."""
     return build_stages(parse_text(stage_text(text), PATH), _LIBRARY)

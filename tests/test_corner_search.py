@@ -15,7 +15,7 @@ import random
 
 import numpy as np
 import pytest
-from rule_helpers import figures_of, only, stage_text
+from rule_helpers import figures_of, mesh_stage, only, stage_text
 
 from checker.analysis.signal import stage_signals
 from checker.analysis.spread import (ENUMERATION, MONTE_CARLO, SENSITIVITY, GainSpread,
@@ -176,14 +176,7 @@ def random_stage(seed: int) -> str:
         ohms = rng.choice([1, 2.2, 4.7, 10, 22, 47, 100])
         tol = rng.choice(["0.5%", "1%", "5%", "10%"])
         parts.append(f"(resistor R{k} {a} {b} {ohms:g}k (tolerance {tol}))")
-    return stage_text(f"""
-(version 1)
-(stage mesh (ground gnd) (supply vcc 15V) (supply vee -15V)
-  (opamp U1 {OPAMP} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
-  {' '.join(parts)}
-  (source in (range -0.1V 0.1V) (band 0Hz 10Hz) (impedance 50))
-  (load out (resistance 10k)))
-""")
+    return mesh_stage(OPAMP, parts)
 
 
 def one_signed(gains: np.ndarray, k: int) -> bool:

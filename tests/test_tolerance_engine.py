@@ -13,7 +13,7 @@ import random
 
 import numpy as np
 import pytest
-from rule_helpers import build
+from rule_helpers import build, mesh_stage
 
 from checker.analysis import AnalysisOptions, analyse, tolerance
 from checker.analysis.mna import system_stack
@@ -33,14 +33,7 @@ def random_stage(seed: int, resistors: int = 18) -> str:
     parts += [f"(resistor R{resistors + 1 + k} n{k} gnd 100k)" for k in range(6)]
     parts += [f"(resistor R{resistors + 7 + k} n{k} {('in', 'fb')[k % 2]} 22k)"
               for k in range(6)]  # no net left dangling
-    return f"""
-        (version 1)
-        (stage mesh (ground gnd) (supply vcc 15V) (supply vee -15V)
-          (opamp U1 {OPAMP} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
-          {' '.join(parts)}
-          (source in (range -0.1V 0.1V) (band 0Hz 10Hz) (impedance 50))
-          (load out (resistance 10k)))
-        """
+    return mesh_stage(OPAMP, parts)
 
 
 def dense_reference(figures, values, sources, nets, frequency_hz):
