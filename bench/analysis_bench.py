@@ -9,17 +9,24 @@ Run: .venv/bin/python bench/analysis_bench.py
 
 from __future__ import annotations
 
+import os
 import statistics
+import sys
 import time
 
-import numpy as np
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from paired import hold_blas_to_one_thread  # noqa: E402
 
-from checker.analysis import AnalysisOptions, analyse
-from checker.analysis.mna import assemble, system_stack, without_rails
-from checker.analysis.poles import stage_poles
-from checker.build import build_stages
-from checker.io.load import parse_text
-from checker.parts.library import load_library
+hold_blas_to_one_thread()  # before numpy: the check's own setting, in process too
+
+import numpy as np  # noqa: E402
+
+from checker.analysis import AnalysisOptions, analyse  # noqa: E402
+from checker.analysis.mna import assemble, system_stack, without_rails  # noqa: E402
+from checker.analysis.poles import stage_poles  # noqa: E402
+from checker.build import build_stages  # noqa: E402
+from checker.io.load import parse_text  # noqa: E402
+from checker.parts.library import load_library  # noqa: E402
 
 ONE = """
 (stage one (supply vcc 12V) (supply vee -12V) (ground gnd)

@@ -18,11 +18,22 @@ import tempfile
 import time
 from dataclasses import dataclass, field
 
-# A bare numpy import with BLAS held to one thread, as ampcheck's main() holds it: an
-# import with the default threads spends CPU on spinning threads the check never starts.
+# BLAS held to one thread, as ampcheck's main() holds it (checker/cli.py): with the
+# default threads numpy spends CPU on spinning threads the check never starts, and a
+# large product (a Monte Carlo's) runs threaded, so CPU time would count both.
+BLAS_THREAD_VARIABLES = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+def hold_blas_to_one_thread() -> None:
+    """As ampcheck's main(): effective only before numpy is first imported."""
+    for variable in BLAS_THREAD_VARIABLES:
+        os.environ.setdefault(variable, "1")
+
+
+# A bare numpy import with BLAS held to one thread.
 NUMPY_IMPORT = [sys.executable, "-c",
                 "import os\n"
-                "for v in ('OPENBLAS_NUM_THREADS', 'OMP_NUM_THREADS', 'MKL_NUM_THREADS'):\n"
+                f"for v in {BLAS_THREAD_VARIABLES!r}:\n"
                 "    os.environ.setdefault(v, '1')\n"
                 "import numpy"]
 

@@ -26,13 +26,15 @@ import sys
 import tempfile
 import time
 
-import numpy as np
-
 HERE = os.path.dirname(os.path.abspath(__file__))
 sys.path.insert(0, HERE)
 
+from paired import hold_blas_to_one_thread, paired_functions, target  # noqa: E402
+
+hold_blas_to_one_thread()  # before numpy: the check's own setting, in process too
+
+import numpy as np  # noqa: E402
 from generate_stages import generate  # noqa: E402
-from paired import paired_functions, target  # noqa: E402
 
 from checker.analysis import AnalysisOptions, analyse  # noqa: E402
 from checker.analysis.mna import system_stack  # noqa: E402

@@ -15,7 +15,7 @@ import numpy as np
 import pytest
 from rule_helpers import build, mesh_stage
 
-from checker.analysis import AnalysisOptions, analyse, tolerance
+from checker.analysis import AnalysisOptions, analyse, lowrank, tolerance
 from checker.analysis.mna import system_stack
 
 OPAMP = "(part gp-bipolar)"
@@ -105,3 +105,39 @@ def test_chunking_does_not_change_a_sample(monkeypatch):
     monkeypatch.setattr(tolerance, "BATCH_BYTES", 4096)  # a few boards per chunk
     fresh = analyse(figures.stage, AnalysisOptions())
     np.testing.assert_array_equal(tolerance.transfer_samples(fresh, values, [0], nets), whole)
+
+
+def _reference_near_identity(delta, W, R):
+    """(I + D_s W)^{-1} D_s R by numpy.linalg.solve (LU with partial pivoting), (k, m, S)."""
+    M = delta[:, :, None] * W[None] + np.eye(W.shape[0])
+    return np.moveaxis(np.linalg.solve(M, delta[:, :, None] * R[None]), 0, -1)
+
+
+@pytest.mark.parametrize("k", [1, 2, 4, 7, 12])
+@pytest.mark.parametrize("complex_", [False, True])
+def test_the_samples_eliminated_together_match_a_pivoted_solve(k, complex_):
+    rng = np.random.default_rng(k)
+    W = rng.standard_normal((k, k)) * 1e3 + (1j * rng.standard_normal((k, k)) * 1e3
+                                              if complex_ else 0)
+    R = rng.standard_normal((k, 2))
+    delta = 1e-4 * rng.uniform(-1, 1, (500, k))  # tolerance-sized changes: near I
+    got = lowrank.near_identity_solve(delta, W, R)
+    np.testing.assert_allclose(got, _reference_near_identity(delta, W, R), rtol=1e-10,
+                               atol=1e-14)
+
+
+def test_a_sample_that_needs_a_row_exchange_is_solved_with_pivoting():
+    # I + D W = [[0, 1], [1, 1]] for the first sample: a zero leading pivot, which the
+    # elimination without row exchanges cannot pass; the second sample is near I
+    W = np.array([[-1.0, 1.0], [1.0, 0.0]])
+    delta = np.array([[1.0, 1.0], [1e-3, 2e-3]])
+    R = np.array([[1.0], [2.0]])
+    got = lowrank.near_identity_solve(delta, W, R)
+    np.testing.assert_allclose(got, _reference_near_identity(delta, W, R), rtol=1e-12)
+    np.testing.assert_allclose(got[:, 0, 0], [1.0, 1.0])  # [[0,1],[1,1]] y = [1, 2]
+
+
+def test_a_singular_sample_is_refused():
+    W = np.array([[-1.0, 0.0], [0.0, 0.0]])  # I + D W = [[0, 0], [0, 1]]
+    with pytest.raises(np.linalg.LinAlgError):
+        lowrank.near_identity_solve(np.array([[1.0, 0.5]]), W, np.ones((2, 1)))

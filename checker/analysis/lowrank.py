@@ -11,6 +11,10 @@ left at its nominal value, a change of 0, is fine):
 (Golub & Van Loan, Matrix Computations, 4th ed., §2.1.4, the Sherman-Morrison-Woodbury
 formula, with V = U D). So X_s = X0 - Z (I + D_s W)^{-1} D_s (U^T X0) with X0 = Y0^{-1} B,
 Z = Y0^{-1} U and W = U^T Z: per sample one k x k solve instead of an n x n one.
+
+The k x k systems I + D_s W of all samples are eliminated together, each step one array
+operation over the samples (:func:`near_identity_solve`), instead of one library call
+per sample.
 """
 
 from __future__ import annotations
@@ -24,6 +28,43 @@ def incidence_rows(a: np.ndarray, b: np.ndarray, values: np.ndarray) -> np.ndarr
     zero = np.zeros((1,) + values.shape[1:], dtype=values.dtype)
     padded = np.concatenate([values, zero])  # index -1 reads the zero row
     return padded[a] - padded[b]
+
+
+def near_identity_solve(delta: np.ndarray, W: np.ndarray, R: np.ndarray) -> np.ndarray:
+    """y_s = (I + D_s W)^{-1} D_s R for every row d_s of ``delta`` (S, k), D_s = diag(d_s),
+    W (k, k), R (k, m): (k, m, S).
+
+    Gaussian elimination without row exchanges, every sample at once. Where each
+    multiplier of a sample is at most 1 in magnitude, its diagonal pivot is the largest
+    of its column at every step, so the elimination is the one partial pivoting would
+    choose (Golub & Van Loan, 4th ed., §3.4) and as stable; a tolerance's small change
+    keeps I + D W near the identity, so that is the usual case. A sample with a larger
+    multiplier, or a result that is not finite, is solved again with partial pivoting
+    (numpy.linalg.solve, which raises LinAlgError on a singular one)."""
+    S, k = delta.shape
+    dtype = np.result_type(delta, W, R)
+    columns = delta.T.astype(dtype)  # (k, S)
+    A = columns[:, None, :] * W.astype(dtype)[:, :, None]  # A[i, j, s] = d_si W_ij
+    A[np.arange(k), np.arange(k)] += 1.0
+    b = columns[:, None, :] * R.astype(dtype)[:, :, None]  # (k, m, S)
+    largest = np.zeros(S)
+    with np.errstate(all="ignore"):
+        for p in range(k - 1):
+            f = A[p + 1:, p] / A[p, p]  # (k - p - 1, S) multipliers
+            np.maximum(largest, np.abs(f).max(axis=0), out=largest)
+            A[p + 1:, p + 1:] -= f[:, None, :] * A[p, p + 1:][None]
+            b[p + 1:] -= f[:, None, :] * b[p][None]
+        for p in range(k - 1, -1, -1):
+            if p < k - 1:
+                b[p] -= np.einsum("js,jms->ms", A[p, p + 1:], b[p + 1:])
+            b[p] /= A[p, p]
+        bad = ~(largest <= 1.0) | ~np.isfinite(b).all(axis=(0, 1))
+    if bad.any():
+        d = delta[bad]
+        M = d[:, :, None] * W[None]
+        M[:, np.arange(k), np.arange(k)] += 1.0
+        b[:, :, bad] = np.moveaxis(np.linalg.solve(M, d[:, :, None] * R[None]), 0, -1)
+    return b
 
 
 class LowRankSolver:
@@ -48,7 +89,7 @@ class LowRankSolver:
         X0, Z = self.X0[rows], self.Z[rows]  # (r, m), (r, k)
         if self.k == 0:
             return np.broadcast_to(X0.T, (delta.shape[0],) + X0.T.shape).copy()
-        M = delta[:, :, None] * self.W[None]
-        M[:, np.arange(self.k), np.arange(self.k)] += 1.0
-        y = np.linalg.solve(M, delta[:, :, None] * self.UX0[None])  # (S, k, m)
-        return np.swapaxes(X0[None] - Z[None] @ y, 1, 2)
+        y = near_identity_solve(delta, self.W, self.UX0)  # (k, m, S)
+        m, S = y.shape[1], y.shape[2]
+        moved = (Z @ y.reshape(self.k, m * S)).reshape(Z.shape[0], m, S)
+        return X0.T[None] - np.moveaxis(moved, 2, 0).swapaxes(1, 2)
