@@ -141,3 +141,12 @@ def test_a_singular_sample_is_refused():
     W = np.array([[-1.0, 0.0], [0.0, 0.0]])  # I + D W = [[0, 0], [0, 1]]
     with pytest.raises(np.linalg.LinAlgError):
         lowrank.near_identity_solve(np.array([[1.0, 0.5]]), W, np.ones((2, 1)))
+
+
+def test_a_sample_solved_alone_is_bit_identical_to_it_among_many():
+    rng = np.random.default_rng(9)
+    W, R = rng.standard_normal((5, 5)) * 1e3, rng.standard_normal((5, 2))
+    delta = 1e-4 * rng.uniform(-1, 1, (3000, 5))
+    together = lowrank.near_identity_solve(delta, W, R)
+    alone = lowrank.near_identity_solve(delta[1234:1235], W, R)
+    assert np.array_equal(together[:, :, 1234:1235], alone)

@@ -55,8 +55,8 @@ def near_identity_solve(delta: np.ndarray, W: np.ndarray, R: np.ndarray) -> np.n
             A[p + 1:, p + 1:] -= f[:, None, :] * A[p, p + 1:][None]
             b[p + 1:] -= f[:, None, :] * b[p][None]
         for p in range(k - 1, -1, -1):
-            if p < k - 1:
-                b[p] -= np.einsum("js,jms->ms", A[p, p + 1:], b[p + 1:])
+            for j in range(p + 1, k):  # term by term: each sample's sum in a fixed order
+                b[p] -= A[p, j] * b[j]
             b[p] /= A[p, p]
         bad = ~(largest <= 1.0) | ~np.isfinite(b).all(axis=(0, 1))
     if bad.any():
@@ -90,6 +90,9 @@ class LowRankSolver:
         if self.k == 0:
             return np.broadcast_to(X0.T, (delta.shape[0],) + X0.T.shape).copy()
         y = near_identity_solve(delta, self.W, self.UX0)  # (k, m, S)
-        m, S = y.shape[1], y.shape[2]
-        moved = (Z @ y.reshape(self.k, m * S)).reshape(Z.shape[0], m, S)
+        # Z y term by term, not as one matrix product, whose blocking (and so its last
+        # bits) would depend on how many samples a chunk holds
+        moved = Z[:, 0, None, None] * y[0][None]  # (r, m, S)
+        for j in range(1, self.k):
+            moved += Z[:, j, None, None] * y[j][None]
         return X0.T[None] - np.moveaxis(moved, 2, 0).swapaxes(1, 2)

@@ -256,7 +256,8 @@ class Solution:
 
     def solve(self, frequencies: np.ndarray, B: np.ndarray) -> np.ndarray:
         """Solve the AC system at ``frequencies`` (F,) for right-hand sides ``B``, either
-        (n, m) for every frequency or (F, n, m); returns X (F, n, m).
+        (n, m) for every frequency or (F, n, m); returns X (F, n, m), read-only when B
+        is (n, m) and all of it was solved here (it is the cache's own array).
 
         The system of each frequency array is assembled once, and a column B (n,)
         solved before at the same frequencies is read back, not solved again (fix
@@ -272,9 +273,9 @@ class Solution:
         new = [j for j, key in enumerate(keys) if key not in columns]
         if len(new) == len(keys) and len(set(keys)) == len(keys):  # all new: one solve
             X = self._solve_new(frequencies, entry, B)
-            kept = X.copy()  # the caller owns X; the cache keeps its own
+            X.flags.writeable = False  # shared with the cache: read-only, never copied
             for k, key in enumerate(keys):
-                columns[key] = kept[:, :, k]
+                columns[key] = X[:, :, k]
             return X
         if new:
             unique = list(dict.fromkeys(keys[j] for j in new))
