@@ -122,6 +122,25 @@ def paired_functions(functions: dict[str, object], rounds: int) -> dict[str, Run
     return results
 
 
+def python_calls(function) -> int:
+    """Python function calls (and calls into C functions) made by one ``function()``:
+    a count of the work that does not depend on the machine's speed or load, for
+    comparing two builds where timings on a shared machine swing by tens of percent."""
+    calls = 0
+
+    def count(_frame, event, _arg) -> None:
+        nonlocal calls
+        if event == "call" or event == "c_call":
+            calls += 1
+
+    sys.setprofile(count)
+    try:
+        function()
+    finally:
+        sys.setprofile(None)
+    return calls
+
+
 def target(measured: float, limit: float, at_most: bool = True) -> str:
     """``(target <= 3: met)`` and the like, for a printed ratio."""
     met = measured <= limit if at_most else measured >= limit

@@ -11,6 +11,11 @@ one DC solve of the same size, which no implementation of the same analysis can 
 Targets (issue: performance): the analysis core <= 3x the numpy floor for the same
 system; a full check of a stage with real requirements <= 3 ms in process.
 
+BLAS is held to one thread before numpy loads, as ampcheck's main() holds it, so CPU
+time counts no spinning BLAS threads. Beside the timings, the Python calls per stage (a
+count of the work, the same on a busy machine as on a quiet one) compare two builds
+where the timings of a shared machine cannot.
+
 There is no comparison against a general-purpose circuit simulator here: none is part of
 this project's environment, and the numpy floor is the bound the target is set against.
 
@@ -29,7 +34,8 @@ import time
 HERE = os.path.dirname(os.path.abspath(__file__))
 sys.path.insert(0, HERE)
 
-from paired import hold_blas_to_one_thread, paired_functions, target  # noqa: E402
+from paired import (hold_blas_to_one_thread, paired_functions, python_calls,  # noqa: E402
+                    target)
 
 hold_blas_to_one_thread()  # before numpy: the check's own setting, in process too
 
@@ -122,6 +128,9 @@ def main() -> None:
             print(f"analysis core, {name} set ({count} stages): {per * 1e3:.3f} ms CPU per"
                   f" stage, {per / floors[name]:.1f}x the floor"
                   f" {target(per / floors[name], 3.0)}; runs {result.cpu_text()} per set")
+        for name, (run, count) in analysis.items():
+            print(f"analysis core, {name} set: {python_calls(run) / count:,.0f} Python calls"
+                  " per stage (a count of the work, free of the machine's speed)")
         checks = paired_functions({name: check_all(paths) for name, paths in sets.items()},
                                   args.rounds)
         for name, paths in sets.items():
@@ -132,6 +141,9 @@ def main() -> None:
             print(f"full check, {name} set ({len(paths)} files): {per * 1e3:.2f} ms CPU"
                   f" ({wall * 1e3:.2f} ms wall) per stage, {per / floors[name]:.0f}x the"
                   f" floor{limit}; runs {result.cpu_text(1.0, 's')} per set")
+        for name, paths in sets.items():
+            print(f"full check, {name} set: {python_calls(check_all(paths)) / len(paths):,.0f}"
+                  " Python calls per stage")
 
 
 if __name__ == "__main__":
