@@ -410,3 +410,48 @@ def test_invalid_net_name_is_reported_at_the_name(tmp_path, library):
     line, column, message = only_problem(tmp_path, library, "a.stage", text)
     assert (line, column) == (5, 31)
     assert "is not a valid name" in message
+
+
+def _values(nodes):
+    """The plain values of parsed SNodes, as sexpdata.parse gives them (symbols as str)."""
+    return [_values(n.value) if n.is_list else n.value for n in nodes]
+
+
+def _sexpdata_values(items):
+    import sexpdata
+
+    return [_sexpdata_values(i) if isinstance(i, list) else
+            str(i) if isinstance(i, sexpdata.Symbol) else i for i in items]
+
+
+@pytest.mark.parametrize("text", [
+    GOOD_STAGE,
+    '(a "x\\"y" "tab\\there" "back\\\\slash" "odd\\qescape" "" 1 -2 +3 1.5 1e3 -0 10k 1_000)',
+    "(n nan inf -inf infinity 0x1f 1e 4.7u 2.2µ) ; a comment\n(b)",
+    '(multi\n  "line\nstring" (deeper (still (more 0.001))))',
+])
+def test_the_tree_is_the_one_sexpdata_reads(text):
+    # The reader's own pass over the characters (it keeps positions) must read every
+    # token as the sexpdata library itself does: checked against sexpdata.parse.
+    import sexpdata
+
+    from checker.io.sexp_reader import parse
+
+    expected = _sexpdata_values(sexpdata.parse(text, nil=None, true=None, false=None))
+    assert repr(_values(parse(text, "t.stage"))) == repr(expected)
+
+
+def test_every_bundled_stage_reads_as_sexpdata_reads_it():
+    import pathlib
+
+    import sexpdata
+
+    from checker.io.sexp_reader import parse
+
+    root = pathlib.Path(__file__).resolve().parent.parent
+    files = sorted(root.glob("samples/**/*.stage")) + sorted(root.glob("checker/**/*.parts"))
+    assert len(files) >= 5
+    for file in files:
+        text = file.read_text(encoding="utf-8")
+        expected = _sexpdata_values(sexpdata.parse(text, nil=None, true=None, false=None))
+        assert repr(_values(parse(text, str(file)))) == repr(expected), file

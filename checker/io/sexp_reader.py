@@ -1,10 +1,11 @@
 """Read the s-expression syntax into the plain tree, with a position for every node.
 
-sexpdata parses the text but keeps no positions, so a single regular-expression pass
-first checks the structure (balanced parentheses, closed strings, a sane depth) and
-records the offset of every opening parenthesis and every atom in document order. The
-parse result is then walked in that same order, so the n-th list or atom met is the
-n-th recorded token: positions cost one integer per token, nothing per character.
+One regular-expression pass checks the structure (balanced parentheses, closed strings,
+a sane depth) and builds the nodes as it goes, each with the position of its first
+character. Its tokens are sexpdata's exactly, and each token's value is sexpdata's own
+reading of it (a bare atom as an int, a float or a symbol; a string's escapes undone),
+so the tree is the one sexpdata.parse gives; only the walk over the characters is ours,
+because sexpdata keeps no positions and a second pass to attach them cost as much again.
 """
 
 from __future__ import annotations
@@ -20,15 +21,32 @@ from checker.io.positions import InputErrors, InputProblem, LineIndex, Path, Pos
 MAX_DEPTH = 40
 MAX_REPORTED = 10
 
-# Token boundaries must match sexpdata's exactly, or positions drift: it separates atoms
-# only by ASCII whitespace and reads a backslash in an atom as an escape, so other
-# spaces and a bare backslash are reported instead of being read.
+# Token boundaries must match sexpdata's exactly: it separates atoms only by ASCII
+# whitespace and reads a backslash in an atom as an escape, so other spaces and a bare
+# backslash are reported instead of being read.
 _TOKEN = re.compile(
     r'(?P<space>[ \t\n\r\f\v]+)|(?P<comment>;[^\n]*)|(?P<open>\()|(?P<close>\))'
     r'|(?P<string>"(?:[^"\\]|\\[\s\S])*")|(?P<badstring>")'
     r'|(?P<oddspace>[^\S \t\n\r\f\v])|(?P<bad>[\[\]\'`,\\])'
     r'|(?P<atom>[^\s()";\[\]\'`,\\]+)'
 )
+# sexpdata's reading of a bare atom (int, then float, else a symbol), with none of its
+# words (nil, t) special, as parse() is asked to read them
+_ATOM = sexpdata.Parser("", nil=None, true=None, false=None).atom
+_ESCAPE = re.compile(r"\\[\s\S]")  # a backslash and the character it escapes
+
+
+def _string(token: str) -> str:
+    """A "string" token's value: its escapes undone as sexpdata undoes them."""
+    body = token[1:-1]
+    if "\\" not in body:
+        return body
+    return _ESCAPE.sub(lambda match: sexpdata.String.unquote(match.group()), body)
+
+
+def _atom(token: str):
+    value = _ATOM(token)
+    return str(value) if isinstance(value, sexpdata.Symbol) else value
 
 
 class SNode:
@@ -46,23 +64,32 @@ class SNode:
 
 
 def scan(text: str, path: str, index: LineIndex | None = None
-         ) -> tuple[list[int], list[InputProblem]]:
-    """Check structure; return the offsets of every '(' and atom in order, and problems."""
+         ) -> tuple[list[SNode], list[InputProblem]]:
+    """Check structure and build the top-level nodes in one pass: (nodes, problems).
+    The nodes are complete only when there are no problems."""
     index = index or LineIndex(text)
-    offsets: list[int] = []
+    position = index.position
+    top: list[SNode] = []
+    filling = [top]  # the lists being filled, innermost last
     problems: list[InputProblem] = []
     open_stack: list[int] = []
     too_deep_reported = False
 
     def problem(offset: int, message: str) -> None:
-        pos = index.position(offset)
+        pos = position(offset)
         problems.append(InputProblem(path, pos.line, pos.column, message))
 
     for match in _TOKEN.finditer(text):
         kind, start = match.lastgroup, match.start()
-        if kind == "open":
+        if kind == "space" or kind == "comment":
+            continue
+        if kind == "atom":
+            filling[-1].append(SNode(_atom(match.group()), position(start)))
+        elif kind == "open":
+            node = SNode([], position(start))
+            filling[-1].append(node)
+            filling.append(node.value)
             open_stack.append(start)
-            offsets.append(start)
             if len(open_stack) > MAX_DEPTH and not too_deep_reported:
                 problem(start, f"nesting deeper than {MAX_DEPTH} levels; the format needs"
                                " at most 4")
@@ -70,10 +97,11 @@ def scan(text: str, path: str, index: LineIndex | None = None
         elif kind == "close":
             if open_stack:
                 open_stack.pop()
+                filling.pop()
             else:
                 problem(start, "unexpected ')': it closes nothing (an extra parenthesis?)")
-        elif kind in ("string", "atom"):
-            offsets.append(start)
+        elif kind == "string":
+            filling[-1].append(SNode(_string(match.group()), position(start)))
         elif kind == "badstring":
             problem(start, 'unterminated string: this \'"\' is never closed')
             break
@@ -85,33 +113,18 @@ def scan(text: str, path: str, index: LineIndex | None = None
                            " only parentheses, atoms, \"strings\" and ; comments")
     for start in open_stack[:MAX_REPORTED]:
         problem(start, "this '(' is never closed (a missing ')')")
-    return offsets, problems[:MAX_REPORTED]
+    return top, problems[:MAX_REPORTED]
 
 
 def parse(text: str, path: str) -> list[SNode]:
     """Parse ``text`` into top-level SNodes; raise InputErrors on any syntax problem."""
-    index = LineIndex(text)
-    offsets, problems = scan(text, path, index)
+    nodes, problems = scan(text, path)
     if problems:
         raise InputErrors(problems)
-    if not offsets:
+    if not nodes:
         raise InputErrors([InputProblem(path, 1, 1, "the file holds no forms: expected"
                                         " (stage NAME ...) or (part NAME ...)")])
-    try:
-        raw = sexpdata.parse(text, nil=None, true=None, false=None)
-    except Exception as error:  # sexpdata raises several kinds; scan() already caught most
-        raise InputErrors([InputProblem(path, 1, 1, f"cannot parse: {error}")]) from None
-    cursor = iter(offsets)
-
-    def attach(value) -> SNode:
-        pos = index.position(next(cursor))
-        if isinstance(value, list):
-            return SNode([attach(item) for item in value], pos)
-        if isinstance(value, sexpdata.Symbol):
-            return SNode(str(value), pos)
-        return SNode(value, pos)
-
-    return [attach(item) for item in raw]
+    return nodes
 
 
 def read_sexp(text: str, path: str, forms: dict[str, Form] | None = None
