@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 from analysis_helpers import analyse_text, params, rails
 
-from checker.analysis.mna import system_stack
+from checker.analysis.mna import GMIN_SIEMENS, assemble, system_stack, with_ties
 from checker.analysis.solution import OUTPUT, Excitation
 
 # A non-inverting stage biased from the rails: R3 and R4 divide vcc to the input, so
@@ -86,3 +86,19 @@ def test_node_transfers_of_a_supply_excitation_use_the_whole_system():
     expected = shunt / (100e3 + shunt) * (1 + 47e3 / 10e3)
     assert reference[5, 0] == pytest.approx(expected, rel=1e-2)
     assert np.allclose(transfers, reference, rtol=1e-9, atol=1e-15)
+
+
+def test_the_tied_systems_are_exactly_the_ones_assembled_with_their_ties():
+    # x reaches ground only through capacitors: tied at DC (GMIN), not in AC
+    figures = analyse_text(BIASED.replace("(load out", "(capacitor C8 out x 1n)"
+                                          " (capacitor C9 x gnd 1n) (load out"))
+    solution, circuit = figures.solution, figures.solution.circuit
+    x = circuit.node("x")
+    assert solution.unreferenced(at_dc=True) == (x,)
+    assert solution.unreferenced(at_dc=False) == ()
+    for at_dc in (True, False):
+        ties = solution.unreferenced(at_dc=at_dc)
+        tied, assembled = with_ties(assemble(circuit), ties), assemble(circuit, ties)
+        assert np.array_equal(tied.G, assembled.G) and np.array_equal(tied.C, assembled.C)
+    assert np.array_equal(solution.ac_matrices.G, assemble(circuit, ()).G)
+    assert solution.dc_system()[x - 1, x - 1] == pytest.approx(GMIN_SIEMENS, rel=1e-9)

@@ -8,6 +8,7 @@ the two bracketing points, so no figure depends on the grid's density.
 
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -36,10 +37,19 @@ def frequency_grid(stage: Stage, points: int) -> np.ndarray:
             low = min(low, source.band_low_hz / 100)
         if source.band_high_hz:
             high = max(high, source.band_high_hz * 1000)
-    grid = np.logspace(math.log10(low), math.log10(high), points)
+    grid = _log_grid(low, high, points)
     values = np.sort(np.concatenate([grid, extra]))
     # sorted and without repeats, as np.unique (which would import numpy.ma)
     return values[np.concatenate([[True], values[1:] != values[:-1]])]
+
+
+@functools.lru_cache(maxsize=64)
+def _log_grid(low: float, high: float, points: int) -> np.ndarray:
+    """``points`` log-spaced frequencies from ``low`` to ``high``, read-only (the few
+    grids of a run's parts and bands are built once)."""
+    grid = np.logspace(math.log10(low), math.log10(high), points)
+    grid.flags.writeable = False
+    return grid
 
 
 def local_grid(start: float, stop: float) -> np.ndarray:

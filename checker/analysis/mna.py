@@ -80,6 +80,19 @@ def assemble(circuit: Circuit, tie_nodes: tuple[int, ...] = ()) -> Matrices:
                     np.array(neg, dtype=int))
 
 
+def with_ties(matrices: Matrices, tie_nodes: tuple[int, ...]) -> Matrices:
+    """``matrices`` (assembled with no ties) with GMIN from each of ``tie_nodes`` to
+    ground: the same numbers as assemble(circuit, tie_nodes), whose ties touch only the
+    diagonal of node rows, where no branch stamp lands."""
+    if not tie_nodes:
+        return matrices
+    G = matrices.G.copy()
+    for node in tie_nodes:
+        G[node - 1, node - 1] += GMIN_SIEMENS
+    return Matrices(G, matrices.C, matrices.control_rows, matrices.control_pos,
+                    matrices.control_neg)
+
+
 def without_rails(matrices: Matrices, circuit: Circuit
                   ) -> tuple[Matrices, np.ndarray, np.ndarray]:
     """The AC system with the supply rails taken out, the kept unknowns' indices and the
@@ -124,16 +137,19 @@ def system_stack(matrices: Matrices, gains: np.ndarray, s: np.ndarray) -> np.nda
     else:
         Y = s.astype(complex)[:, None, None] * matrices.C  # one pass to a fresh stack
         Y += matrices.G
-    for k, row in enumerate(matrices.control_rows):
-        if matrices.control_pos[k] >= 0:
-            Y[:, row, matrices.control_pos[k]] -= gains[:, k]
-        if matrices.control_neg[k] >= 0:
-            Y[:, row, matrices.control_neg[k]] += gains[:, k]
+    for k, (row, pos, neg) in enumerate(zip(matrices.control_rows.tolist(),
+                                            matrices.control_pos.tolist(),
+                                            matrices.control_neg.tolist())):
+        if pos >= 0:
+            Y[:, row, pos] -= gains[:, k]
+        if neg >= 0:
+            Y[:, row, neg] += gains[:, k]
     return Y
 
 
 def solve(Y: np.ndarray, B: np.ndarray) -> np.ndarray:
-    """Solve Y X = B for a stack: Y (F, n, n), B (F, n, m) -> X (F, n, m)."""
+    """Solve Y X = B for a stack: Y (F, n, n), B (F, n, m) or (1, n, m) for the same
+    right-hand sides at every frequency -> X (F, n, m)."""
     try:
         X = np.linalg.solve(Y, B)
     except np.linalg.LinAlgError:
@@ -168,17 +184,27 @@ def unreferenced_nodes(circuit: Circuit, at_dc: bool) -> list[int]:
 
     An op-amp's own input resistance is no path: it leads only to the other input.
     """
+    at_dc_nodes, ac_nodes = unreferenced_at_dc_and_ac(circuit)
+    return at_dc_nodes if at_dc else ac_nodes
+
+
+def unreferenced_at_dc_and_ac(circuit: Circuit) -> tuple[list[int], list[int]]:
+    """unreferenced_nodes at DC and in AC from one pass: the capacitors joined last."""
     sets = _Sets(circuit.node_count)
     for item in circuit.conductances:
         if not item.element.endswith(".Rin"):
             sets.union(item.a, item.b)
     for branch in circuit.branches:
         sets.union(branch.a, branch.b)
-    if not at_dc:
-        for capacitance in circuit.capacitances:
-            sets.union(capacitance.a, capacitance.b)
+    nodes = range(1, circuit.node_count)
     ground = sets.find(0)
-    return [node for node in range(1, circuit.node_count) if sets.find(node) != ground]
+    at_dc = [node for node in nodes if sets.find(node) != ground]
+    if not at_dc or not circuit.capacitances:
+        return at_dc, list(at_dc)
+    for capacitance in circuit.capacitances:
+        sets.union(capacitance.a, capacitance.b)
+    ground = sets.find(0)
+    return at_dc, [node for node in at_dc if sets.find(node) != ground]
 
 
 def source_loops(circuit: Circuit) -> list[str]:

@@ -24,7 +24,8 @@ import numpy as np
 from checker.analysis.circuit import Circuit, build_circuit
 from checker.analysis.grid import frequency_grid, pick
 from checker.analysis.mna import (Matrices, SingularCircuit, assemble, solve, source_loops,
-                                  system_stack, unreferenced_nodes, without_rails)
+                                  system_stack, unreferenced_at_dc_and_ac, with_ties,
+                                  without_rails)
 from checker.analysis.results import AnalysisOptions, AnalysisProblem
 from checker.model import Stage
 
@@ -102,8 +103,8 @@ class Solution:
     def unreferenced(self, at_dc: bool) -> tuple[int, ...]:
         """Nodes with no path to ground (at DC, or with capacitors counted too)."""
         if at_dc not in self._unreferenced_cache:
-            self._unreferenced_cache[at_dc] = tuple(unreferenced_nodes(self.circuit,
-                                                                       at_dc=at_dc))
+            dc, ac = unreferenced_at_dc_and_ac(self.circuit)
+            self._unreferenced_cache.update({True: tuple(dc), False: tuple(ac)})
         return self._unreferenced_cache[at_dc]
 
     @property
@@ -142,33 +143,44 @@ class Solution:
     # -- excitations -------------------------------------------------------------------
     def excitation_vector(self, name) -> np.ndarray:
         """The right-hand side (n,) of one excitation (AC or DC)."""
+        vector = np.zeros(self.circuit.size)
+        entry = self._excitation_entry(name)
+        if entry is not None:
+            vector[entry[0]] = entry[1]
+        return vector
+
+    def _excitation_entry(self, name) -> tuple[int, float] | None:
+        """The one non-zero (row, value) of an excitation's right-hand side (None: all
+        zero, as the output's when the output is ground)."""
         circuit = self.circuit
         name = _named(name)
-        vector = np.zeros(circuit.size)
         kind, key = name
         if kind == "source":
             if key in circuit.source_branch:
-                vector[circuit.row_of_branch(circuit.source_branch[key])] = 1.0
-            else:
-                vector[circuit.row_of_node(circuit.source_node[key])] = 1.0
-        elif kind == "output":
+                return circuit.row_of_branch(circuit.source_branch[key]), 1.0
+            return circuit.row_of_node(circuit.source_node[key]), 1.0
+        if kind == "output":
             out = circuit.node(self.stage.output_net)
-            if out:
-                vector[circuit.row_of_node(out)] = 1.0
-        elif kind in ("loop", "vos"):
+            return (circuit.row_of_node(out), 1.0) if out else None
+        if kind in ("loop", "vos"):
             block = next(b for b in circuit.gain_blocks if b.ref == key)
             row = circuit.row_of_branch(circuit.gain_branch[key])
-            vector[row] = block.open_loop_gain if kind == "vos" else 1.0
-        elif kind in ("ib+", "ib-"):
+            return row, block.open_loop_gain if kind == "vos" else 1.0
+        if kind in ("ib+", "ib-"):
             block = next(b for b in circuit.gain_blocks if b.ref == key)
             node = block.in_pos if kind == "ib+" else block.in_neg
-            if node:
-                vector[node - 1] = -1.0
-        elif kind == "supply":
-            vector[circuit.row_of_branch(circuit.supply_branch[key])] = 1.0
-        else:
-            raise ValueError(f"{name!r} is not an excitation")
-        return vector
+            return (node - 1, -1.0) if node else None
+        if kind == "supply":
+            return circuit.row_of_branch(circuit.supply_branch[key]), 1.0
+        raise ValueError(f"{name!r} is not an excitation")
+
+    def _excitation_matrix(self, names: tuple) -> np.ndarray:
+        B = np.zeros((self.circuit.size, len(names)))
+        for column, name in enumerate(names):
+            entry = self._excitation_entry(name)
+            if entry is not None:
+                B[entry[0], column] = entry[1]
+        return B
 
     def excitations(self, names) -> np.ndarray:
         """Right-hand sides (n, m) of ``names``, read-only (built once per list)."""
@@ -176,9 +188,9 @@ class Solution:
         try:
             B = self._excitation_cache.get(names)
         except TypeError:  # a name that is no hashable pair: built each time
-            return np.stack([self.excitation_vector(name) for name in names], axis=1)
+            return self._excitation_matrix(names)
         if B is None:
-            B = np.stack([self.excitation_vector(name) for name in names], axis=1)
+            B = self._excitation_matrix(names)
             B.flags.writeable = False
             self._excitation_cache[names] = B
         return B
@@ -204,9 +216,15 @@ class Solution:
 
     # -- AC solves ---------------------------------------------------------------------
     @cached_property
+    def _untied_matrices(self) -> Matrices:
+        """G, C and the gain-block pattern with no net tied: the AC and DC systems differ
+        only in the nets they tie (mna.with_ties)."""
+        return assemble(self.circuit)
+
+    @cached_property
     def ac_matrices(self) -> Matrices:
         """G, C and the gain-block pattern of the AC system (floating nets tied)."""
-        return assemble(self.circuit, self.unreferenced(at_dc=False))
+        return with_ties(self._untied_matrices, self.unreferenced(at_dc=False))
 
     @cached_property
     def reduced(self) -> tuple[Matrices, np.ndarray, np.ndarray]:
@@ -244,12 +262,12 @@ class Solution:
         n = self.circuit.size
         if not dropped.size or B[..., dropped, :].any():
             # nothing to drop, or an excitation on a rail: solve the whole system
-            if B.ndim == 2:
-                B = np.broadcast_to(B, (frequencies.size,) + B.shape)
-            return solve(self._stack(frequencies, entry, whole=True), B)
+            # B (n, m) as a stack of one, broadcast over the frequencies by the solve
+            Y = self._stack(frequencies, entry, whole=True)
+            return solve(Y, B[None] if B.ndim == 2 else B)
         B = B[..., keep, :]
         if B.ndim == 2:
-            B = np.broadcast_to(B, (frequencies.size,) + B.shape)
+            B = B[None]
         X = np.zeros((frequencies.size, n, B.shape[-1]), dtype=complex)
         X[:, keep, :] = solve(self._stack(frequencies, entry, whole=False), B)
         return X
@@ -306,7 +324,7 @@ class Solution:
         if not whole:
             B, e = B[keep], e[keep]
         Y = self._stack(frequencies, entry, whole)
-        z = solve(np.swapaxes(Y, 1, 2), np.broadcast_to(e, (frequencies.size,) + e.shape))
+        z = solve(np.swapaxes(Y, 1, 2), e[None])
         return z[:, :, 0] @ B
 
     def solve_excitations(self, frequencies: np.ndarray, names) -> np.ndarray:
@@ -359,7 +377,7 @@ class Solution:
 
     def dc_system(self) -> np.ndarray:
         """The DC system matrix Y(0), real (n, n) (floating nets tied)."""
-        matrices = assemble(self.circuit, self.unreferenced(at_dc=True))
+        matrices = with_ties(self._untied_matrices, self.unreferenced(at_dc=True))
         gains = self.open_loop_gains(np.zeros(1)).real
         return system_stack(matrices, gains, np.zeros(1)).real[0]
 
