@@ -29,17 +29,18 @@ if __name__ == "__main__":
 """
 
 
-def user_install(folder: str) -> list[str]:
-    """Build the install in ``folder``; returns the command that runs its ampcheck."""
+def user_install(folder: str, root: str = ROOT) -> list[str]:
+    """Build the install of the checkout at ``root`` (default: this one) in ``folder``;
+    returns the command that runs its ampcheck (its first item: the install's python)."""
     subprocess.run([sys.executable, "-m", "venv", "--without-pip", folder], check=True)
     python = os.path.join(folder, "bin", "python")
     purelib = subprocess.run(
         [python, "-c", "import sysconfig; print(sysconfig.get_paths()['purelib'])"],
         check=True, capture_output=True, text=True).stdout.strip()
     ignore = shutil.ignore_patterns("__pycache__", "*.pyc")
-    shutil.copytree(os.path.join(ROOT, "checker"), os.path.join(purelib, "checker"),
+    shutil.copytree(os.path.join(root, "checker"), os.path.join(purelib, "checker"),
                     ignore=ignore)
-    shutil.copytree(os.path.join(ROOT, "rules"), os.path.join(purelib, "checker", "rules"),
+    shutil.copytree(os.path.join(root, "rules"), os.path.join(purelib, "checker", "rules"),
                     ignore=ignore)
     with open(os.path.join(purelib, "ampcheck-dependencies.pth"), "w") as handle:
         handle.write(sysconfig.get_paths()["purelib"] + "\n")
