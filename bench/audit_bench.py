@@ -7,15 +7,15 @@ Peak memory is that of the largest process of each run (os.wait4), for two file 
 A peak follows the largest stage a run meets (its Monte Carlo arrays), so a larger set
 may raise it without anything being kept; whether memory is kept from file to file is
 measured apart: one process checks the larger set file after file as a worker does, and
-what it allocates in the second half and still holds at the end (tracemalloc, after a
-garbage collection) is counted per file, beside its resident memory half-way and at
+what it allocates in the second half and still holds at the end (tracemalloc, after its
+bounded caches are emptied and a garbage collection) is counted per file, beside its resident memory half-way and at
 the end.
 
 Targets (issue: performance): cold one-file check <= 2x `import numpy`; >= 1,000
 stages/s with 2 jobs on the plain set and >= 500 on the requirement set; 2 jobs >= 1.8x
 one; peak memory per process < 100 MB and flat in the file count (at most 1 KB kept
-per file checked; what stays is the bounded caches of preferred values and grids
-filling, which the tracemalloc tracebacks show).
+per file checked, the bounded caches emptied at both readings: at capacity they replace
+entries, which would count as memory held).
 
 Every child runs from a throw-away install of this checkout as a user's pip install
 makes it (bench/user_install.py: copied, compiled to bytecode, no editable finder), and
@@ -23,8 +23,13 @@ the numpy import beside it runs on the same interpreter; the developer's editabl
 install would time a start that compiles every module from source where
 PYTHONDONTWRITEBYTECODE is set.
 
+With ``--against TREE`` (a git worktree of an older commit, from its own user install),
+the cold one-file check and the one-job rate of both sets are measured for both builds
+in the same interleaved rounds, and the ratios printed: a before/after free of the
+machine's drift between separate runs.
+
 Run: .venv/bin/python bench/audit_bench.py [--files 2000] [--memory-files 4000]
-    [--rounds 3]
+    [--rounds 3] [--against TREE]
 """
 
 from __future__ import annotations
@@ -59,6 +64,13 @@ from checker.audit import Request, check_files
 paths = sorted(glob.glob(sys.argv[1] + "/**/*.stage*", recursive=True))
 
 def held_mb():
+    # the bounded caches (functools.lru_cache) emptied first: at capacity they replace
+    # entries, which would count as new memory held without anything growing
+    for name, module in list(sys.modules.items()):
+        if name.startswith("checker"):
+            for value in list(vars(module).values()):
+                if callable(getattr(value, "cache_clear", None)):
+                    value.cache_clear()
     gc.collect()
     with open("/proc/self/statm") as handle:
         return int(handle.read().split()[1]) * os.sysconf("SC_PAGE_SIZE") / 2 ** 20
@@ -68,9 +80,9 @@ for k, _result in enumerate(check_files(paths, Request(figures_wanted=False)), 1
     if k == len(paths) // 2:
         half = held_mb()
         tracemalloc.start()  # from here on, every allocation that stays alive is counted
-gc.collect()
+end = held_mb()
 kept = tracemalloc.get_traced_memory()[0]
-print(len(paths) // 2, half, len(paths), held_mb(), kept)
+print(len(paths) // 2, half, len(paths), end, kept)
 """
 
 
@@ -84,10 +96,14 @@ def main() -> None:
     parser.add_argument("--memory-files", type=int, default=4000)
     parser.add_argument("--rounds", type=int, default=3)
     parser.add_argument("--cold-rounds", type=int, default=9)
+    parser.add_argument("--against", help="an older checkout to compare with, paired")
     args = parser.parse_args()
     with tempfile.TemporaryDirectory() as folder:
         AMPCHECK[:] = user_install(os.path.join(folder, "install"))
         python = AMPCHECK[0]
+        if args.against:
+            against(user_install(os.path.join(folder, "install-against"),
+                                 os.path.abspath(args.against)), folder, args)
         one = generate(os.path.join(folder, "one"), 1)[0]
         cold = paired_children({"cold check": AMPCHECK + ["check", one] + QUIET},
                                args.cold_rounds, python=python)
@@ -124,6 +140,29 @@ def main() -> None:
                   + ", ".join(f"{count} files {mb:.0f} MB" for count, mb in peaks)
                   + f" {target(max(mb for _c, mb in peaks), 100.0)}")
             print(f"{name} set, one process file after file: " + held(target_folder))
+
+
+def against(other: list[str], folder: str, args) -> None:
+    """This build beside ``other`` (an older checkout's user install), paired."""
+    one = generate(os.path.join(folder, "against-one"), 1)[0]
+    cold = paired_children({"this": AMPCHECK + ["check", one] + QUIET,
+                            "against": other + ["check", one] + QUIET},
+                           args.cold_rounds, python=AMPCHECK[0])
+    print(f"against {args.against}: cold one-file check {cold['this'].wall_text()} wall"
+          f" here, {cold['against'].wall_text()} there"
+          f" ({cold['this'].wall_median / cold['against'].wall_median:.2f}x)")
+    for name, requirements in (("plain", False), ("requirement", True)):
+        target_folder = os.path.join(folder, f"against-{name}")
+        paths = generate(target_folder, args.files, requirements=requirements)
+        runs = paired_children({build: command + ["check", target_folder, "--jobs", "1"]
+                                + QUIET for build, command in (("this", AMPCHECK),
+                                                               ("against", other))},
+                               args.rounds, python=AMPCHECK[0])
+        rates = {build: len(paths) / runs[build].wall_median for build in ("this", "against")}
+        print(f"against {args.against}: {name} set, {len(paths)} files, 1 job:"
+              f" {rates['this']:.0f} stages/s here (CPU {runs['this'].cpu_text(1.0, 's')}),"
+              f" {rates['against']:.0f} there (CPU {runs['against'].cpu_text(1.0, 's')});"
+              f" {rates['this'] / rates['against']:.2f}x the rate")
 
 
 def held(folder: str) -> str:
