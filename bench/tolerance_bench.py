@@ -23,6 +23,10 @@ rounds) for the gain's highest and lowest corners and for the pair's lowest CMRR
 fresh analysis each time (the factorisation included); the rounds used and whether each
 corner was verified. Target: well under 1 s at 100 passives.
 
+The last lines judge the largest size against the target, and the growth between the
+two largest sizes against linear (the time per passive no more than 1.25x at twice the
+passives; the smallest sizes are dominated by the check's fixed cost).
+
 Run: .venv/bin/python bench/tolerance_bench.py [--sizes 5 20 50 100] [--repeats 3]
 """
 
@@ -35,6 +39,9 @@ import resource
 import subprocess
 import sys
 import time
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from paired import target  # noqa: E402
 
 SIZES = (5, 20, 50, 100)
 ARMS = (("in1", "fb", 10e3), ("fb", "out", 100e3), ("in2", "pos", 10e3),
@@ -157,8 +164,9 @@ def main() -> None:
     print(f"{'passives':>8} {'rules CPU s':>12} {'rules wall s':>13}"
           f" {'peak MB':>8} {'built MB':>9} {'extra MB':>9}  findings")
     previous = None
+    rows = {}
     for size in args.sizes:
-        with_rules = in_child(size, args.repeats)
+        with_rules = rows[size] = in_child(size, args.repeats)
         peak, built = with_rules["peak_kb"] / 1024, with_rules["built_kb"] / 1024
         found = ", ".join(f"{rule} {measured:.6g}" for rule, measured in with_rules["findings"])
         growth = ""
@@ -169,6 +177,18 @@ def main() -> None:
               f" {peak:8.1f} {built:9.1f} {peak - built:9.1f}  {found}"
               f"{growth}")
         previous = (size, with_rules["cpu"])
+    largest = max(rows)
+    row = rows[largest]
+    print(f"{largest} passives: {row['cpu']:.3f} s CPU"
+          f" {target(row['cpu'], 1.0)}, {row['peak_kb'] / 1024:.0f} MB peak"
+          f" {target(row['peak_kb'] / 1024, 200.0)}")
+    grown = sorted(rows)[-2:]
+    if len(grown) == 2 and rows[grown[0]]["cpu"] > 0:
+        # linear: the CPU time grows no faster than the passives (the slope between the
+        # two largest sizes, where the fixed cost of a check no longer dominates)
+        slope = (rows[grown[1]]["cpu"] / rows[grown[0]]["cpu"]) / (grown[1] / grown[0])
+        print(f"{grown[0]} to {grown[1]} passives: CPU time grew {slope:.2f}x as fast as the"
+              f" passives {target(slope, 1.25)}")
 
 
 if __name__ == "__main__":
