@@ -50,6 +50,21 @@ class Baseline:
         return os.path.dirname(os.path.abspath(self.path))
 
 
+MAX_COUNT = 10 ** 9  # findings one entry may accept: far beyond any real file
+
+
+def _entry_key(entry) -> Key | None:
+    """(path, stage, elements, rule) of one entry, None when a part is missing or of the
+    wrong type (paths, stages, elements and rules are text)."""
+    if not isinstance(entry, dict):
+        return None
+    path, stage, elements, rule = (entry.get(k) for k in ("path", "stage", "elements", "rule"))
+    if not (isinstance(path, str) and isinstance(stage, str) and isinstance(rule, str)
+            and isinstance(elements, list) and all(isinstance(e, str) for e in elements)):
+        return None
+    return (path, stage, tuple(elements), rule)
+
+
 def load_baseline(path: str) -> Baseline:
     try:
         with open(path, encoding="utf-8") as handle:
@@ -59,13 +74,18 @@ def load_baseline(path: str) -> Baseline:
     if not isinstance(data, dict) or data.get("format") != FORMAT_NAME or \
             data.get("version") != FORMAT_VERSION:
         raise BaselineError(f"{path} is not an {FORMAT_NAME} version {FORMAT_VERSION} file")
+    entries = data.get("entries", [])
+    if not isinstance(entries, list):
+        raise BaselineError(f"{path}: entries is a list of findings, not {entries!r}")
     counts: Counter = Counter()
-    for entry in data.get("entries", []):
-        try:
-            key = (entry["path"], entry["stage"], tuple(entry["elements"]), entry["rule"])
-            counts[key] += int(entry.get("count", 1))
-        except (KeyError, TypeError, ValueError):
-            raise BaselineError(f"{path}: malformed entry {entry!r}") from None
+    for entry in entries:
+        key = _entry_key(entry)
+        count = entry.get("count", 1) if isinstance(entry, dict) else None
+        # a count is a whole number of findings from 1 up (as --write-baseline writes)
+        if key is None or not isinstance(count, int) or isinstance(count, bool) or \
+                not 1 <= count <= MAX_COUNT:
+            raise BaselineError(f"{path}: malformed entry {entry!r}")
+        counts[key] += count
     return Baseline(path, counts)
 
 

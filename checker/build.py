@@ -26,6 +26,11 @@ MAX_RANGED_SUPPLIES = 3  # supplies with a range per stage: 2^n combinations of 
 _NON_NEGATIVE = {"resistance", "capacitance", "inductance", "frequency", "current",
                  "slew-rate", "voltage-noise", "current-noise", "power", "percentage"}
 # Requirements that are magnitudes (a limit on noise, error, margin): never negative.
+# Part parameters of kinds that may be signed elsewhere, each with why it cannot be here.
+_NON_NEGATIVE_PART = {
+    "output-headroom-high": "an output cannot swing beyond its rail",
+    "output-headroom-low": "an output cannot swing beyond its rail",
+}
 _NON_NEGATIVE_REQUIREMENTS = {"noise", "dc-error", "headroom", "phase-margin"}
 _PASSIVE_KIND = {"resistors": ("resistor", "resistance"),
                  "capacitors": ("capacitor", "capacitance"),
@@ -70,8 +75,10 @@ class _Builder:
     # -- parts -----------------------------------------------------------------------
     def part(self, node: dict, path: Path, name: str, builtin: bool = False) -> OpAmpPart:
         values = self.part_values(node, path, f"part {name}")
-        return OpAmpPart(name=name, family=node.get("class"), note=node.get("note"),
+        part = OpAmpPart(name=name, family=node.get("class"), note=node.get("note"),
                          builtin=builtin, origin=self.origin(path), **values)
+        self.supply_order(part, path, f"part {name}")
+        return part
 
     def part_values(self, node: dict, path: Path, where: str) -> dict[str, Any]:
         """OpAmpPart keyword arguments (each value a float) for the parameters given."""
@@ -79,9 +86,23 @@ class _Builder:
         for keyword, kind in PART_PARAMETERS.items():
             positive = keyword in ("open-loop-gain", "gbw", "second-pole", "min-stable-gain")
             number = self.value(node, keyword, kind, path, where, positive=positive)
+            if number is not None and keyword in _NON_NEGATIVE_PART and number < 0:
+                self.fail(path + (keyword,), f"{keyword} of {where} cannot be negative"
+                                             f" ({node[keyword]!r}): {_NON_NEGATIVE_PART[keyword]}")
+                continue
             if number is not None:
                 values[PART_ATTRIBUTES[keyword]] = number
         return values
+
+    def supply_order(self, part: OpAmpPart, path: Path, where: str) -> None:
+        """A part's supply span in order: supply-min <= supply-max <= supply-abs-max."""
+        spans = [("supply-min", part.supply_min_v), ("supply-max", part.supply_max_v),
+                 ("supply-abs-max", part.supply_abs_max_v)]
+        given = [(keyword, volts) for keyword, volts in spans if volts is not None]
+        for (low_key, low), (high_key, high) in zip(given, given[1:]):
+            if low > high:
+                self.fail(path, f"{where}: {low_key} ({format_si(low, 'V')}) is above"
+                                f" {high_key} ({format_si(high, 'V')}); no supply fits both")
 
     # -- stages ----------------------------------------------------------------------
     def stage(self, node: dict, path: Path, parts: dict[str, OpAmpPart]) -> Stage | None:
@@ -174,6 +195,7 @@ class _Builder:
                                  **overrides)
             else:
                 part = replace(part, name=f"{part.name} (adjusted)", **overrides)
+            self.supply_order(part, path + ("params",), f"op-amp {ref}")
         # The schema requires "part" or "params" (anyOf), so one of them set it.
         assert part is not None
         return OpAmp(ref=ref, part=part, in_pos=node["in+"], in_neg=node["in-"],
@@ -322,8 +344,12 @@ class _Builder:
         if not stage.opamps:
             self.fail(path, f"{where} has no op-amp: an (opamp REF ...) is required")
         rails = stage.rail_voltages
-        if len(set(s.net for s in stage.supplies)) != len(stage.supplies):
-            self.fail(path, f"{where} declares a supply net twice")
+        supplied: dict[str, Origin] = {}
+        for supply in stage.supplies:
+            if supply.net in supplied:
+                self.fail_at(supply.origin, f"{where} declares supply net {supply.net} twice"
+                             f" (first at line {supplied[supply.net].line})")
+            supplied.setdefault(supply.net, supply.origin)
         for opamp in stage.opamps:
             for pin, net in (("v+", opamp.v_pos), ("v-", opamp.v_neg)):
                 if net not in rails:

@@ -290,12 +290,16 @@ def _request(args):
     from checker.config import trusted_by_environment
     from checker.units import UnitError, check_plausible, parse_value
 
-    def ids(texts):
-        """Repeated options accumulate: --select A --select B runs A and B."""
+    def ids(texts, flag: str = ""):
+        """Repeated options accumulate: --select A --select B runs A and B. An empty
+        ``flag`` list (--select only) is refused: it would run no rule and pass anything."""
         if texts is None:
             return None
-        return frozenset(part.strip() for text in texts for part in text.split(",")
-                         if part.strip())
+        given = frozenset(part.strip() for text in texts for part in text.split(",")
+                          if part.strip())
+        if not given and flag:
+            raise UsageError(f"{flag} names no rule id; `ampcheck rules` lists them")
+        return given
 
     stray = None
     if args.stray_capacitance is not None:
@@ -304,6 +308,8 @@ def _request(args):
             check_plausible(stray, "capacitance", args.stray_capacitance)
         except UnitError as error:
             raise UsageError(f"--stray-capacitance: {error}") from None
+        if stray < 0:  # as a configuration file's stray-capacitance (options.py)
+            raise UsageError("--stray-capacitance cannot be negative")
     config_file = getattr(args, "config", None)
     if config_file and not os.path.isfile(config_file):
         raise UsageError(f"--config: no such file {config_file}")
@@ -312,7 +318,8 @@ def _request(args):
                         ("--memory-limit", args.memory_limit)):
         if value is not None and not 0 <= value <= 1e9:
             raise UsageError(f"{name} takes a number from 0 (no limit) upwards")
-    return Request(config_file=config_file, select=ids(args.select), ignore=ids(args.ignore),
+    return Request(config_file=config_file, select=ids(args.select, "--select"),
+                   ignore=ids(args.ignore),
                    also_select=ids(args.also_select) or frozenset(),
                    stray_capacitance_f=stray, parts=tuple(args.parts),
                    rules_dirs=tuple(args.rules_dir), use_config=not args.no_config,
@@ -497,6 +504,8 @@ def _check_stdin(args) -> int:
     name = args.stdin_name
     if os.path.isabs(name) or ".." in name.replace("\\", "/").split("/") or not name.strip():
         raise UsageError("--stdin-name is a relative file name, e.g. board/filter.stage")
+    if sys.stdin is None:  # started with standard input closed
+        raise UsageError("'-' reads standard input, which is closed")
     data = sys.stdin.buffer.read() if hasattr(sys.stdin, "buffer") else \
         sys.stdin.read().encode()
     folder = tempfile.mkdtemp(prefix="ampcheck-stdin-")
@@ -737,7 +746,7 @@ def cmd_schema(args) -> int:
 
 
 def cmd_convert(args) -> int:
-    from checker.io.load import read_file
+    from checker.io.load import read_file, syntax_of
     from checker.io.positions import InputErrors
     from checker.io.sexp_writer import write_sexp
     from checker.io.write import write_new_file
@@ -752,6 +761,12 @@ def cmd_convert(args) -> int:
     if args.output is None:
         sys.stdout.write(text)
         return EXIT_OK
+    wanted = "json" if args.to == "json" else "sexp"
+    if syntax_of(args.output) != wanted:  # the ending says how the file is read
+        raise UsageError(f"-o {args.output}: a file ending so is read as"
+                         f" {'JSON' if syntax_of(args.output) == 'json' else 's-expressions'};"
+                         f" name the {'JSON' if wanted == 'json' else 's-expression'} file"
+                         f" {'NAME.stage.json' if wanted == 'json' else 'NAME.stage'}")
     try:
         write_new_file(args.output, text, protect=[args.file])
     except (OSError, ValueError) as error:

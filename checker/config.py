@@ -250,6 +250,8 @@ def _values(table: dict, keys: tuple, where, fail, base: str, known_rules, top: 
             unknown = [v for v in sorted(value) if v not in known_rules]
             if unknown:
                 fail(keys + (key,), f"unknown rule id {', '.join(unknown)} in {key}")
+            if key == "select" and not value:  # no rule would run, and anything pass
+                fail(keys + (key,), "select names no rule id; `ampcheck rules` lists them")
         elif option.type == "paths":
             value = [os.path.normpath(os.path.join(base, v)) for v in value]
         elif option.type == "path":

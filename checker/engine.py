@@ -577,6 +577,19 @@ def _answer_verdicts(stage: Stage, verdicts: list[Verdict], findings: list[Findi
     return answered, extra
 
 
+# Engine findings that say something was not checked (or is about the bookkeeping):
+# waiving one would let a stage pass that nothing analysed.
+UNWAIVABLE = {
+    "stage-unsolvable": "the stage's equations have no solution, so nothing was analysed",
+    "rule-failed": "the rule stopped, so what it checks was not checked",
+    "review-failed": "the review stopped, so the file was not checked",
+    "input-invalid": "the file was not read",
+    "waiver-invalid": "it reports a waiver itself",
+    "waiver-stale": "it reports a waiver itself",
+    "baseline-stale": "it reports the baseline",
+}
+
+
 def apply_waivers(stage: Stage, findings: list[Finding], ran: set[str],
                   known: AbstractSet[str]) -> list[Finding]:
     """Mark findings covered by the stage's waivers; report waivers that are invalid
@@ -602,6 +615,11 @@ def apply_waivers(stage: Stage, findings: list[Finding], ran: set[str],
             hint = f"; did you mean {close[0]!r}?" if close else ""
             report("waiver-invalid",
                    f"waiver {target} names no known rule {waiver.rule!r}{hint}")
+            continue
+        if waiver.rule in UNWAIVABLE:
+            report("waiver-invalid",
+                   f"waiver of {waiver.rule} {target} cannot be: {UNWAIVABLE[waiver.rule]};"
+                   " remove the waiver and mend the cause")
             continue
         if waiver.reason is None:
             report("waiver-invalid",

@@ -33,6 +33,9 @@ def register(commands) -> None:
     mend.add_argument("--no-config", action="store_true", help="ignore configuration files")
 
 
+_SYNTAX_NAMES = {"json": "JSON", "sexp": "an s-expression"}
+
+
 def mended_path(path: str) -> str:
     """conductivity.stage -> conductivity.mended.stage (x.stage.json ->
     x.mended.stage.json)."""
@@ -46,7 +49,7 @@ def run(args) -> int:
     from checker import audit
     from checker.config import ConfigError
     from checker.engine import RuleError
-    from checker.io.load import parse_text, read_text
+    from checker.io.load import parse_text, read_text, syntax_of
     from checker.io.positions import InputErrors
     from checker.io.write import write_new_file
     from checker.mend import mend_text
@@ -58,6 +61,10 @@ def run(args) -> int:
         raise MendError(f"{path} is not a stage file (*.stage, *.stage.json): mend edits"
                         " stage files only; for a netlist, `ampcheck extract` writes its"
                         " stages as stage files, or change the schematic")
+    if args.to and syntax_of(args.to) != syntax_of(path):  # the ending decides the reading
+        raise MendError(f"{args.to} would be read as {_SYNTAX_NAMES[syntax_of(args.to)]}, but"
+                        f" the mended stage is {_SYNTAX_NAMES[syntax_of(path)]} like {path};"
+                        " give it the same ending (`ampcheck convert` changes the syntax)")
     if args.config and not os.path.isfile(args.config):
         raise MendError(f"--config: no such file {args.config}")
     request = audit.Request(config_file=args.config, parts=tuple(args.parts),

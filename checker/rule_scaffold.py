@@ -9,6 +9,7 @@ the check; the shape stays. Files are written new (never over an existing file).
 
 from __future__ import annotations
 
+import keyword
 import os
 
 
@@ -124,6 +125,10 @@ def scaffold(rule_id: str, into: str, tests: str | None, summary: str,
                             " hyphens: input-resistance)")
     if rule_id in known:
         raise ScaffoldError(f"a rule, engine finding or caution named {rule_id!r} exists")
+    if keyword.iskeyword(module_name(rule_id)):
+        raise ScaffoldError(f"rule id {rule_id!r} would name its function"
+                            f" {module_name(rule_id)!r}, a Python keyword: choose a longer id"
+                            f" ({rule_id}-check, say)")
     if not os.path.isdir(into):
         raise ScaffoldError(f"no such folder {into}")
     if tests is not None and not os.path.isdir(tests):

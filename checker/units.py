@@ -112,9 +112,9 @@ PLAUSIBLE: dict[str, tuple[float, float]] = {
 
 
 _NUMBER = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
-_PLAIN = re.compile(rf"^\s*({_NUMBER})\s*(.*?)\s*$")
+_PLAIN = re.compile(rf"^\s*({_NUMBER})\s*(.*?)\s*$", re.ASCII)  # ASCII digits only
 # RKM (IEC 60062): digits, a multiplier letter in place of the decimal point, digits.
-_RKM = re.compile(r"^\s*([+-]?)(\d*)([RrfpnuµμmkKMGT])(\d+)\s*(.*?)\s*$")
+_RKM = re.compile(r"^\s*([+-]?)(\d*)([RrfpnuµμmkKMGT])(\d+)\s*(.*?)\s*$", re.ASCII)
 _RKM_FACTORS = dict(PREFIXES, R=1.0, r=1.0)
 _TIME_PREFIXES = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "µs": 1e-6, "μs": 1e-6, "ns": 1e-9}
 

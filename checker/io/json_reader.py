@@ -17,13 +17,35 @@ _TOKEN = re.compile(r'"(?:[^"\\]|\\.)*"|[{}\[\]:,]|[^\s{}\[\]:,"]+')
 MAX_DEPTH = 40
 
 
+class _LongInteger(int):
+    """A JSON integer of more digits than Python converts (thousands): an int far beyond
+    any float, shown as the file wrote it, so the value check reports it ("beyond the
+    range of a number") at its own position instead of the parser at 1:1."""
+
+    text: str
+
+    def __new__(cls, text: str):
+        value = super().__new__(cls, -10 ** 400 if text.startswith("-") else 10 ** 400)
+        value.text = text
+        return value
+
+    def __str__(self) -> str:
+        return self.text
+
+    __repr__ = __str__
+
+
+def _integer(text: str) -> int:
+    return int(text) if len(text) <= 4000 else _LongInteger(text)
+
+
 def read_json(text: str, path: str) -> tuple[dict, dict[Path, Position]]:
     """Parse a JSON stage file to (tree, positions); raise InputErrors on bad input."""
     if not text.strip():
         raise InputErrors([InputProblem(path, 1, 1, "the file is empty: expected a JSON"
                                         ' object such as {"stages": [...]}')])
     try:
-        tree = json.loads(text, parse_constant=_reject_constant)
+        tree = json.loads(text, parse_constant=_reject_constant, parse_int=_integer)
     except json.JSONDecodeError as error:
         raise InputErrors([InputProblem(path, error.lineno, error.colno,
                                         f"invalid JSON: {error.msg}")]) from None
@@ -40,7 +62,39 @@ def read_json(text: str, path: str) -> tuple[dict, dict[Path, Position]]:
     if not isinstance(tree, dict):
         raise InputErrors([InputProblem(path, 1, 1, "expected a JSON object at the top"
                                         ' level, such as {"stages": [...]}')])
+    halves = [_half_pair_problem(path, at, positions) for at in _half_pairs(tree, ())]
+    if halves:
+        raise InputErrors(halves)
     return tree, positions
+
+
+_SURROGATE = re.compile("[\ud800-\udfff]")
+
+
+def _half_pairs(node, at: Path):
+    """Paths of the text (keys and strings) holding half of a UTF-16 surrogate pair: a
+    \\ud800-\\udfff escape without its other half, which no UTF-8 file can hold, so
+    the stage could be neither written back nor converted."""
+    if isinstance(node, str):
+        if _SURROGATE.search(node):
+            yield at
+    elif isinstance(node, dict):
+        for key, value in node.items():
+            if _SURROGATE.search(key):
+                yield at
+            yield from _half_pairs(value, at + (key,))
+    elif isinstance(node, list):
+        for index, value in enumerate(node):
+            yield from _half_pairs(value, at + (index,))
+
+
+def _half_pair_problem(path: str, at: Path, positions: dict) -> InputProblem:
+    while at and at not in positions:
+        at = at[:-1]
+    pos = positions.get(at, Position(1, 1))
+    return InputProblem(path, pos.line, pos.column, "a \\u escape gives half of a"
+                        " surrogate pair (\\ud800 to \\udfff without its other half):"
+                        " not a character; write the character itself")
 
 
 def _too_deep(text: str, path: str) -> InputProblem | None:

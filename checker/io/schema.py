@@ -99,7 +99,9 @@ def _form_schema(name: str, form: Form) -> dict:
     if name == "source":
         schema["not"] = {"required": ["range", "amplitude"]}
     if name == "document":
-        schema["anyOf"] = [{"required": ["stages"]}, {"required": ["parts"]}]
+        # at least one stage or part: a file of empty lists would pass having held nothing
+        schema["anyOf"] = [{"required": [key], "properties": {key: {"minItems": 1}}}
+                           for key in ("stages", "parts")]
     return schema
 
 
@@ -227,7 +229,10 @@ def _message(error, tree, node_path: Path) -> str:
         return f"{where} is missing {', '.join(repr(m) for m in missing)}"
     if error.validator == "anyOf" and isinstance(error.instance, dict):
         options = [" or ".join(repr(k) for k in s.get("required", [])) for s in error.validator_value]
-        return f"{where} needs {' or '.join(options)}"
+        counted = any("minItems" in sub for s in error.validator_value
+                      for sub in s.get("properties", {}).values())
+        return f"{where} needs {' or '.join(options)}" + (
+            ", with at least one entry" if counted else "")
     if error.validator == "not":
         return f"{where}: give either 'range' or 'amplitude', not both"
     if error.validator == "pattern":

@@ -45,8 +45,15 @@ def _string(token: str) -> str:
 
 
 def _atom(token: str):
+    """sexpdata's reading of a bare atom, except that a number is written in ASCII
+    digits without underscores, as in JSON and the format guide: Python's own readings
+    of 1_000 or of other scripts' digits stay text, for the value check to refuse."""
     value = _ATOM(token)
-    return str(value) if isinstance(value, sexpdata.Symbol) else value
+    if isinstance(value, sexpdata.Symbol):
+        return str(value)
+    if "_" in token or not token.isascii():
+        return token
+    return value
 
 
 class SNode:
