@@ -7,7 +7,8 @@ becomes edits at the reader's recorded positions (checker/io/patch.py), so comme
 layout survive. Fixes are taken in report order; one that touches an element an earlier
 fix already changed (or adds a designator an earlier one added) is left out and said so,
 since each fix was verified alone. A part to choose (more GBW, more slew rate) is not
-an edit of this file and is left out with the reason.
+an edit of this file and is left out with the reason; so is a change of a load, which is
+what the stage must drive, not a choice of its design.
 """
 
 from __future__ import annotations
@@ -82,6 +83,11 @@ def refusal(change) -> str | None:
         return f"it asks for another part for {change.opamp}: choose one and name it"
     if isinstance(change, ch.RemovePassive):
         return f"it removes {change.element}: left to the designer"
+    if isinstance(change, ch.SetLoad):
+        # the load is what the stage must drive, not a part of the design: changing it
+        # in the file would make the stage pass by restating its requirement
+        return (f"it changes the load on {change.net}, which the stage has to drive:"
+                " buffer the output, or correct the load if it was written wrongly")
     return None
 
 

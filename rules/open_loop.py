@@ -9,6 +9,7 @@ from checker.engine import rule
 from checker.findings import Suggestion
 from checker.preferred import nearest
 from checker.rules._feedback import looks_swapped
+from checker.rules._shorted_output import shorted_by_load
 from checker.units import format_gain, format_si
 
 
@@ -65,6 +66,8 @@ def open_loop(view):
         loop = figures.loops[opamp.ref]
         if loop.negative_somewhere or looks_swapped(stage, figures, opamp):
             continue  # swapped inputs on a stage meant to be linear: swapped-inputs
+        if shorted_by_load(view, opamp) is not None:
+            continue  # a load that all but shorts the output: the output-current rule
         kind = "positive feedback only" if loop.feedback == "positive" else "no negative feedback"
         span = rails[opamp.v_pos] - rails[opamp.v_neg]
         step = settings["hysteresis_fraction"] * span

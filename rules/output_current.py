@@ -12,6 +12,7 @@ from checker.engine import rule
 from checker.findings import Suggestion
 from checker.limits import within
 from checker.preferred import at_least, ladder, smallest_passing
+from checker.rules._shorted_output import shorted_by_load
 from checker.units import format_si
 
 
@@ -32,7 +33,10 @@ def output_current(view):
         across its capacitor) has no defined DC output, and the rule says it could not
         check it. The two parts are added, a worst case (they peak a quarter cycle apart for
         a pure sine, but not for every waveform). The total must not exceed the part's
-        output current.
+        output current. A load so low that, against the part's output resistance, it
+        pulls the loop gain below 1 (the loop closes once the stage's loads are taken
+        away) is reported as a short of the output, with the current the unloaded
+        stage's swing would drive into it; the open-loop rule then stays quiet.
 
     Why it matters:
         At its output-current limit an op-amp stops following its input: the output
@@ -79,7 +83,10 @@ def output_current(view):
                                     opamp.origin, (opamp.ref,))
             continue
         if loop.feedback != "negative":
-            continue  # without negative feedback: the open-loop rule
+            shorted = shorted_by_load(view, opamp)
+            if shorted is not None:
+                yield _shorted(view, opamp, *shorted)
+            continue  # otherwise, without negative feedback: the open-loop rule
         part = opamp.part
         if part.output_current_a is None:
             yield view.cannot_check(f"the output current of {opamp.ref}",
@@ -102,6 +109,43 @@ def output_current(view):
                            suggestion=lambda: _suggest(view, opamp, total, capacitive,
                                                        limit),
                            resistive_a=resistive, capacitive_a=capacitive)
+
+
+# Beyond this a "load" is a short or a wiring slip: no signal buffer drives it (common
+# practice: power buffers of signal stages stop at amperes).
+BUFFER_LIMIT_A = 100.0
+
+
+def _shorted(view, opamp, loads, unloaded):
+    """The finding for an output all but shorted by its load (rules/_shorted_output.py):
+    the current the unloaded stage's output swing would drive into the load."""
+    part = opamp.part
+    swing = unloaded.node_range(opamp.out)
+    volts = max(abs(swing.nominal_low), abs(swing.nominal_high)) + swing.error
+    resistive = [load for load in loads if load.resistance_ohm]
+    load = min(resistive, key=lambda item: item.resistance_ohm) if resistive else loads[0]
+    where = (f"{format_si(load.resistance_ohm, 'Ω')} load" if load.resistance_ohm
+             else "load")
+    current = volts / load.resistance_ohm if load.resistance_ohm else None
+    asked = (f"; the {format_si(volts, 'V')} the stage should put there would take"
+             f" {format_si(current, 'A')}" if current is not None and volts else "")
+    limit = part.output_current_a
+    message = (f"the {where} on {opamp.out} all but shorts {opamp.ref}'s output: against the"
+               f" part's {format_si(part.output_resistance_ohm or 0.0, 'Ω')} output"
+               f" resistance it pulls the loop gain at DC down to"
+               f" {view.figures.loops[opamp.ref].loop_gain_dc:.3g} (without the load"
+               f" {unloaded.loops[opamp.ref].loop_gain_dc:.3g}), so the output does not"
+               f" follow{asked}" + (f", against the part's {format_si(limit, 'A')}"
+                                    if limit else ""))
+    rated = at_least(current, "E12") if current and current <= BUFFER_LIMIT_A else None
+    text = f"check the load on {opamp.out}: a short there destroys the output stage"
+    text += (f"; a real load this low needs a buffer rated for {format_si(rated, 'A')}"
+             if rated else "; no buffer drives it, so correct the load or the wiring")
+    suggestion = Suggestion(text, value=rated, unit="A" if rated else None,
+                            element=opamp.ref)
+    return view.finding(message, load.origin, elements=(opamp.ref,), measured=current,
+                        limit=limit, unit="A" if current is not None else None,
+                        suggestion=suggestion, shorted=True)
 
 
 def _capacitances(stage, opamp) -> list[tuple[str, float]]:

@@ -193,3 +193,36 @@ def test_integrator_without_dc_feedback_cannot_be_checked():
     assert finding.severity is Severity.INFO
     assert finding.message.startswith("could not check the output current of U1")
     assert "no feedback at DC" in finding.message
+
+
+SHORTED = """
+    (version 1)
+    (stage probe-follower
+      (ground gnd) (supply vcc 12V) (supply vee -12V)
+      (opamp U1 (part gp-bipolar) (in+ in) (in- out) (out out) (v+ vcc) (v- vee))
+      (source in (amplitude 1V) (band 100Hz 1kHz))
+      (load out (resistance 1u)))
+"""
+
+
+def test_an_output_all_but_shorted_by_its_load_is_an_output_current_error():
+    # 1 uohm against the class's 75 ohm output resistance divides the loop gain of 2e5 by
+    # about 7.5e7 (voltage divider, any circuits text): below 1, so the loop reads as open.
+    # The fault is the short, not a comparator: output-current reports it, with the 1 V
+    # peak of the follower, plus the gp-bipolar class's 2 mV offset (the project's own
+    # class value) as the worst case adds it, into 1 uohm (Ohm's law); open-loop stays
+    # quiet.
+    finding = only(SHORTED, RULE)
+    assert finding.severity == Severity.ERROR
+    assert "all but shorts U1's output" in finding.message
+    assert finding.measured == pytest.approx((1.0 + 2e-3) / 1e-6, rel=1e-4)
+    assert finding.details["shorted"] is True
+    assert findings(SHORTED, "open-loop") == []
+
+
+def test_a_comparator_without_a_load_problem_stays_with_the_open_loop_rule():
+    # No feedback at all (in- on a divider): taking the load away does not close a loop.
+    text = SHORTED.replace("(in- out)", "(in- ref)").replace(
+        "(load out", "(resistor R1 vcc ref 100k) (resistor R2 ref gnd 100k) (load out")
+    assert findings(text, RULE) == []
+    assert len(findings(text, "open-loop")) == 1
