@@ -351,3 +351,42 @@ def test_loop_of_ideal_voltage_sources_raises_singular_circuit_not_linalg_error(
     figures = analyse_text(SOURCE_LOOPS[name])
     with pytest.raises(SingularCircuit):
         getattr(figures, figure)
+
+
+PARALLEL_INDUCTORS = """
+(stage rl-highpass (ground gnd) (supply vcc 12V) (supply vee -12V)
+  (opamp U1 (part gp-bipolar) (in+ a) (in- out) (out out) (v+ vcc) (v- vee))
+  (resistor R1 in a 1k)
+  (inductor L1 a gnd 10m)
+  (inductor L2 a gnd 10m)
+  (source in (amplitude 1V) (band 1kHz 10kHz))
+  (load out (resistance 10k)))
+"""
+
+
+def test_parallel_inductors_solve_as_their_parallel_value():
+    # Two 10 mH in parallel are one 5 mH (L1 L2 / (L1 + L2): any circuits text); at DC
+    # both short net a, which fixes its voltage but not how the two share the current,
+    # so the stage is solvable and reads as the single inductor does.
+    figures = analyse_text(PARALLEL_INDUCTORS)
+    single = analyse_text(PARALLEL_INDUCTORS.replace("(inductor L1 a gnd 10m)\n", "")
+                          .replace("(inductor L2 a gnd 10m)", "(inductor L2 a gnd 5m)"))
+    assert figures.solvable and not [p for p in figures.problems if p.fatal]
+    both, one = figures.sources[0], single.sources[0]
+    assert both.gain_mid == pytest.approx(one.gain_mid, rel=1e-9)
+    assert both.bandwidth_low_hz == pytest.approx(one.bandwidth_low_hz, rel=1e-9)
+    # R-L high-pass from the source: |H| = wL / sqrt(R^2 + (wL)^2) at the band's
+    # geometric centre (any circuits text), the follower adding its own ~1e-5 gain error
+    w = 2 * math.pi * both.reference_hz
+    expected = w * 5e-3 / math.hypot(1e3, w * 5e-3)
+    assert abs(both.gain_from_source_mid) == pytest.approx(expected, rel=1e-4)
+    assert figures.dc_transfer("a", ("source", 0)) == pytest.approx(0.0, abs=1e-9)
+
+
+def test_an_inductor_across_a_supply_is_still_unsolvable():
+    # A source shorted by an inductor at DC: the loop holds a source, so no voltage
+    # satisfies it (a loop of voltage sources and inductors).
+    figures = analyse_text(PARALLEL_INDUCTORS.replace("(inductor L2 a gnd 10m)",
+                                                      "(inductor L2 vcc gnd 10m)"))
+    fatal = [p for p in figures.problems if p.fatal]
+    assert fatal and "L2" in fatal[0].elements

@@ -24,6 +24,9 @@ import numpy as np
 from checker.analysis.circuit import Circuit
 
 GMIN_SIEMENS = 1e-12  # tie for nets with no path to ground, as a last resort
+# In series with an inductor that closes a loop of inductors, at DC only (inductor_loops):
+# far below any winding's resistance, so it only decides that it carries no current.
+WINDING_OHMS = 1e-6
 
 
 class SingularCircuit(Exception):
@@ -207,11 +210,42 @@ def unreferenced_at_dc_and_ac(circuit: Circuit) -> tuple[list[int], list[int]]:
     return at_dc, [node for node in at_dc if sets.find(node) != ground]
 
 
+def inductor_loops(circuit: Circuit) -> list[int]:
+    """Branches (indices) of inductors that close a loop of inductors alone: parallel
+    inductors, or a ring of them. At DC each inductor is a short, so the loop's node
+    voltages are set but the split of its current is not (ideal inductors have no
+    resistance to share it by); with_winding_resistance gives each of these a tiny
+    resistance at DC, which carries no current, so every voltage is exact."""
+    sets = _Sets(circuit.node_count)
+    closing = []
+    for k, branch in enumerate(circuit.branches):
+        if branch.henries and not sets.union(branch.a, branch.b):
+            closing.append(k)
+    return closing
+
+
 def source_loops(circuit: Circuit) -> list[str]:
-    """Elements closing a loop of voltage sources and inductors (singular at DC)."""
+    """Elements closing a loop of voltage sources and inductors that holds at least one
+    source (singular at DC: the loop fixes a net at two voltages, or shorts a source);
+    loops of inductors alone are left to inductor_loops."""
     sets = _Sets(circuit.node_count)
     culprits = []
-    for branch in circuit.branches:
-        if not sets.union(branch.a, branch.b):
+    skipped = set(inductor_loops(circuit))
+    for k, branch in enumerate(circuit.branches):
+        if k not in skipped and not sets.union(branch.a, branch.b):
             culprits.append(branch.element)
     return culprits
+
+
+def with_winding_resistance(matrices: Matrices, circuit: Circuit, branches: list[int]
+                            ) -> Matrices:
+    """``matrices`` with WINDING_OHMS in series with each inductor branch of
+    ``branches`` (its equation v_a - v_b - (R + sL) i = 0), for the DC system."""
+    if not branches:
+        return matrices
+    G = matrices.G.copy()
+    for k in branches:
+        row = circuit.row_of_branch(k)
+        G[row, row] -= WINDING_OHMS
+    return Matrices(G, matrices.C, matrices.control_rows, matrices.control_pos,
+                    matrices.control_neg)

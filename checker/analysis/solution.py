@@ -23,7 +23,8 @@ import numpy as np
 
 from checker.analysis.circuit import Circuit, build_circuit
 from checker.analysis.grid import frequency_grid, pick
-from checker.analysis.mna import (Matrices, SingularCircuit, assemble, solve, source_loops,
+from checker.analysis.mna import (Matrices, SingularCircuit, assemble, inductor_loops, solve,
+                                  source_loops, with_winding_resistance,
                                   system_stack, unreferenced_at_dc_and_ac, with_ties,
                                   without_rails)
 from checker.analysis.results import AnalysisOptions, AnalysisProblem
@@ -378,6 +379,8 @@ class Solution:
     def dc_system(self) -> np.ndarray:
         """The DC system matrix Y(0), real (n, n) (floating nets tied)."""
         matrices = with_ties(self._untied_matrices, self.unreferenced(at_dc=True))
+        matrices = with_winding_resistance(matrices, self.circuit,
+                                           inductor_loops(self.circuit))
         gains = self.open_loop_gains(np.zeros(1)).real
         return system_stack(matrices, gains, np.zeros(1)).real[0]
 
