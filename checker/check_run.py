@@ -4,6 +4,7 @@ into an exit code; nothing here exits."""
 
 from __future__ import annotations
 
+import contextlib
 import os
 import shutil
 import sys
@@ -49,11 +50,27 @@ class Sink:
 
     def close(self) -> None:
         assert self.writer is not None  # start() made it (open_sinks starts every sink)
-        self.writer.close()
-        if self.output is None:
-            self.stream.flush()
-        else:
-            self.output.commit()
+        with self._named():
+            self.writer.close()
+            if self.output is None:
+                self.stream.flush()
+            else:
+                self.output.commit()
+
+    def add(self, result) -> None:
+        assert self.writer is not None  # start() made it (open_sinks starts every sink)
+        with self._named():
+            self.writer.add(result)
+
+    @contextlib.contextmanager
+    def _named(self):
+        """A failed write (a full disk names no file of its own) says which report."""
+        try:
+            yield
+        except OSError as error:
+            if self.path is None or error.filename is not None:
+                raise
+            raise RunError(f"cannot write {self.path}: {error.strerror or error}") from None
 
     def abandon(self) -> None:
         """Drop a report file that was not finished (the run failed)."""
@@ -118,6 +135,9 @@ class FolderSink:
 
     def start(self) -> None:
         """Nothing to open: the folder is made already and filled on close."""
+
+    def add(self, result) -> None:
+        self.writer.add(result)
 
     def close(self) -> None:
         self.writer.close()
@@ -185,8 +205,7 @@ class CheckRun:
                 stage.findings = baselines.apply_baseline(stage.findings, self.baseline,
                                                           self.matched)
         for sink in self.sinks:
-            assert sink.writer is not None  # open_sinks started every sink
-            sink.writer.add(result)
+            sink.add(result)
         for caution in result.cautions():
             self.failing = self.failing or self.context.caution_fails(caution)
             if self.caution_notice:

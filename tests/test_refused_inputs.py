@@ -5,6 +5,7 @@ for. Every expected message is the project's own wording.
 
 import copy
 import json
+import os
 
 import pytest
 
@@ -223,3 +224,25 @@ def test_a_supply_net_declared_twice_is_reported_at_the_second(tmp_path, capsys)
     assert code == 1
     assert "a.stage:5:3: error input-invalid: stage inv declares supply net vcc twice" \
         " (first at line 3)" in out
+
+
+@pytest.mark.skipif(not os.path.exists("/dev/full"), reason="needs /dev/full")
+def test_a_report_that_cannot_be_written_names_its_path(capsys):
+    # /dev/full fails every write with "no space left": the message must say which
+    # report failed, since the error itself names no file.
+    code, out, err = run(capsys, "check", SAMPLE, "--output", "json:/dev/full",
+                         "--format", "compact")
+    assert code == 2
+    assert "cannot write /dev/full: No space left on device" in err
+    assert_no_traceback(out, err)
+
+
+def test_mend_to_a_missing_folder_names_the_copy_not_a_temporary(tmp_path, capsys):
+    # The sample has two verified fixes, so mend writes, into a folder that is not there.
+    with open(SAMPLE, encoding="utf-8") as handle:
+        stage = write(tmp_path, "a.stage", handle.read())
+    target = tmp_path / "nowhere" / "a.stage"
+    code, _out, err = run(capsys, "mend", stage, "--to", str(target), "--no-config")
+    assert code == 2
+    assert str(target) in err
+    assert ".ampcheck-" not in err and ".tmp" not in err

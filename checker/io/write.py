@@ -48,8 +48,11 @@ class AtomicOutput:
             self.stream = self._open_direct(path, newline)
             return
         folder = os.path.dirname(self.target) or "."
-        handle, self.temporary = tempfile.mkstemp(dir=folder, prefix=TEMPORARY_PREFIX,
-                                                  suffix=TEMPORARY_SUFFIX)
+        try:
+            handle, self.temporary = tempfile.mkstemp(dir=folder, prefix=TEMPORARY_PREFIX,
+                                                      suffix=TEMPORARY_SUFFIX)
+        except OSError as error:  # named by the target, not by the temporary file
+            raise _named(error, path) from None
         try:
             mode = stat.S_IMODE(existing.st_mode) if existing else 0o666 & ~_umask()
             if hasattr(os, "fchmod"):  # POSIX; elsewhere the platform's default stays
@@ -76,7 +79,14 @@ class AtomicOutput:
         return os.fdopen(handle, "w", encoding="utf-8", newline=newline)
 
     def commit(self) -> None:
-        """Flush, fsync and rename over the target (a direct target: flush and close)."""
+        """Flush, fsync and rename over the target (a direct target: flush and close);
+        an OSError names the target (a full disk's error names no file of its own)."""
+        try:
+            self._commit()
+        except OSError as error:
+            raise _named(error, self.path) from None
+
+    def _commit(self) -> None:
         if self.stream.closed:
             return
         if self.temporary is None:
@@ -104,6 +114,11 @@ class AtomicOutput:
             with contextlib.suppress(FileNotFoundError):
                 os.unlink(self.temporary)
             self.temporary = None
+
+
+def _named(error: OSError, path: str) -> OSError:
+    """``error`` as an OSError naming ``path``, so its message says which output failed."""
+    return OSError(error.errno, error.strerror or str(error), path)
 
 
 def _sync_folder(folder: str) -> None:
