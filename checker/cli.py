@@ -153,7 +153,7 @@ def build_parser() -> argparse.ArgumentParser:
                        help="list the findings the baseline holds too (marked); by default"
                             " the text and compact reports leave them out (json, sarif,"
                             " csv and html keep them, marked)")
-    check.add_argument("--stdin-name", metavar="NAME", default="stdin.stage",
+    check.add_argument("--stdin-name", metavar="NAME", default=STDIN_NAME,
                        help="with PATH '-': the name the stage read from standard input"
                             " takes in messages and reports (its ending picks the syntax)")
     check.add_argument("--color", choices=["auto", "always", "never"], default="auto",
@@ -385,6 +385,13 @@ def _outputs(args) -> list[tuple[str, str]]:
         outputs.append((name, path))
     if args.figures_csv:
         outputs.append(("figures-csv", args.figures_csv))
+    seen: dict[str, str] = {}
+    for name, path in outputs:  # two reports into one file: the last would win silently
+        where = os.path.realpath(path)
+        if where in seen:
+            raise UsageError(f"--output {path} is given twice ({seen[where]} and {name});"
+                             " give each report its own file")
+        seen.setdefault(where, name)
     return outputs
 
 
@@ -419,6 +426,9 @@ def cmd_check(args) -> int:
     _set_colour(args.color)
     if "-" in args.paths:
         return _check_stdin(args)
+    if args.stdin_name != STDIN_NAME:
+        raise UsageError("--stdin-name names the stage read from standard input: give '-'"
+                         " as the path")
     absent = [path for path in args.paths if not os.path.exists(path)]
     if absent:
         raise UsageError(f"no such file or directory: {', '.join(absent)}")
@@ -490,6 +500,7 @@ def cmd_check(args) -> int:
 
 
 HUMAN_FORMATS = ("text", "compact")
+STDIN_NAME = "stdin.stage"  # --stdin-name's default
 
 
 def _check_stdin(args) -> int:
@@ -530,6 +541,7 @@ def _check_stdin(args) -> int:
         if args.config:
             args.config = os.path.join(here, args.config)
         args.paths = [name]
+        args.stdin_name = STDIN_NAME  # read already: the check of the file it became
         os.chdir(folder)
         return cmd_check(args)
     finally:

@@ -111,7 +111,8 @@ def parse_option(option: Option, value: object, known_rules=()) -> object:
         return number
     if option.type == "count":
         if not isinstance(value, int) or isinstance(value, bool) or not 0 <= value <= 1024:
-            raise OptionError(f"{name} is a whole number, 0 for one per CPU")
+            zero = ", 0 for one per CPU" if name == "jobs" else ", 0 to leave the lists out"
+            raise OptionError(f"{name} is a whole number from 0 to 1024{zero}")
         return value
     if isinstance(value, bool) or not isinstance(value, (int, float)) or \
             not math.isfinite(value) or not 0 <= value <= 1e9:

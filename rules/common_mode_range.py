@@ -18,7 +18,8 @@ def common_mode_range(view):
         ranges (an AC amplitude counts at its peak over the band), widened by the worst
         case of input offset voltage and bias currents, against the part's input
         common-mode range: from V- plus `input-range-low` to V+ plus
-        `input-range-high`. An input outside it is an error; the inverting input is
+        `input-range-high` (a supply too narrow for those margins leaves no range at
+        all: an error). An input outside it is an error; the inverting input is
         checked only when it is a different net from the non-inverting one, and, with
         negative feedback holding it at the non-inverting input's level, reported only
         when the non-inverting input is not already. An op-amp
@@ -69,6 +70,18 @@ def common_mode_range(view):
             continue
         allowed_low = rails[opamp.v_neg] + part.input_range_low_v
         allowed_high = rails[opamp.v_pos] + part.input_range_high_v
+        if allowed_low > allowed_high:  # the supply is narrower than the range's margins
+            yield view.finding(
+                f"{opamp.ref}'s input common-mode range needs more than the"
+                f" {format_si(rails[opamp.v_pos] - rails[opamp.v_neg], 'V')} between its"
+                f" rails: from {format_si(allowed_low, 'V')} up to"
+                f" {format_si(allowed_high, 'V')} is no range, so no input voltage is inside"
+                " it", opamp.origin, elements=(opamp.ref,), measured=allowed_high,
+                limit=allowed_low, unit="V", allowed_low=allowed_low,
+                allowed_high=allowed_high,
+                suggestion=Suggestion(f"raise {opamp.ref}'s supply, or choose a part whose"
+                                      " input range reaches its rails"))
+            continue
         reported: list[str] = []
         pins = [("in+", opamp.in_pos)]
         if opamp.in_neg != opamp.in_pos:

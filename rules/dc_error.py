@@ -98,6 +98,11 @@ def dc_error(view):
         limit, severity, against = required, None, "the required"  # the rule's own
     else:
         low, high = _usable_swing(stage, figures)
+        if high - low <= 0:  # headroom beyond the supply: the rail-headroom rule says so
+            yield view.cannot_check("the DC error against the output's swing",
+                                    "the output has no usable swing (its part's headroom"
+                                    " takes the whole supply)", stage.origin, ())
+            return
         limit = settings["swing_fraction"] * (high - low)
         severity = Severity.INFO
         against = (f"{settings['swing_fraction'] * 100:g} % of the"

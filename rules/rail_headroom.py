@@ -23,7 +23,8 @@ def rail_headroom(view):
         part states into its `headroom-load`; a heavier load on the output is noted as
         not checked, since the swing is then smaller): beyond that
         it clips (error); within `margin_v` (or the stage's `headroom` requirement) of
-        it, it is warned. The inputs' common-mode range is the `common-mode-range`
+        it, it is warned. Headroom that takes more than the supply between the rails
+        leaves no swing at all (error). The inputs' common-mode range is the `common-mode-range`
         rule's concern, and an op-amp with an input on a net with no DC path (no
         operating point to check) the `floating-input` rule's.
 
@@ -105,6 +106,23 @@ def _output(view, opamp, margin):
                                 f"{', '.join(unknown)} {'gives' if len(unknown) == 1 else 'give'}"
                                 " no range or amplitude, so the output's extremes are"
                                 " unknown", opamp.origin, (opamp.ref,))
+        return
+    if node.clip_high is not None and node.clip_low >= node.clip_high:
+        rails = view.stage.rail_voltages
+        span = rails[opamp.v_pos] - rails[opamp.v_neg]
+        part = opamp.part
+        yield view.finding(
+            f"{opamp.ref}'s output headroom ({format_si(part.output_headroom_high_v or 0.0, 'V')}"
+            f" below v+, {format_si(part.output_headroom_low_v or 0.0, 'V')} above v-) takes"
+            f" more than the {format_si(span, 'V')} between its rails: the output has no"
+            " usable swing at all", opamp.origin, elements=(opamp.ref,),
+            severity=Severity.ERROR, measured=span, limit=(part.output_headroom_high_v or 0.0)
+            + (part.output_headroom_low_v or 0.0), unit="V",
+            suggestion=Suggestion(f"raise {opamp.ref}'s supply above the part's"
+                                  " headroom, or choose a part whose output swings closer"
+                                  " to its rails"),
+            usable_low=node.clip_low, usable_high=node.clip_high, sides=["upper", "lower"],
+            **view.answers("headroom"))
         return
     over_high = node.high - node.clip_high
     over_low = node.clip_low - node.low

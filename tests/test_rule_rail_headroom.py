@@ -221,3 +221,29 @@ def test_a_load_heavier_than_the_headroom_load_is_noted_as_not_checked():
     notes = [f for f in findings(text, RULE) if f.details.get("unchecked")]
     assert len(notes) == 1 and "into 10 kΩ or more" in notes[0].message
     assert not [f for f in findings(BOTH_SIDES, RULE) if f.details.get("unchecked")]
+
+
+ONE_VOLT = """
+    (version 1)
+    (stage low-rail
+      (ground gnd) (supply vcc 1V)
+      (opamp U1 (part gp-bipolar) (in+ in) (in- out) (out out) (v+ vcc) (v- gnd))
+      (source in (range 0.2V 0.4V))
+      (load out (resistance 10k)))
+"""
+
+
+def test_headroom_beyond_the_supply_leaves_no_swing_and_says_so():
+    # The gp-bipolar class keeps 1.5 V from each rail (the project's class values): on a
+    # 1 V supply its clip limits cross (1.5 V above the low rail, -0.5 V below the top),
+    # which is no swing at all, not a swing from 1.5 V down to -0.5 V.
+    finding = only(ONE_VOLT, "rail-headroom")
+    assert finding.severity == Severity.ERROR
+    assert "no usable swing at all" in finding.message
+    assert finding.measured == pytest.approx(1.0) and finding.limit == pytest.approx(3.0)
+    # the DC-error rule cannot take a fraction of a swing that is not there
+    (dc,) = findings(ONE_VOLT, "dc-error")
+    assert dc.details.get("unchecked") and "no usable swing" in dc.message
+    # and the input range (2 V above v-, 2 V below v+ for the class) is no range either
+    (cm,) = findings(ONE_VOLT, "common-mode-range")
+    assert "is no range" in cm.message
