@@ -304,6 +304,13 @@ def _bandwidth(c: _Context) -> Verdict:
         f"beyond {format_si(top, 'Hz')} (the analysis grid's top)"
     statement = f"-3 dB bandwidth of {signal.label} {shown}"
     met = reaches(edge, required)
+    no_gbw = [f"part {o.part.name} of {o.ref} gives no GBW" for o in c.stage.opamps
+              if o.part.gbw_hz is None]
+    if met and no_gbw:  # the op-amp's own limit on the edge is unknown, so no pass
+        return c.verdict("bandwidth", UNCHECKED, text, statement, measured=edge,
+                         limit=required, unit="Hz",
+                         reason="; ".join(no_gbw) + ", so the op-amp's limit on the"
+                         " bandwidth is unknown")
     return c.verdict("bandwidth", MET if met else NOT_MET, text, statement,
                      measured=edge, limit=required, unit="Hz",
                      reason=None if met else f"short of the required {format_si(required, 'Hz')}")
@@ -369,7 +376,15 @@ def _headroom(c: _Context) -> Verdict:
         node = figures.node_range(opamp.out)
         margin = min(node.clip_high - node.high, node.low - node.clip_low)
         if opamp.part.output_headroom_high_v is None or opamp.part.output_headroom_low_v is None:
-            unknown.append(f"part {opamp.part.name} of {opamp.ref} gives no output headroom")
+            unknown.append(f"part {opamp.part.name} of {opamp.ref} gives no output headroom"
+                           " (the rails were used)")
+        rated = opamp.part.headroom_load_ohm
+        loads = [load.resistance_ohm for load in stage.loads
+                 if load.net == opamp.out and load.resistance_ohm]
+        if rated and loads and min(loads) < rated * (1 - 1e-9):  # as rail-headroom notes
+            unknown.append(f"{opamp.out} carries {format_si(min(loads), 'Ω')}, a heavier"
+                           f" load than the {format_si(rated, 'Ω')} part {opamp.part.name}"
+                           " states its headroom into, so it swings less")
         if worst is None or margin < worst[0]:
             worst = (margin, opamp, node)
     if worst is None:
@@ -387,7 +402,7 @@ def _headroom(c: _Context) -> Verdict:
     if unknown or skipped:
         return c.verdict("headroom", UNCHECKED, text, statement, measured=margin,
                          limit=required, unit="V",
-                         reason="; ".join(unknown + skipped) + " (the rails were used)")
+                         reason="; ".join(unknown + skipped))
     return c.verdict("headroom", MET, text, statement, measured=margin, limit=required,
                      unit="V")
 

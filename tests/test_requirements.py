@@ -316,3 +316,33 @@ def test_a_comparator_with_hysteresis_is_left_to_the_open_loop_rule():
         """
     found, _verdicts = checked(text)
     assert [f.rule for f in found if f.rule in ("open-loop", "swapped-inputs")] == ["open-loop"]
+
+
+# -- missing data is no pass -------------------------------------------------------------
+def test_a_bandwidth_the_edge_meets_is_unchecked_without_the_parts_gbw():
+    # IDEAL gives an open-loop gain and no GBW: the solved edge is far above 5 MHz, but a
+    # real part's GBW would set it (about GBW / 11 here), so the verdict cannot be a pass.
+    verdict = verdicts(inverting("(bandwidth 5MHz)", source="(band 0Hz 5MHz)"))["bandwidth"]
+    assert verdict.status == UNCHECKED
+    assert "gives no GBW" in verdict.reason
+
+
+def test_a_bandwidth_that_fails_even_without_a_gbw_is_not_met():
+    # A 100 nF feedback capacitor across 100k puts a pole at 1/(2 pi R C) = 15.9 Hz (any
+    # circuits text): short of 5 MHz whatever the op-amp does.
+    text = inverting("(bandwidth 5MHz)", source="(band 0Hz 5MHz)").replace(
+        "(load out", "(capacitor C1 fb out 100n) (load out")
+    assert verdicts(text)["bandwidth"].status == NOT_MET
+
+
+def test_headroom_under_a_load_heavier_than_the_headroom_load_is_unchecked():
+    # The part states its 1 V headroom into 10k or more; 600 ohm on the output swings
+    # less, by an amount the data does not give.
+    part = params(open_loop_gain=1e6, gbw=1e6, output_headroom_high=1.0,
+                  output_headroom_low=1.0, headroom_load=10e3)
+    text = inverting("(headroom 0.4V)", opamp=part).replace("(resistance 10k)",
+                                                            "(resistance 600)")
+    verdict = verdicts(text)["headroom"]
+    assert verdict.status == UNCHECKED
+    assert "heavier load than the 10 kΩ" in verdict.reason
+    assert verdicts(inverting("(headroom 0.4V)", opamp=part))["headroom"].status == MET
