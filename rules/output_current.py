@@ -36,7 +36,10 @@ def output_current(view):
         output current. A load so low that, against the part's output resistance, it
         pulls the loop gain below 1 (the loop closes once the stage's loads are taken
         away) is reported as a short of the output, with the current the unloaded
-        stage's swing would drive into it; the open-loop rule then stays quiet.
+        stage's swing would drive into it; the open-loop rule then stays quiet. The
+        resistive current comes from the DC solution, so an AC source that reaches the
+        output mostly above DC (through a coupling capacitor, or a band-pass) is not in
+        it: where the total passes, the rule says it could not check it in full.
 
     Why it matters:
         At its output-current limit an op-amp stops following its input: the output
@@ -97,6 +100,13 @@ def output_current(view):
         total = resistive + capacitive
         limit = part.output_current_a
         if within(total, limit):
+            uncounted = _ac_swings(figures, opamp)
+            if uncounted:
+                yield view.cannot_check(
+                    f"the output current of {opamp.ref} in full",
+                    f"{uncounted} reaches {opamp.out} mostly above DC, and the current into"
+                    " the load and feedback network is taken from the DC solution, so"
+                    " its share is not counted", opamp.origin, (opamp.ref,))
             continue
         message = (f"{opamp.ref} must deliver {format_si(total, 'A')} but its part is"
                    f" limited to {format_si(limit, 'A')}: {format_si(resistive, 'A')} into"
@@ -146,6 +156,32 @@ def _shorted(view, opamp, loads, unloaded):
     return view.finding(message, load.origin, elements=(opamp.ref,), measured=current,
                         limit=limit, unit="A" if current is not None else None,
                         suggestion=suggestion, shorted=True)
+
+
+# An AC signal whose in-band transfer to the output is more than this times its DC
+# transfer (a coupling capacitor, a band-pass) moves the output by more than the DC
+# solution says.
+AC_SWING_RATIO = 2.0
+
+
+def _ac_swings(figures, opamp) -> str:
+    """The names of the AC sources (an amplitude and a band) whose peak in-band transfer
+    to ``opamp``'s output exceeds AC_SWING_RATIO times their DC transfer; '' if none."""
+    frequencies = figures.frequencies_hz
+    names = []
+    for index, source in enumerate(figures.stage.sources):
+        if source.amplitude is None or not source.band_high_hz:
+            continue
+        low = source.band_low_hz or 0.0
+        band = (frequencies >= low * (1 - 1e-12)) & \
+            (frequencies <= source.band_high_hz * (1 + 1e-12))
+        if not band.any():
+            continue
+        ac = float(np.max(np.abs(figures.node_response(opamp.out, ("source", index))[band])))
+        dc = abs(figures.dc_transfer(opamp.out, ("source", index)))
+        if ac > AC_SWING_RATIO * dc and ac * source.amplitude > 0:
+            names.append(source.name)
+    return ", ".join(names)
 
 
 def _capacitances(stage, opamp) -> list[tuple[str, float]]:

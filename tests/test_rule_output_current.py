@@ -226,3 +226,25 @@ def test_a_comparator_without_a_load_problem_stays_with_the_open_loop_rule():
         "(load out", "(resistor R1 vcc ref 100k) (resistor R2 ref gnd 100k) (load out")
     assert findings(text, RULE) == []
     assert len(findings(text, "open-loop")) == 1
+
+
+AC_COUPLED = """
+    (version 1)
+    (stage ac-driver
+      (ground gnd) (supply vcc 15V) (supply vee -15V)
+      (opamp U1 (params (open-loop-gain 1e6) (gbw 10MHz) (output-current 50mA))
+        (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+      (capacitor C1 in x 10u) (resistor R1 x fb 1k) (resistor R2 fb out 100k)
+      (source in (amplitude 0.1V) (band 1kHz 10kHz))
+      (load out (resistance 100)))
+"""
+
+
+def test_an_ac_coupled_output_is_not_passed_on_its_dc_current():
+    # Through the 10 uF coupling capacitor the source has no DC transfer, so the DC
+    # solution draws nothing; in band the output swings 100 x 0.1 V = 10 V into 100 ohm,
+    # 100 mA (Ohm's law) against 50 mA. The rule takes its currents from the DC
+    # solution, so it must say it could not count this one, not pass it.
+    (finding,) = findings(AC_COUPLED, RULE)
+    assert finding.details.get("unchecked")
+    assert "reaches out mostly above DC" in finding.message
