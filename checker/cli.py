@@ -757,6 +757,11 @@ def cmd_schema(args) -> int:
     return EXIT_OK
 
 
+# (as a kind of file, as what a file is read as) and an example name, per syntax
+_SYNTAX_WORDS = {"json": ("JSON", "JSON"), "sexp": ("s-expression", "s-expressions")}
+_EXAMPLE = {"json": "NAME.stage.json", "sexp": "NAME.stage"}
+
+
 def cmd_convert(args) -> int:
     from checker.io.load import read_file, syntax_of
     from checker.io.positions import InputErrors
@@ -773,12 +778,11 @@ def cmd_convert(args) -> int:
     if args.output is None:
         sys.stdout.write(text)
         return EXIT_OK
-    wanted = "json" if args.to == "json" else "sexp"
-    if syntax_of(args.output) != wanted:  # the ending says how the file is read
-        raise UsageError(f"-o {args.output}: a file ending so is read as"
-                         f" {'JSON' if syntax_of(args.output) == 'json' else 's-expressions'};"
-                         f" name the {'JSON' if wanted == 'json' else 's-expression'} file"
-                         f" {'NAME.stage.json' if wanted == 'json' else 'NAME.stage'}")
+    wanted, ending = ("json" if args.to == "json" else "sexp"), syntax_of(args.output)
+    if ending != wanted:  # the ending says how the file is read
+        read_as, kind, example = _SYNTAX_WORDS[ending], _SYNTAX_WORDS[wanted], _EXAMPLE[wanted]
+        raise UsageError(f"-o {args.output}: a file ending so is read as {read_as[1]};"
+                         f" name the {kind[0]} file {example}")
     try:
         write_new_file(args.output, text, protect=[args.file])
     except (OSError, ValueError) as error:

@@ -8,6 +8,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from checker.analysis.grid import band_points
+
 # Requirements only a closed loop can meet: a stage that states one means to be linear.
 CLOSED_LOOP_REQUIREMENTS = ("gain", "gain-tolerance", "bandwidth", "phase-margin", "cmrr")
 
@@ -25,10 +27,9 @@ def regenerative(figures, opamp) -> bool:
         return False
     frequencies = figures.frequencies_hz
     for source in figures.stage.sources:
-        if not source.band_high_hz:
+        band = band_points(frequencies, source)
+        if band is None:
             continue
-        low = source.band_low_hz or frequencies[0]
-        band = (frequencies >= low * (1 - 1e-12)) & (frequencies <= source.band_high_hz * (1 + 1e-12))
         T = loop.loop_gain[band]
         if np.any((np.abs(T) >= 1.0) & (np.abs(np.angle(T)) >= np.radians(135.0))):
             return True

@@ -6,6 +6,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from checker.analysis.grid import band_points
 from checker.analysis.topology import classify
 from checker.changes import SetLoad, SetValue
 from checker.engine import rule
@@ -170,12 +171,8 @@ def _ac_swings(figures, opamp) -> str:
     frequencies = figures.frequencies_hz
     names = []
     for index, source in enumerate(figures.stage.sources):
-        if source.amplitude is None or not source.band_high_hz:
-            continue
-        low = source.band_low_hz or 0.0
-        band = (frequencies >= low * (1 - 1e-12)) & \
-            (frequencies <= source.band_high_hz * (1 + 1e-12))
-        if not band.any():
+        band = band_points(frequencies, source)
+        if source.amplitude is None or band is None:
             continue
         ac = float(np.max(np.abs(figures.node_response(opamp.out, ("source", index))[band])))
         dc = abs(figures.dc_transfer(opamp.out, ("source", index)))
@@ -209,10 +206,8 @@ def _slope(figures, net: str) -> float:
         if not source.band_high_hz or source.low is None:
             continue
         half = (source.high - source.low) / 2
-        low = source.band_low_hz or 0.0
-        band = (frequencies >= low * (1 - 1e-12)) & \
-            (frequencies <= source.band_high_hz * (1 + 1e-12))
-        if half <= 0 or not band.any():
+        band = band_points(frequencies, source)
+        if half <= 0 or band is None:
             continue
         response = np.abs(figures.node_response(net, ("source", index)))[band]
         total += float(np.max(2 * np.pi * frequencies[band] * half * response))

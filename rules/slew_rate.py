@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 
+from checker.analysis.grid import band_points
 from checker.changes import SetPartParameter
 from checker.engine import rule
 from checker.findings import Suggestion
@@ -121,10 +122,8 @@ def _demands(figures, net: str) -> list[tuple]:
         half = (source.high - source.low) / 2
         if half <= 0:
             continue
-        low = source.band_low_hz or 0.0
-        band = (frequencies >= low * (1 - 1e-12)) & \
-            (frequencies <= source.band_high_hz * (1 + 1e-12))
-        if not band.any():
+        band = band_points(frequencies, source)
+        if band is None:
             continue
         peaks = half * np.abs(figures.node_response(net, ("source", index)))[band]
         rates = 2 * np.pi * frequencies[band] * peaks

@@ -105,8 +105,12 @@ def test_convert_refuses_an_output_whose_ending_reads_another_syntax(tmp_path, c
     code, _out, err = run(capsys, "convert", stage, "--to", "json", "-o",
                           str(tmp_path / "b.stage"))
     assert code == 2
-    assert "read as s-expressions" in err
+    assert "read as s-expressions; name the JSON file NAME.stage.json" in err
     assert not (tmp_path / "b.stage").exists()
+    code, _out, err = run(capsys, "convert", stage, "--to", "sexp", "-o",
+                          str(tmp_path / "c.stage.json"))
+    assert code == 2
+    assert "read as JSON; name the s-expression file NAME.stage" in err
     code, _out, _err = run(capsys, "convert", stage, "--to", "json", "-o",
                            str(tmp_path / "b.stage.json"))
     assert code == 0 and (tmp_path / "b.stage.json").exists()

@@ -91,15 +91,22 @@ def band_centre(source: Source) -> float | None:
     return None
 
 
+def band_points(frequencies: np.ndarray, source: Source) -> np.ndarray | None:
+    """The grid points inside a source's band (from the grid's start where it gives no
+    lower edge), a relative 1e-12 either side so a band edge on a grid point counts;
+    None where the source gives no band or no grid point lies in it."""
+    if not source.band_high_hz:
+        return None
+    low = source.band_low_hz or frequencies[0]
+    mask = (frequencies >= low * (1 - 1e-12)) & \
+        (frequencies <= source.band_high_hz * (1 + 1e-12))
+    return mask if mask.any() else None
+
+
 def band_mask(frequencies: np.ndarray, source: Source) -> np.ndarray:
     """The grid points inside a source's band (every point where it gives none)."""
-    if source.band_high_hz:
-        low = source.band_low_hz or frequencies[0]
-        mask = (frequencies >= low * (1 - 1e-12)) & \
-            (frequencies <= source.band_high_hz * (1 + 1e-12))
-        if mask.any():
-            return mask
-    return np.ones(frequencies.shape, dtype=bool)
+    mask = band_points(frequencies, source)
+    return np.ones(frequencies.shape, dtype=bool) if mask is None else mask
 
 
 def grid_upper_edges(frequencies: np.ndarray, gains: np.ndarray, at: int) -> np.ndarray:
