@@ -14,8 +14,9 @@ def common_mode_range(view):
     """
     What it checks:
         For every op-amp (an input moved by a source that gives no range is reported as
-        not checked), the DC extremes of each input net over the sources' declared
-        ranges (an AC amplitude counts at its peak over the band), widened by the worst
+        not checked), the extremes of each input net over the sources' declared
+        ranges (a source with a band swings at its peak transfer over the band, its
+        midpoint at DC), widened by the worst
         case of input offset voltage and bias currents, against the part's input
         common-mode range: from V- plus `input-range-low` to V+ plus
         `input-range-high` (a supply too narrow for those margins leaves no range at

@@ -166,17 +166,18 @@ AC_SWING_RATIO = 2.0
 
 
 def _ac_swings(figures, opamp) -> str:
-    """The names of the AC sources (an amplitude and a band) whose peak in-band transfer
-    to ``opamp``'s output exceeds AC_SWING_RATIO times their DC transfer; '' if none."""
+    """The names of the sources that swing over a band (an amplitude, or a range with a
+    band) whose peak in-band transfer to ``opamp``'s output exceeds AC_SWING_RATIO times
+    their DC transfer; '' if none."""
     frequencies = figures.frequencies_hz
     names = []
     for index, source in enumerate(figures.stage.sources):
         band = band_points(frequencies, source)
-        if source.amplitude is None or band is None:
+        if source.low is None or band is None:
             continue
         ac = float(np.max(np.abs(figures.node_response(opamp.out, ("source", index))[band])))
         dc = abs(figures.dc_transfer(opamp.out, ("source", index)))
-        if ac > AC_SWING_RATIO * dc and ac * source.amplitude > 0:
+        if ac > AC_SWING_RATIO * dc and ac * (source.high - source.low) > 0:
             names.append(source.name)
     return ", ".join(names)
 

@@ -14,9 +14,10 @@ from checker.units import format_si
 def rail_headroom(view):
     """
     What it checks:
-        For every op-amp with negative feedback, the DC extremes of its output over the
-        sources' declared ranges (an AC amplitude counts at its peak gain over the
-        band), widened by the worst case of input offset voltage and bias currents; a
+        For every op-amp with negative feedback, the extremes of its output over the
+        sources' declared ranges (a source with a band swings at its peak gain over
+        the band, its midpoint at the DC gain, so a coupling capacitor's gain counts),
+        widened by the worst case of input offset voltage and bias currents; a
         source that moves the output but gives no range leaves its extremes unknown,
         and the rule says it could not check.
         The output may swing to each rail less the part's output headroom (which a

@@ -247,3 +247,51 @@ def test_headroom_beyond_the_supply_leaves_no_swing_and_says_so():
     # and the input range (2 V above v-, 2 V below v+ for the class) is no range either
     (cm,) = findings(ONE_VOLT, "common-mode-range")
     assert "is no range" in cm.message
+
+
+# An AC-coupled non-inverting stage: R1 reaches ground through C1, so the gain is 1 at DC
+# and 1 + R2/|R1 + 1/(j w C1)| in the band (non-inverting gain 1 + Zf/Zg, Sedra and
+# Smith, op-amp chapter). At 100 Hz, the bottom of the band, that is 10.998; the finite
+# loop gain (A0 1e6, GBW 1 MHz: |A| = 1e4 at 100 Hz) takes about 0.1 % off it.
+def ac_coupled(low: str, high: str, band: str = "(band 100Hz 10kHz)") -> str:
+    return f"""
+(stage ac-gain (ground gnd) (supply vcc 5V) (supply vee -5V)
+  (opamp U1 {OPAMP} (in+ in) (in- fb) (out out) (v+ vcc) (v- vee))
+  (resistor R1 fb mid 1k) (capacitor C1 mid gnd 100u) (resistor R2 fb out 10k)
+  (resistor R3 in gnd 100k)
+  (source in (range {low} {high}) {band})
+  (load out (resistance 10k)))
+"""
+
+
+def ac_gain() -> float:
+    """|1 + R2 / (R1 + 1/(j 2 pi 100 Hz C1))| with the ideal op-amp."""
+    import cmath
+    zg = 1e3 + 1 / (2j * cmath.pi * 100 * 100e-6)
+    return abs(1 + 10e3 / zg)
+
+
+def test_a_range_with_a_band_swings_at_the_gain_a_coupling_capacitor_passes():
+    # -1 V to 1 V swings the output by the in-band gain, about +-11 V, against the usable
+    # +-3.5 V: clipping that the DC gain of 1 (+-1 V) would pass.
+    assert ac_gain() == pytest.approx(10.998, abs=1e-3)
+    text = ac_coupled("-1V", "1V")
+    finding = only(text, RULE)
+    assert finding.severity is Severity.ERROR and finding.line == line_of(text, "(opamp U1")
+    assert finding.measured == pytest.approx(ac_gain(), rel=2e-3)
+    # its midpoint is DC, so only the swing goes through the in-band gain: 0 V +- 0.2 V
+    # about a 1 V midpoint gives 1 V +- 2.2 V, inside the swing
+    assert findings(ac_coupled("0.8V", "1.2V"), RULE) == []
+
+
+def test_the_input_window_of_an_ac_coupled_swing_keeps_its_midpoint():
+    # The swing that fits about 0 V: (3.5 V less the DC error) / the in-band gain.
+    finding = only(ac_coupled("-1V", "1V"), RULE)
+    half = (5.0 - HEADROOM - (VOS + IB * 10e3)) / ac_gain()  # DC gain 1: Vos + Ib Rf
+    assert half == pytest.approx(0.318, abs=1e-3)
+    assert f"from -{half * 1e3:.0f} mV to {half * 1e3:.0f} mV" in finding.suggestion.text
+
+
+def test_a_range_without_a_band_is_read_at_dc():
+    # the same source with no band is a DC level: gain 1, +-1 V, no clipping
+    assert findings(ac_coupled("-1V", "1V", band=""), RULE) == []

@@ -1,9 +1,11 @@
-"""DC extremes over the sources' ranges: a net's voltage, a voltage across two nets, the
+"""Extremes over the sources' ranges: a net's voltage, a voltage across two nets, the
 input window that fits, and each op-amp's output current.
 
-The DC solution is linear in every excitation (supplies, sources, offsets, bias
-currents), so an extreme is the rails' operating point plus each source's half-span
-times |its transfer| (an AC amplitude at its peak gain over the band), and the worst
+The solution is linear in every excitation (supplies, sources, offsets, bias
+currents), so an extreme is the rails' operating point plus each source's midpoint
+times its DC transfer plus its half-span (or amplitude) times |its transfer| for the
+swing: the peak over its band where it gives one (the DC transfer too for a band from
+0 Hz), the DC transfer otherwise; and the worst
 case of the error terms adds with the sign that hurts (superposition; DC error terms as
 in Eggleston, Basic Electronics for Scientists and Engineers, Cambridge University
 Press 2011, section 6.4). Volts and amperes, SI.
@@ -31,14 +33,30 @@ def _source_terms(solution: Solution) -> list[tuple[Excitation, float, float, So
     return terms
 
 
+def _band_peak(solution: Solution, source: Source, response: np.ndarray, dc: float) -> float:
+    """The largest |transfer| a source's swing meets over its band: the peak of the
+    solved ``response`` over the band's grid points, and ``dc`` too where the band
+    starts at 0 Hz (the grid starts above it)."""
+    band = band_mask(solution.frequencies_hz, source)
+    peak = float(np.max(np.abs(response[band])))
+    return max(peak, abs(dc)) if not source.band_low_hz else peak
+
+
+def read_over_band(source: Source) -> bool:
+    """A source whose swing is read over its band (a band given) rather than at DC: a
+    range with a band from 10 Hz swings about its midpoint at 10 Hz and up, which a
+    coupling capacitor passes and the DC solution does not (docs/format.md)."""
+    return bool(source.band_high_hz)
+
+
 def _swing_transfer(solution: Solution, net: str, i: int, source: Source) -> float:
-    """|transfer| from source i to ``net`` for its swing: the DC transfer for a range,
-    the peak over its band for an AC amplitude."""
+    """|transfer| from source i to ``net`` for its swing (its half-span, or its AC
+    amplitude): the peak over its band where it gives one, else the DC transfer."""
     name = Excitation.source(i)
-    if source.amplitude is not None and source.band_high_hz:
-        band = band_mask(solution.frequencies_hz, source)
-        return float(np.max(np.abs(solution.node_response(net, name)[band])))
-    return abs(solution.dc_transfer(net, name))
+    dc = solution.dc_transfer(net, name)
+    if read_over_band(source):
+        return _band_peak(solution, source, solution.node_response(net, name), dc)
+    return abs(dc)
 
 
 def linear_range(solution: Solution, transfer, swing_transfer) -> tuple[float, float, float]:
@@ -90,10 +108,9 @@ def difference_range(solution: Solution, net_a: str, net_b: str) -> NodeRange:
 
     def swing(i: int, source: Source) -> float:
         name = Excitation.source(i)
-        if source.amplitude is not None and source.band_high_hz:
-            band = band_mask(solution.frequencies_hz, source)
+        if read_over_band(source):
             response = solution.node_response(net_a, name) - solution.node_response(net_b, name)
-            return float(np.max(np.abs(response[band])))
+            return _band_peak(solution, source, response, transfer(name))
         return abs(transfer(name))
 
     low, high, error = linear_range(solution, transfer, swing)
@@ -114,7 +131,9 @@ def unranged_sources(solution: Solution, nets) -> list[str]:
 def input_window(solution: Solution, net: str, index: int) -> tuple[float, float] | None:
     """The values of source ``index`` (volts or amperes) that keep ``net`` inside its
     clip limits, the other sources over their ranges and the errors included; None
-    where the net has no clip limits or does not depend on the source."""
+    where the net has no clip limits or does not depend on the source. A source whose
+    swing reaches the net by another transfer than its midpoint (a band above DC
+    through a coupling capacitor) keeps its midpoint: _swing_window."""
     source = solution.stage.sources[index]
     node = node_range(solution, net)
     if node.clip_low is None or source.low is None:
@@ -122,16 +141,34 @@ def input_window(solution: Solution, net: str, index: int) -> tuple[float, float
     # The builder sets low and high together; node_range sets both clip ends or neither.
     assert source.high is not None and node.clip_high is not None
     transfer = solution.dc_transfer(net, Excitation.source(index))
-    if abs(transfer) < 1e-15:
-        return None
+    swing = _swing_transfer(solution, net, index, source)
     mid = (source.low + source.high) / 2
     half = (source.high - source.low) / 2
+    if abs(swing - abs(transfer)) > 1e-9 * swing:
+        return _swing_window(node, mid, half, swing)
+    if abs(transfer) < 1e-15:
+        return None
     centre_other = (node.nominal_low + node.nominal_high) / 2 - mid * transfer
     spread_other = (node.nominal_high - node.nominal_low) / 2 - half * abs(transfer) \
         + node.error
     ends = sorted(((node.clip_low + spread_other - centre_other) / transfer,
                    (node.clip_high - spread_other - centre_other) / transfer))
     return ends[0], ends[1]
+
+
+def _swing_window(node: NodeRange, mid: float, half: float, swing: float
+                  ) -> tuple[float, float] | None:
+    """For a source whose swing reaches the net by another transfer than its midpoint
+    (read over a band: a coupling capacitor passes the swing, not the midpoint), the
+    values about the declared midpoint whose swing keeps the net inside its clip limits,
+    the other sources and the errors included; None where no swing fits."""
+    assert node.clip_low is not None and node.clip_high is not None
+    centre = (node.nominal_low + node.nominal_high) / 2
+    spread_other = (node.nominal_high - node.nominal_low) / 2 - half * swing + node.error
+    room = min(node.clip_high - centre - spread_other, centre - spread_other - node.clip_low)
+    if room < 0:
+        return None
+    return mid - room / swing, mid + room / swing
 
 
 def output_currents(solution: Solution) -> dict[str, OutputCurrent]:
