@@ -144,6 +144,9 @@ def parse_value(value: object, kind: str) -> float:
             number = _parse_text(value.strip(), quantity, kind)
         except OverflowError:  # decibels whose ratio overflows: 7000dB
             raise UnitError(f"{_short(value)} is beyond the range of a number") from None
+        if number == 0.0 and underflows(value.strip()):
+            raise UnitError(f"{_short(value)} is too small to be a number (below about"
+                            " 1e-308 it reads as 0)")
     if not math.isfinite(number):
         beyond = " (a number beyond about 1.8e308 reads as infinity)" \
             if isinstance(value, float) and math.isinf(value) else ""
@@ -151,6 +154,17 @@ def parse_value(value: object, kind: str) -> float:
     if number != 0.0 and abs(number) < sys.float_info.min:
         raise UnitError(f"{_short(value)} is too small to be a number (a denormal)")
     return number
+
+
+def underflows(text: str) -> bool:
+    """``text`` starts with a number that is not zero as written but reads as 0.0: its
+    exponent is below a double's (1e-400), so it would pass as a plain 0."""
+    plain = _PLAIN.match(text)
+    if not plain:
+        return False
+    number = plain.group(1)
+    mantissa = re.split("[eE]", number)[0]
+    return float(number) == 0.0 and any(digit in mantissa for digit in "123456789")
 
 
 def check_plausible(number: float, kind: str, text: object = None) -> None:

@@ -151,6 +151,26 @@ def test_parse_value_takes_ascii_decimal_only(text):
     assert parse_value("10k", "resistance") == 10e3
 
 
+@pytest.mark.parametrize("value", ["1e-400", "2.5E-999", "1e-400k"])
+def test_a_number_too_small_for_a_double_is_refused_not_read_as_zero(tmp_path, capsys,
+                                                                     value):
+    # Python reads 1e-400 as 0.0 (below the smallest double, about 4.9e-324); a value
+    # written as non-zero must not pass as 0 (a zero-ohm short, a missing capacitor).
+    stage = write(tmp_path, "a.stage", GOOD_STAGE.replace("vin sum 10k", f"vin sum {value}"))
+    text = json.dumps(GOOD_JSON).replace('"10k"', value if value[-1].isdigit()
+                                         else f'"{value}"', 1)
+    document = write(tmp_path, "a.stage.json", text)
+    for path in (stage, document):
+        code, out = check_compact(capsys, path)
+        assert code == 1
+        assert "value of resistor R1" in out and "too small to be a number" in out, out
+
+
+@pytest.mark.parametrize("text", ["0", "0.0", "0e-400", "-0.000e5", "0R"])
+def test_a_zero_written_as_zero_is_still_zero(text):
+    assert parse_value(text, "resistance") == 0.0
+
+
 def test_a_json_integer_of_thousands_of_digits_is_reported_at_its_value(tmp_path, capsys):
     text = json.dumps(GOOD_JSON).replace('"10k"', "1" + "0" * 5000)
     path = write(tmp_path, "a.stage.json", text)

@@ -12,6 +12,7 @@ import json
 import re
 
 from checker.io.positions import InputErrors, InputProblem, LineIndex, Path, Position
+from checker.units import underflows
 
 _TOKEN = re.compile(r'"(?:[^"\\]|\\.)*"|[{}\[\]:,]|[^\s{}\[\]:,"]+')
 MAX_DEPTH = 40
@@ -39,13 +40,21 @@ def _integer(text: str) -> int:
     return int(text) if len(text) <= 4000 else _LongInteger(text)
 
 
+def _real(text: str) -> float | str:
+    """A JSON real; one too small for a double (1e-400, which reads as 0.0) stays its
+    text, for the value check to refuse rather than pass as 0."""
+    value = float(text)
+    return text if value == 0.0 and underflows(text) else value
+
+
 def read_json(text: str, path: str) -> tuple[dict, dict[Path, Position]]:
     """Parse a JSON stage file to (tree, positions); raise InputErrors on bad input."""
     if not text.strip():
         raise InputErrors([InputProblem(path, 1, 1, "the file is empty: expected a JSON"
                                         ' object such as {"stages": [...]}')])
     try:
-        tree = json.loads(text, parse_constant=_reject_constant, parse_int=_integer)
+        tree = json.loads(text, parse_constant=_reject_constant, parse_int=_integer,
+                          parse_float=_real)
     except json.JSONDecodeError as error:
         raise InputErrors([InputProblem(path, error.lineno, error.colno,
                                         f"invalid JSON: {error.msg}")]) from None

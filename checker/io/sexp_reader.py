@@ -17,6 +17,7 @@ import sexpdata
 
 from checker.io.grammar import FORMS, Child, Form, positional_slots
 from checker.io.positions import InputErrors, InputProblem, LineIndex, Path, Position
+from checker.units import underflows
 
 MAX_DEPTH = 40
 MAX_REPORTED = 10
@@ -47,12 +48,15 @@ def _string(token: str) -> str:
 def _atom(token: str):
     """sexpdata's reading of a bare atom, except that a number is written in ASCII
     digits without underscores, as in JSON and the format guide: Python's own readings
-    of 1_000 or of other scripts' digits stay text, for the value check to refuse."""
+    of 1_000 or of other scripts' digits stay text, for the value check to refuse, and
+    so does a number too small for a double (1e-400), which Python reads as 0.0."""
     value = _ATOM(token)
     if isinstance(value, sexpdata.Symbol):
         return str(value)
     if "_" in token or not token.isascii():
         return token
+    if value == 0.0 and isinstance(value, float) and underflows(token):
+        return token  # 1e-400: not 0 as written, for the value check to refuse
     return value
 
 
