@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import difflib
 import re
+from functools import lru_cache
 
 import sexpdata
 
@@ -45,6 +46,7 @@ def _string(token: str) -> str:
     return _ESCAPE.sub(lambda match: sexpdata.String.unquote(match.group()), body)
 
 
+@lru_cache(maxsize=4096)  # net names, values and keywords repeat from file to file
 def _atom(token: str):
     """sexpdata's reading of a bare atom, except that a number is written in ASCII
     digits without underscores, as in JSON and the format guide: Python's own readings
