@@ -20,6 +20,7 @@ from checker.analysis.mna import SingularCircuit
 from checker.analysis.noise import noise_band, output_noise
 from checker.analysis.poles import stage_poles
 from checker.analysis.signal import SignalFigures, stage_signals
+from checker.output_load import heavier_than_rated
 from checker.analysis.spread import (GainSpread, SpreadOptions, method_note, method_text,
                                      resistor_tolerances)
 from checker.limits import reaches, within
@@ -378,13 +379,11 @@ def _headroom(c: _Context) -> Verdict:
         if opamp.part.output_headroom_high_v is None or opamp.part.output_headroom_low_v is None:
             unknown.append(f"part {opamp.part.name} of {opamp.ref} gives no output headroom"
                            " (the rails were used)")
-        rated = opamp.part.headroom_load_ohm
-        loads = [load.resistance_ohm for load in stage.loads
-                 if load.net == opamp.out and load.resistance_ohm]
-        if rated and loads and min(loads) < rated * (1 - 1e-9):  # as rail-headroom notes
-            unknown.append(f"{opamp.out} carries {format_si(min(loads), 'Ω')}, a heavier"
-                           f" load than the {format_si(rated, 'Ω')} part {opamp.part.name}"
-                           " states its headroom into, so it swings less")
+        heavier = heavier_than_rated(figures, opamp)  # as rail-headroom notes
+        if heavier:
+            unknown.append(f"{heavier}, a heavier load than the"
+                           f" {format_si(opamp.part.headroom_load_ohm, 'Ω')} part"
+                           f" {opamp.part.name} states its headroom into, so it swings less")
         if worst is None or margin < worst[0]:
             worst = (margin, opamp, node)
     if worst is None:

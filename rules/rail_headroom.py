@@ -5,6 +5,7 @@ from __future__ import annotations
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
 from checker.limits import above
+from checker.output_load import heavier_than_rated
 from checker.units import format_si
 
 
@@ -21,8 +22,10 @@ def rail_headroom(view):
         source that moves the output but gives no range leaves its extremes unknown,
         and the rule says it could not check.
         The output may swing to each rail less the part's output headroom (which a
-        part states into its `headroom-load`; a heavier load on the output is noted as
-        not checked, since the swing is then smaller): beyond that
+        part states into its `headroom-load`; a load more than 10 % heavier is noted
+        as not checked, since the swing is then smaller, counting what the output
+        drives as the signal moves it: its load and feedback network together): beyond
+        that
         it clips (error); within `margin_v` (or the stage's `headroom` requirement) of
         it, it is warned. Headroom that takes more than the supply between the rails
         leaves no swing at all (error). The inputs' common-mode range is the `common-mode-range`
@@ -84,16 +87,15 @@ def rail_headroom(view):
 
 def _heavier_load(view, opamp):
     """A part's headroom holds into its `headroom-load` or more; a heavier load on the
-    output (a smaller resistance) makes it swing less than the figures assume."""
-    rated = opamp.part.headroom_load_ohm
-    loads = [load.resistance_ohm for load in view.stage.loads
-             if load.net == opamp.out and load.resistance_ohm]
-    if rated and loads and min(loads) < rated * (1 - 1e-9):
+    output (a smaller resistance, the feedback network counted) makes it swing less
+    than the figures assume."""
+    heavier = heavier_than_rated(view.figures, opamp)
+    if heavier:
         yield view.cannot_check(f"the full output swing of {opamp.ref}",
                                 f"part {opamp.part.name} states its output headroom into"
-                                f" {format_si(rated, 'Ω')} or more, and {opamp.out} carries"
-                                f" {format_si(min(loads), 'Ω')}: it swings less than the"
-                                " headroom used here", opamp.origin, (opamp.ref,))
+                                f" {format_si(opamp.part.headroom_load_ohm, 'Ω')} or more,"
+                                f" and {heavier}: it swings less than the headroom used"
+                                " here", opamp.origin, (opamp.ref,))
 
 
 def _output(view, opamp, margin):

@@ -7,7 +7,8 @@ import pytest
 from test_workflow import LOADED, findings, run
 
 # LOADED (test_workflow) fires input-resistance (a 1 kOhm input on a 10 kOhm source).
-# Its source is +-0.5 V into gain -10 on +-15 V rails, well inside the swing.
+# Its source is +-0.5 V into gain -10 on +-15 V rails, well inside the swing, and its
+# output drives 100k || 10k (R2 to the virtual ground), within the part's headroom-load.
 
 
 @pytest.fixture

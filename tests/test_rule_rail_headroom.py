@@ -19,7 +19,7 @@ Vref, Rg = R1, Rf = R2, input Vin:
 from __future__ import annotations
 
 import pytest
-from rule_helpers import findings, line_of, only, params
+from rule_helpers import figures_of, findings, line_of, only, params
 
 from checker.findings import Severity
 
@@ -221,6 +221,36 @@ def test_a_load_heavier_than_the_headroom_load_is_noted_as_not_checked():
     notes = [f for f in findings(text, RULE) if f.details.get("unchecked")]
     assert len(notes) == 1 and "into 10 kΩ or more" in notes[0].message
     assert not [f for f in findings(BOTH_SIDES, RULE) if f.details.get("unchecked")]
+
+
+
+def test_a_low_feedback_resistor_loads_the_output_like_a_load():
+    # Gain -100 with R2 = 10k feeding a virtual ground: the output drives R2 to ground in
+    # parallel with its 10k load, 10k || 10k = 5 kOhm (Ohm's law; the virtual ground moves
+    # by Vout/A0, a part in 2e5), half the 10 kOhm the part states its headroom into.
+    # R1 100 Ohm keeps the gain; the source range keeps the output inside the swing.
+    text = (BOTH_SIDES.replace("in fb 10k", "in fb 100").replace("fb out 1M", "fb out 10k")
+            .replace("(range -0.2V 0.2V)", "(range -0.05V 0.05V)"))
+    notes = [f for f in findings(text, RULE) if f.details.get("unchecked")]
+    assert len(notes) == 1
+    assert "out drives 5 kΩ as the signal moves it" in notes[0].message
+    # 10k || 1M = 9.9 kOhm is within the 10 % allowance of the stated 10 kOhm
+    assert not [f for f in findings(BOTH_SIDES, RULE) if f.details.get("unchecked")]
+
+
+def test_the_load_and_network_together_is_solved_not_summed():
+    # A non-inverting gain of 11 into 10k: R2 (10k) and R1 (1k) in series from the
+    # output to ground, 11k, parallel with the 10k load: 5.24 kOhm (by hand).
+    text = """
+    (version 1)
+    (stage ni (ground gnd) (supply vcc 12V) (supply vee -12V)
+      (opamp U1 (part gp-bipolar) (in+ in) (in- fb) (out out) (v+ vcc) (v- vee))
+      (resistor R1 fb gnd 1k) (resistor R2 fb out 10k)
+      (source in (range -0.5V 0.5V))
+      (load out (resistance 10k)))
+    """
+    figures = figures_of(text)
+    assert figures.output_loads["U1"] == pytest.approx(1 / (1 / 10e3 + 1 / 11e3), rel=1e-3)
 
 
 ONE_VOLT = """

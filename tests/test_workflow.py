@@ -21,7 +21,7 @@ LOADED = textwrap.dedent("""\
       (resistor R1 in fb 1k)
       (resistor R2 fb out 10k)
       (source in (range -0.5V 0.5V) (band 1Hz 1kHz) (impedance 10k))
-      (load out (resistance 10k)))
+      (load out (resistance 100k)))
     """)
 FIXED = LOADED.replace("(resistor R1 in fb 1k)", "(resistor R1 in fb 100k)").replace(
     "(resistor R2 fb out 10k)", "(resistor R2 fb out 1M)")
@@ -145,7 +145,7 @@ def test_waiver_in_json_is_a_key(project, capsys):
 
 def test_waiver_without_reason_is_an_error_at_its_line(project, capsys):
     (project / "a.stage").write_text(LOADED.replace(
-        "(load out (resistance 10k)))", "(load out (resistance 10k))\n  (waive input-resistance))"))
+        "(load out (resistance 100k)))", "(load out (resistance 100k))\n  (waive input-resistance))"))
     code, out, _ = run(capsys, "check", "a.stage", "--format", "json")
     invalid = [f for f in findings(out) if f["rule"] == "waiver-invalid"]
     assert code == 1 and [(f["line"], f["severity"]) for f in invalid] == [(7, "error")]
@@ -153,7 +153,7 @@ def test_waiver_without_reason_is_an_error_at_its_line(project, capsys):
 
 def test_waiver_of_an_unknown_rule_suggests_the_nearest(project, capsys):
     (project / "a.stage").write_text(LOADED.replace(
-        "(load out (resistance 10k)))", '(load out (resistance 10k))\n  (waive input-resistence "x"))'))
+        "(load out (resistance 100k)))", '(load out (resistance 100k))\n  (waive input-resistence "x"))'))
     _, out, _ = run(capsys, "check", "a.stage", "--format", "json")
     (invalid,) = [f for f in findings(out) if f["rule"] == "waiver-invalid"]
     assert "'input-resistance'" in invalid["message"]
@@ -161,7 +161,7 @@ def test_waiver_of_an_unknown_rule_suggests_the_nearest(project, capsys):
 
 def test_waiver_that_matches_nothing_is_stale(project, capsys):
     (project / "a.stage").write_text(FIXED.replace(
-        "(load out (resistance 10k)))", '(load out (resistance 10k))\n  (waive open-loop "x"))'))
+        "(load out (resistance 100k)))", '(load out (resistance 100k))\n  (waive open-loop "x"))'))
     _, out, _ = run(capsys, "check", "a.stage", "--format", "json", "--select", "open-loop")
     assert [(f["rule"], f["severity"]) for f in findings(out)] == [("waiver-stale", "info")]
 

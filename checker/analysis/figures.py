@@ -169,3 +169,8 @@ class Figures:
     @cached_property
     def output_currents(self) -> dict[str, OutputCurrent]:
         return ranges.output_currents(self.solution)
+
+    @cached_property
+    def output_loads(self) -> dict[str, float | None]:
+        """The resistance each op-amp's output drives as the signal moves it."""
+        return ranges.output_loads(self.solution)

@@ -191,3 +191,35 @@ def output_currents(solution: Solution) -> dict[str, OutputCurrent]:
         result[block.ref] = OutputCurrent(block.ref, max(base + swing, 0.0),
                                           max(-(base - swing), 0.0))
     return result
+
+
+def output_loads(solution: Solution) -> dict[str, float | None]:
+    """Per op-amp, the least resistance its output pin drives as a source moves it:
+    |dV(out)| / |dI(out)| per unit of each source that moves the output, the load and
+    the feedback network together (Ohm's law on the incremental solution: an inverting
+    stage's feedback resistor ends at a virtual ground, so it loads the output as a
+    resistor to ground). A source read over its band is taken where its swing at the
+    output peaks; None where no source moves the output."""
+    circuit = solution.circuit
+    result: dict[str, float | None] = {}
+    for block in circuit.gain_blocks:
+        branch = circuit.gain_branch[block.ref]
+        row = circuit.row_of_branch(branch)
+        least = None
+        for name, _mid, half, source in _source_terms(solution):
+            if read_over_band(source):
+                volts = np.abs(solution.grid[:, block.out - 1, solution.column(name)]) \
+                    if block.out else np.zeros(1)
+                band = band_mask(solution.frequencies_hz, source)
+                at = int(np.flatnonzero(band)[np.argmax(volts[band])])
+                dv = float(volts[at])
+                di = float(abs(solution.branch_response(branch, name)[at]))
+            else:
+                dv = abs(solution.dc_unknown(block.out - 1, name)) if block.out else 0.0
+                di = abs(solution.dc_unknown(row, name))
+            if half <= 0 or dv <= 0 or di <= dv * 1e-15:  # the output stays, or drives nothing
+                continue
+            ohms = dv / di
+            least = ohms if least is None else min(least, ohms)
+        result[block.ref] = least
+    return result
