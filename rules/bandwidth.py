@@ -8,11 +8,12 @@ from dataclasses import replace
 import numpy as np
 
 from checker.analysis.figures import Figures, grid_upper_edges
+from checker.analysis.grid import band_points
 from checker.analysis.updates import source_gain_candidates
-from checker.changes import SetPartParameter
+from checker.changes import SetPartParameter, SetValue
 from checker.engine import rule
 from checker.findings import Severity, Suggestion
-from checker.limits import below, reaches, within
+from checker.limits import above, below, reaches, within
 from checker.preferred import at_least, ladder, smallest_passing
 from checker.units import format_si
 
@@ -29,14 +30,19 @@ def bandwidth(view):
     """
     What it checks:
         For every signal source, the solved -3 dB upper edge of its closed-loop gain to
-        the stage output. It must reach the stage's `bandwidth` requirement (error when
+        the stage output, 3 dB below the largest gain in the source's band (the
+        passband; at DC for a source without a band), each peak pinned down between
+        grid points. It must reach the stage's `bandwidth` requirement (error when
         it does not) or, without one, the top of the source's band (warning). Where the
         bandwidth passes and the source gives a band, the gain at the band's top is
         compared with the gain of the same stage built with ideal op-amps (flat
         open-loop gain of 1e9, no poles; the network, its capacitors and the op-amps'
         input capacitances kept): the difference is the error that finite loop gain
         adds there. It must stay within the stage's `gain-tolerance` or, without one,
-        `max_gain_error` (warning). A stage with an op-amp that has no negative
+        `max_gain_error` (warning). On a stage that states a `gain` or a `bandwidth`,
+        a solved lower -3 dB edge above the bottom of a source's band (a coupling
+        capacitor too small for the band) is warned too; without one, a high-pass
+        shapes the band on purpose. A stage with an op-amp that has no negative
         feedback is left to the `open-loop` rule.
 
     Why it matters:
@@ -61,7 +67,9 @@ def bandwidth(view):
         (a feedback capacitor, a source's RC) sets the bandwidth: against a stated
         `bandwidth` requirement the rule says so; against the band's top alone it
         stays quiet, since a filter or an integrator shapes the band on purpose.
-        For the gain error it reports the loop gain at the band's top and the GBW that
+        For a cut bottom of the band, the first series capacitor (neither end on a
+        rail) whose smallest E12 value up to 1000 times the drawn one, solved, brings
+        the lower edge to the band's bottom. For the gain error it reports the loop gain at the band's top and the GBW that
         brings the error within the limit, found the same way over the E12 values
         around the GBW a single pole needs for that error (an edge of
         f / sqrt(1/(1 - e)^2 - 1) times the noise gain); "from which" matters here,
@@ -234,6 +242,7 @@ def _check_source(view, sf, ideal):
         severity, reason = Severity.WARNING, f"the top of {source.name}'s band"
     measured = sf.bandwidth_high_hz if sf.bandwidth_high_hz is not None else math.inf
     opamp = _limiting_opamp(view)
+    yield from _cut_bottom(view, sf)
     if below(measured, required):
         finding = _short_bandwidth(view, sf, ideal, opamp, measured, required, severity,
                                    reason)
@@ -242,6 +251,60 @@ def _check_source(view, sf, ideal):
         return
     if source.band_high_hz and not _surely_flat(view, source.band_high_hz):
         yield from _gain_error(view, sf, ideal, opamp)
+
+
+def _cut_bottom(view, sf):
+    """The bottom of a band cut by the stage: the solved lower -3 dB edge (from the
+    band's largest gain) above the band's lower edge, on a stage that states a gain or a
+    bandwidth for the signal (without one, a high-pass shapes the band on purpose)."""
+    stage, source = view.stage, sf.source
+    low, edge = source.band_low_hz, sf.bandwidth_low_hz
+    stated = stage.require.gain is not None or stage.require.bandwidth_hz is not None
+    if not (stated and low and edge is not None and above(edge, low)):
+        return
+    frequencies = view.figures.frequencies_hz
+    band = band_points(frequencies, source)
+    gains = np.abs(sf.gain_from_source)
+    peak = float(np.max(gains[band])) if band is not None else float(np.max(gains))
+    bottom = float(abs(_at(frequencies, sf.gain_from_source, low)))
+    loss_db = 20 * math.log10(peak / bottom) if bottom > 0 else math.inf
+    yield view.finding(
+        f"{source.name} reaches the output with its lower -3 dB edge at"
+        f" {format_si(edge, 'Hz')}, inside its band from {format_si(low, 'Hz')}: at the"
+        f" band's bottom the gain is {loss_db:.1f} dB below its largest in the band, so the"
+        " stated gain does not hold there", sf.source.origin, elements=(source.name,),
+        measured=edge, limit=low, unit="Hz",
+        suggestion=lambda: _larger_coupling(view, sf, low),
+        loss_db=loss_db, **view.answers("gain", "bandwidth"))
+
+
+def _larger_coupling(view, sf, low: float) -> Suggestion:
+    """The first series capacitor (neither end on a rail) of the stage whose smallest E12
+    value, up to 1000 times the drawn one, brings the solved lower edge to ``low`` or
+    below; each value solved in full."""
+    stage = view.stage
+    rails = set(stage.rail_voltages)
+    for capacitor in stage.capacitors():
+        if set(capacitor.nets) & rails:
+            continue
+
+        def passes(farads, capacitor=capacitor):
+            changed = tuple(replace(p, value=farads) if p.ref == capacitor.ref else p
+                            for p in stage.passives)
+            edge = view.reanalyse(replace(stage, passives=changed)).sources[sf.index] \
+                .bandwidth_low_hz
+            return edge is None or not above(edge, low)
+
+        best = smallest_passing(ladder(capacitor.value * 1.0001, capacitor.value * 1000,
+                                       "E12"), passes)
+        if best is not None:
+            return Suggestion(
+                f"raise {capacitor.ref} to {format_si(best, 'F')} (E12): the smallest value"
+                f" whose solved lower edge reaches {format_si(low, 'Hz')}", value=best,
+                unit="F", element=capacitor.ref, changes=(SetValue(capacitor.ref, best),))
+    return Suggestion(f"an RC in the signal path sets the edge: move it below"
+                      f" {format_si(low, 'Hz')}, or state the band the stage is meant to"
+                      " pass")
 
 
 def _surely_flat(view, top: float) -> bool:

@@ -6,7 +6,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from checker.analysis.grid import band_points
+from checker.analysis.grid import band_peak, band_points
 from checker.analysis.topology import classify
 from checker.changes import SetLoad, SetValue
 from checker.engine import rule
@@ -37,10 +37,11 @@ def output_current(view):
         output current. A load so low that, against the part's output resistance, it
         pulls the loop gain below 1 (the loop closes once the stage's loads are taken
         away) is reported as a short of the output, with the current the unloaded
-        stage's swing would drive into it; the open-loop rule then stays quiet. The
-        resistive current comes from the DC solution, so an AC source that reaches the
-        output mostly above DC (through a coupling capacitor, or a band-pass) is not in
-        it: where the total passes, the rule says it could not check it in full.
+        stage's swing would drive into it; the open-loop rule then stays quiet. A
+        source that swings over a band (an amplitude, or a range with a band) counts at
+        its band's largest current into the load and feedback network, read from the
+        AC solution (the output pin's current less what the capacitances above take),
+        so a coupling capacitor or a band-pass that passes more than DC is counted.
 
     Why it matters:
         At its output-current limit an op-amp stops following its input: the output
@@ -59,7 +60,8 @@ def output_current(view):
         E12 figure.
 
     Sources:
-        Ohm's law and Kirchhoff's current law on the solved operating point; the
+        Ohm's law and Kirchhoff's current law on the solved operating point and the
+        solved AC currents; the
         capacitor current C dV/dt, 2 pi f C Vpeak for a sine (C. K. Alexander and
         M. N. O. Sadiku, Fundamentals of Electric Circuits, chapter on capacitors and
         inductors; from memory). Adding
@@ -101,13 +103,6 @@ def output_current(view):
         total = resistive + capacitive
         limit = part.output_current_a
         if within(total, limit):
-            uncounted = _ac_swings(figures, opamp)
-            if uncounted:
-                yield view.cannot_check(
-                    f"the output current of {opamp.ref} in full",
-                    f"{uncounted} reaches {opamp.out} mostly above DC, and the current into"
-                    " the load and feedback network is taken from the DC solution, so"
-                    " its share is not counted", opamp.origin, (opamp.ref,))
             continue
         message = (f"{opamp.ref} must deliver {format_si(total, 'A')} but its part is"
                    f" limited to {format_si(limit, 'A')}: {format_si(resistive, 'A')} into"
@@ -159,29 +154,6 @@ def _shorted(view, opamp, loads, unloaded):
                         suggestion=suggestion, shorted=True)
 
 
-# An AC signal whose in-band transfer to the output is more than this times its DC
-# transfer (a coupling capacitor, a band-pass) moves the output by more than the DC
-# solution says.
-AC_SWING_RATIO = 2.0
-
-
-def _ac_swings(figures, opamp) -> str:
-    """The names of the sources that swing over a band (an amplitude, or a range with a
-    band) whose peak in-band transfer to ``opamp``'s output exceeds AC_SWING_RATIO times
-    their DC transfer; '' if none."""
-    frequencies = figures.frequencies_hz
-    names = []
-    for index, source in enumerate(figures.stage.sources):
-        band = band_points(frequencies, source)
-        if source.low is None or band is None:
-            continue
-        ac = float(np.max(np.abs(figures.node_response(opamp.out, ("source", index))[band])))
-        dc = abs(figures.dc_transfer(opamp.out, ("source", index)))
-        if ac > AC_SWING_RATIO * dc and ac * (source.high - source.low) > 0:
-            names.append(source.name)
-    return ", ".join(names)
-
-
 def _capacitances(stage, opamp) -> list[tuple[str, float]]:
     """(net, farads) of capacitance to a fixed net on the output or behind one series
     resistor from it."""
@@ -210,17 +182,52 @@ def _slope(figures, net: str) -> float:
         band = band_points(frequencies, source)
         if half <= 0 or band is None:
             continue
-        response = np.abs(figures.node_response(net, ("source", index)))[band]
-        total += float(np.max(2 * np.pi * frequencies[band] * half * response))
+        at, value = figures.band_peak(net, ("source", index), band,
+                                      weight=lambda f: 2 * np.pi * f)
+        total += 2 * np.pi * at * half * abs(value)
     return total
 
 
 def _drawn(figures, opamp) -> tuple[float, float]:
-    """(resistive peak from the DC solution, capacitive peak C 2 pi f Vpeak) in A."""
+    """(resistive peak, capacitive peak C 2 pi f Vpeak) in A. The resistive peak is the
+    DC solution's, with each source that swings over a band counted at its band's
+    largest current into the load and feedback network instead (_band_resistive)."""
+    capacitances = _capacitances(figures.stage, opamp)
     resistive = figures.output_currents[opamp.ref].peak_a
-    capacitive = sum((farads * _slope(figures, net)
-                      for net, farads in _capacitances(figures.stage, opamp)), 0.0)
-    return resistive, capacitive
+    for index, source in enumerate(figures.stage.sources):
+        band = band_points(figures.frequencies_hz, source)
+        if source.low is None or band is None or source.high == source.low:
+            continue
+        half = (source.high - source.low) / 2
+        dc, ac = _band_resistive(figures, opamp, index, capacitances)
+        _freqs, values, at = band_peak(
+            figures.frequencies_hz, ac, band,
+            lambda f, i=index: _band_resistive(figures, opamp, i, capacitances, f)[1])
+        resistive += half * (max(float(abs(values[at])), abs(dc)
+                                 if not source.band_low_hz else 0.0) - abs(dc))
+    capacitive = sum((farads * _slope(figures, net) for net, farads in capacitances), 0.0)
+    return max(resistive, 0.0), capacitive
+
+
+def _band_resistive(figures, opamp, index: int, capacitances, frequencies=None
+                    ) -> tuple[float, np.ndarray]:
+    """The output pin's current per unit of source ``index`` less what the capacitances
+    on the output take (C s V, Kirchhoff's current law): (at DC, over the grid, or at
+    ``frequencies`` when given). The DC solution counts the source at its DC transfer;
+    a coupling capacitor passes it only in its band, where this reads it."""
+    column = ("source", index)
+    dc, ac = figures.output_current_transfer(opamp.ref, column)
+    on_grid = frequencies is None
+    if on_grid:
+        frequencies = figures.frequencies_hz
+    else:
+        ac = figures.output_current_at(opamp.ref, column, frequencies)
+    s = 2j * np.pi * frequencies
+    for net, farads in capacitances:
+        voltage = figures.node_response(net, column) if on_grid \
+            else figures.node_response_at(net, column, frequencies)
+        ac = ac - s * farads * voltage
+    return dc, ac
 
 
 def _fits(view, opamp, stage) -> bool:

@@ -113,7 +113,7 @@ def _per_us(volts_per_second: float) -> str:
 def _demands(figures, net: str) -> list[tuple]:
     """(2 pi f Vpeak, f, Vpeak, source) per source with a band and a swing: the largest
     rate of change the source asks of ``net`` over its band, Vpeak from the solved AC
-    transfer times the source's half-span."""
+    transfer times the source's half-span, a peak between grid points pinned down."""
     frequencies = figures.frequencies_hz
     found = []
     for index, source in enumerate(figures.stage.sources):
@@ -125,9 +125,8 @@ def _demands(figures, net: str) -> list[tuple]:
         band = band_points(frequencies, source)
         if band is None:
             continue
-        peaks = half * np.abs(figures.node_response(net, ("source", index)))[band]
-        rates = 2 * np.pi * frequencies[band] * peaks
-        at = int(np.argmax(rates))
-        found.append((float(rates[at]), float(frequencies[band][at]), float(peaks[at]),
-                      source))
+        at, value = figures.band_peak(net, ("source", index), band,
+                                      weight=lambda f: 2 * np.pi * f)
+        peak = half * abs(value)
+        found.append((2 * np.pi * at * peak, at, peak, source))
     return found

@@ -21,6 +21,8 @@ Expected values, derived independently:
 
 from __future__ import annotations
 
+import math
+
 import control
 import pytest
 from rule_helpers import TWO_PI, findings, line_of, only, params
@@ -170,6 +172,62 @@ def test_deliberate_filter_inside_the_band_without_a_requirement_is_not_flagged(
     # The same 1.06 kHz pole against the band's top alone: the network shapes the band
     # on purpose, and finite loop gain costs nothing there (GBW 10 MHz).
     assert findings(filtered(), RULE) == []
+
+
+def test_the_edge_is_read_from_the_passband_not_from_a_centre_on_the_slope():
+    # The same 1.06 kHz pole with a band of 10 Hz to 100 kHz: the band's centre, 1 kHz,
+    # sits on the slope (gain down to 0.73 of -10 there), so 3 dB below the centre's gain
+    # would put the edge near 1.7 kHz; 3 dB below the band's largest gain (-10, at its
+    # bottom) is the pole itself.
+    text = filtered("(require (bandwidth 1.5kHz))").replace("(band 0.1Hz 10kHz)",
+                                                            "(band 10Hz 100kHz)")
+    finding = only(text, RULE)
+    pole = 1 / (TWO_PI * 100e3 * 1.5e-9)
+    assert finding.measured == pytest.approx(pole, rel=0.01)
+    assert finding.severity is Severity.ERROR
+
+
+def coupled(capacitor: str, require: str = "(require (gain -10) (gain-tolerance 3%))") -> str:
+    """Inverting gain -10 behind a coupling capacitor C1 into R1 (10k, the source's 100
+    ohm in series): a high-pass at 1/(2 pi (R1 + Rs) C1)."""
+    opamp = params(open_loop_gain=1e6, gbw=100e6)
+    return f"""
+        (version 1)
+        (stage coupled
+          (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 {opamp} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (capacitor C1 in a {capacitor}) (resistor R1 a fb 10k)
+          (resistor R2 fb out 100k)
+          (source in (amplitude 100mV) (band 20Hz 20kHz) (impedance 100))
+          (load out (resistance 10k))
+          {require})
+        """
+
+
+def test_a_coupling_capacitor_that_cuts_the_bottom_of_the_band_is_warned():
+    # 159 nF into 10.1 kOhm: a corner at 1/(2 pi 10.1k 159n) = 99.1 Hz (first-order
+    # high-pass, common practice), inside the band from 20 Hz; at 20 Hz the gain is
+    # 1/sqrt(1 + (99.1/20)^2) of the passband's, 14.1 dB down.
+    finding = only(coupled("159n"), RULE)
+    corner = 1 / (TWO_PI * 10.1e3 * 159e-9)
+    assert finding.severity is Severity.WARNING
+    assert finding.measured == pytest.approx(corner, rel=0.01) and finding.limit == 20
+    assert finding.details["loss_db"] == pytest.approx(
+        10 * math.log10(1 + (corner / 20) ** 2), abs=0.1)
+    # the fix: the smallest E12 capacitance with the corner at 20 Hz or below,
+    # 1/(2 pi 10.1k 20) = 788 nF -> 820 nF (IEC 60063 E12)
+    assert finding.suggestion.value == pytest.approx(at_least(1 / (TWO_PI * 10.1e3 * 20), "E12"))
+    assert finding.suggestion.value == pytest.approx(820e-9)
+    assert finding.suggestion.check.clears
+
+
+def test_a_coupling_capacitor_large_enough_for_the_band_passes():
+    # 1 uF: a corner at 15.8 Hz, below the band's bottom
+    assert findings(coupled("1u"), RULE) == []
+
+
+def test_a_high_pass_without_a_stated_gain_or_bandwidth_shapes_the_band_on_purpose():
+    assert findings(coupled("159n", require=""), RULE) == []
 
 
 def test_gain_error_at_the_band_top_from_finite_loop_gain():

@@ -240,11 +240,12 @@ AC_COUPLED = """
 """
 
 
-def test_an_ac_coupled_output_is_not_passed_on_its_dc_current():
+def test_an_ac_coupled_output_is_judged_on_its_in_band_current():
     # Through the 10 uF coupling capacitor the source has no DC transfer, so the DC
-    # solution draws nothing; in band the output swings 100 x 0.1 V = 10 V into 100 ohm,
-    # 100 mA (Ohm's law) against 50 mA. The rule takes its currents from the DC
-    # solution, so it must say it could not count this one, not pass it.
-    (finding,) = findings(AC_COUPLED, RULE)
-    assert finding.details.get("unchecked")
-    assert "reaches out mostly above DC" in finding.message
+    # solution draws nothing; in band the output swings 100 x 0.1 V = 10 V into the
+    # 100 ohm load and the 100k feedback resistor (to a virtual ground): 10/100 + 10/100k
+    # = 100.1 mA (Ohm's law) against the part's 50 mA.
+    finding = only(AC_COUPLED, RULE)
+    assert finding.severity is Severity.ERROR
+    assert finding.measured == pytest.approx(10 / 100 + 10 / 100e3, rel=0.01)
+    assert finding.details["capacitive_a"] == 0

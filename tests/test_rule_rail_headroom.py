@@ -325,3 +325,25 @@ def test_the_input_window_of_an_ac_coupled_swing_keeps_its_midpoint():
 def test_a_range_without_a_band_is_read_at_dc():
     # the same source with no band is a DC level: gain 1, +-1 V, no clipping
     assert findings(ac_coupled("-1V", "1V", band=""), RULE) == []
+
+
+def test_a_narrow_resonance_between_grid_points_is_found():
+    # A multiple-feedback band-pass with C1 = C2 = 10n, R1 10k, R2 100, R3 1M on a near
+    # ideal op-amp: f0 = 1/(2 pi C sqrt(R3 (R1 || R2))) = 1.6 kHz, Q = sqrt(R3/(R1 || R2))/2
+    # = 50, and a peak gain of R3/(2 R1) = 50 (multiple-feedback band-pass with equal
+    # capacitors, from memory). 100 mV in the band swings the output +-5 V against the
+    # usable +-3.5 V; the peak is 2 % wide, narrower than the grid's spacing.
+    opamp = params(open_loop_gain=1e9, gbw=1e12, output_headroom_high=1.5,
+                   output_headroom_low=1.5)
+    text = f"""
+    (version 1)
+    (stage mfb (ground gnd) (supply vcc 5V) (supply vee -5V)
+      (opamp U1 {opamp} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+      (resistor R1 in a 10k) (resistor R2 a gnd 100)
+      (capacitor C1 a fb 10n) (capacitor C2 a out 10n) (resistor R3 fb out 1M)
+      (source in (amplitude 100mV) (band 100Hz 10kHz))
+      (load out (resistance 100k)))
+    """
+    finding = only(text, RULE)
+    assert finding.severity is Severity.ERROR
+    assert finding.measured == pytest.approx(0.1 * 1e6 / (2 * 10e3), rel=0.005)

@@ -18,7 +18,8 @@ from checker.analysis import loops as loop_figures
 from checker.analysis import network, ranges
 from checker.analysis import sources as source_module
 from checker.analysis.circuit import Circuit
-from checker.analysis.grid import (REFINE_POINTS, bandwidth_edges, grid_upper_edges,  # noqa: F401
+from checker.analysis.grid import (REFINE_POINTS, band_peak, bandwidth_edges,  # noqa: F401
+                                   grid_upper_edges, pick,
                                    reference_frequency, signed_gain)
 from checker.analysis.loop import Margins
 from checker.analysis.results import (AnalysisOptions, AnalysisProblem, LoopFigures,  # noqa: F401
@@ -91,6 +92,21 @@ class Figures:
         ("source", i) for source i's EMF or current, ("output",) for 1 A into the output
         net."""
         return self.solution.node_response(net, column)
+
+    def node_response_at(self, net: str, column, frequencies: np.ndarray) -> np.ndarray:
+        """AC voltage at ``net`` per unit of ``column`` at any ``frequencies`` (F,)."""
+        X = self.solution.solve_excitations(np.asarray(frequencies, dtype=float), [column])
+        return pick(X, self.solution.circuit.node(net), 0)
+
+    def band_peak(self, net: str, column, band: np.ndarray, weight=None
+                  ) -> tuple[float, complex]:
+        """(frequency, value) where |V(net)| per unit of ``column`` (times
+        ``weight(f)``) is largest over the grid points ``band``, pinned down between
+        grid points (grid.band_peak)."""
+        freqs, values, at = band_peak(
+            self.frequencies_hz, self.node_response(net, column), band,
+            lambda f: self.node_response_at(net, column, f), weight)
+        return float(freqs[at]), complex(values[at])
 
     def dc_transfer(self, net: str, column) -> float:
         """DC voltage at ``net`` per unit of the excitation named by ``column``."""
@@ -169,6 +185,20 @@ class Figures:
     @cached_property
     def output_currents(self) -> dict[str, OutputCurrent]:
         return ranges.output_currents(self.solution)
+
+    def output_current_transfer(self, ref: str, column) -> tuple[float, np.ndarray]:
+        """The current op-amp ``ref``'s output pin delivers per unit of the excitation
+        ``column``: (at DC, over the grid (F,) complex)."""
+        circuit = self.solution.circuit
+        branch = circuit.gain_branch[ref]
+        return (-self.solution.dc_unknown(circuit.row_of_branch(branch), column),
+                -self.solution.branch_response(branch, column))
+
+    def output_current_at(self, ref: str, column, frequencies: np.ndarray) -> np.ndarray:
+        """output_current_transfer's AC part at any ``frequencies`` (F,)."""
+        circuit = self.solution.circuit
+        X = self.solution.solve_excitations(np.asarray(frequencies, dtype=float), [column])
+        return -X[:, circuit.row_of_branch(circuit.gain_branch[ref]), 0]
 
     @cached_property
     def output_loads(self) -> dict[str, float | None]:

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from checker.analysis.grid import band_mask
+from checker.analysis.grid import band_mask, band_peak, pick
 from checker.analysis.results import NodeRange, OutputCurrent
 from checker.analysis.solution import Excitation, Solution
 from checker.model import Source
@@ -33,13 +33,28 @@ def _source_terms(solution: Solution) -> list[tuple[Excitation, float, float, So
     return terms
 
 
-def _band_peak(solution: Solution, source: Source, response: np.ndarray, dc: float) -> float:
+def _band_peak(solution: Solution, source: Source, response: np.ndarray, dc: float,
+               response_at) -> float:
     """The largest |transfer| a source's swing meets over its band: the peak of the
-    solved ``response`` over the band's grid points, and ``dc`` too where the band
-    starts at 0 Hz (the grid starts above it)."""
+    solved ``response`` over the band (pinned down between grid points by
+    ``response_at(frequencies)``: grid.band_peak), and ``dc`` too where the band starts
+    at 0 Hz (the grid starts above it)."""
     band = band_mask(solution.frequencies_hz, source)
-    peak = float(np.max(np.abs(response[band])))
+    _freqs, values, at = band_peak(solution.frequencies_hz, response, band, response_at)
+    peak = float(abs(values[at]))
     return max(peak, abs(dc)) if not source.band_low_hz else peak
+
+
+def _net_response_at(solution: Solution, nets: tuple[str, ...], name):
+    """response_at(frequencies) -> V(nets[0]) (- V(nets[1])) per unit of ``name``."""
+    def at(frequencies: np.ndarray) -> np.ndarray:
+        X = solution.solve_excitations(frequencies, [name])
+        values = pick(X, solution.circuit.node(nets[0]), 0)
+        if len(nets) > 1:
+            values = values - pick(X, solution.circuit.node(nets[1]), 0)
+        return values
+
+    return at
 
 
 def read_over_band(source: Source) -> bool:
@@ -55,7 +70,8 @@ def _swing_transfer(solution: Solution, net: str, i: int, source: Source) -> flo
     name = Excitation.source(i)
     dc = solution.dc_transfer(net, name)
     if read_over_band(source):
-        return _band_peak(solution, source, solution.node_response(net, name), dc)
+        return _band_peak(solution, source, solution.node_response(net, name), dc,
+                          _net_response_at(solution, (net,), name))
     return abs(dc)
 
 
@@ -110,7 +126,8 @@ def difference_range(solution: Solution, net_a: str, net_b: str) -> NodeRange:
         name = Excitation.source(i)
         if read_over_band(source):
             response = solution.node_response(net_a, name) - solution.node_response(net_b, name)
-            return _band_peak(solution, source, response, transfer(name))
+            return _band_peak(solution, source, response, transfer(name),
+                              _net_response_at(solution, (net_a, net_b), name))
         return abs(transfer(name))
 
     low, high, error = linear_range(solution, transfer, swing)

@@ -16,7 +16,7 @@ import math
 
 import numpy as np
 
-from checker.analysis.grid import (band_mask, bandwidth_edges, pick, reference_frequency,
+from checker.analysis.grid import (band_mask, band_peak, bandwidth_edges, pick, reference_frequency,
                                    safe_divide)
 from checker.analysis.results import SourceFigures
 from checker.analysis.solution import OUTPUT, Excitation, Solution
@@ -59,7 +59,12 @@ def source_figures(solution: Solution) -> list[SourceFigures]:
         if band is not None:
             smallest = min(float(np.min(np.abs(z_in[band]))),
                            smallest if reference == 0 else math.inf)
-        low, high = bandwidth_edges(frequencies, gain_from_source, at, gain_function(solution, i))
+        gain_at = gain_function(solution, i)
+        if band is not None:  # -3 dB from the largest gain in the band: its passband
+            edge_f, edge_gain, edge_at = band_peak(frequencies, gain_from_source, band, gain_at)
+        else:
+            edge_f, edge_gain, edge_at = frequencies, gain_from_source, at
+        low, high = bandwidth_edges(edge_f, edge_gain, edge_at, gain_at)
         result.append(SourceFigures(
             index=i, source=source, gain=gain, gain_from_source=gain_from_source,
             input_impedance=z_in, reference_hz=reference,
