@@ -171,6 +171,38 @@ def setup_for(path: str, request: Request) -> FileSetup:
     return FileSetup(selected(rules, options), options, library, rules, netlist_map)
 
 
+def files_read(paths: list[str], request: Request) -> list[str]:
+    """Every file besides the stage files that a run over ``paths`` reads: the
+    configuration governing each folder, the part libraries and netlist map it and the
+    command line name, and the user rule files of its rule folders; so that no report
+    is written over one of them. Unreadable configurations are left out (the run
+    reports them itself)."""
+    found: set[str] = set(request.parts)
+    if request.netlist_map:
+        found.add(request.netlist_map)
+    rules_dirs = set(request.rules_dirs)
+    folders = {os.path.dirname(os.path.abspath(path)) for path in paths} or {os.getcwd()}
+    for folder in sorted(folders):
+        config_file = request.config_file or (find_config_file(folder)
+                                              if request.use_config else None)
+        if not config_file:
+            continue
+        found.add(config_file)
+        try:
+            config = config_at(config_file, request.trust_config_rules)
+        except ConfigError:
+            continue
+        found.update(config.get("parts", []))
+        if config.get("netlist-map"):
+            found.add(config.get("netlist-map"))
+        rules_dirs.update(config.get("rules-dirs", []))
+    for rules_dir in sorted(rules_dirs):
+        if os.path.isdir(rules_dir):
+            found.update(os.path.join(rules_dir, name) for name in os.listdir(rules_dir)
+                         if name.endswith(".py"))
+    return sorted(found)
+
+
 def check_file(path: str, request: Request) -> FileResult:
     setup = setup_for(path, request)
     return review_file(path, setup.library, setup.rules, setup.options,

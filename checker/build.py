@@ -462,7 +462,10 @@ def build_stages(parsed: ParsedFile, library: dict[str, OpAmpPart]) -> list[Stag
             if load.feeds_stage is None:
                 continue
             target = by_name.get(load.feeds_stage)
-            if target is None:
+            if target is stage:
+                builder.fail_at(load.origin, f"load at {load.net} feeds its own stage"
+                                f" {stage.name}: a stage's output feeds the next stage")
+            elif target is None:
                 builder.fail_at(load.origin, f"load at {load.net} feeds stage"
                                 f" {load.feeds_stage!r}, which this file does not define")
             elif load.feeds_net and load.feeds_net not in {s.net for s in target.sources}:
@@ -471,7 +474,37 @@ def build_stages(parsed: ParsedFile, library: dict[str, OpAmpPart]) -> list[Stag
             elif not target.sources:
                 builder.fail_at(load.origin, f"stage {target.name} has no source for load"
                                 f" at {load.net} to feed")
+    _feed_rings(stages, builder)
     if builder.problems:
         raise InputErrors(sorted(builder.problems, key=lambda p: (p.line, p.column)))
     return stages
+
+
+def _feed_rings(stages: list[Stage], builder) -> None:
+    """A problem at the first load of each ring of stages feeding one another (a -> b ->
+    a): a chain of stages has a first one, and the loads that feed are read in order."""
+    feeds = {stage.name: [load for load in stage.loads
+                          if load.feeds_stage and load.feeds_stage != stage.name]
+             for stage in stages}
+    reported_rings: set[frozenset] = set()
+    for start in feeds:
+        path, load_path, at = [start], [], start
+        while True:
+            nexts = [load for load in feeds.get(at, []) if load.feeds_stage in feeds]
+            if not nexts:
+                break
+            load = nexts[0]
+            load_path.append(load)
+            assert load.feeds_stage is not None  # kept above for feeding a known stage
+            at = load.feeds_stage
+            if at in path:
+                ring = path[path.index(at):]
+                if frozenset(ring) not in reported_rings:
+                    reported_rings.add(frozenset(ring))
+                    first = load_path[path.index(at)]
+                    builder.fail_at(first.origin, "stages " + " -> ".join(ring + [at])
+                                    + " feed one another in a ring: a chain of stages has a"
+                                    " first stage")
+                break
+            path.append(at)
 

@@ -13,7 +13,7 @@ from collections import Counter
 
 from checker import audit
 from checker import baseline as baselines
-from checker.io.write import AtomicOutput
+from checker.io.write import AtomicOutput, unnamed_write_error
 from checker.records import DEFERRAL, Caution
 from checker.report import Receiver, writer, writes_folder
 from checker.report.context import ReportContext
@@ -243,6 +243,10 @@ class CheckRun:
             raise
         except (OSError, ValueError) as error:
             self._abandon(progress)
+            if unnamed_write_error(error):
+                assert isinstance(error, OSError)
+                raise RunError(f"cannot write to standard output:"
+                               f" {error.strerror or error}") from None
             raise RunError(str(error)) from None
         except BaseException:
             self._abandon(progress)

@@ -238,7 +238,9 @@ def main(argv: list[str] | None = None) -> int:
         if _stdout_closed() and not (args.command == "convert" and args.output):
             raise UsageError("standard output is closed: there is nowhere to write")
         with _stop_on_signals():
-            return COMMANDS[args.command](args)
+            code = COMMANDS[args.command](args)
+            sys.stdout.flush()  # a full disk under standard output fails here, not at exit
+            return code
     except UsageError as error:
         print(f"ampcheck: {error}", file=sys.stderr)
         return EXIT_USAGE
@@ -250,19 +252,38 @@ def main(argv: list[str] | None = None) -> int:
         print(f"ampcheck: stopped by {signal.Signals(stop.signum).name}", file=sys.stderr)
         return EXIT_SIGNAL_BASE + stop.signum
     except BrokenPipeError:  # the reader went away (| head): stop quietly
-        try:
-            devnull = os.open(os.devnull, os.O_WRONLY)
-            os.dup2(devnull, sys.stdout.fileno())
-        except (OSError, ValueError, AttributeError):
-            pass
+        _discard_stdout()
         return EXIT_SIGNAL_BASE + getattr(signal, "SIGPIPE", 13)
-    except Exception as error:  # the last guard: no traceback reaches a user
-        if os.environ.get("AMPCHECK_DEBUG"):
-            raise
-        print(f"ampcheck: internal error: {type(error).__name__}: {error}\n"
-              "Set AMPCHECK_DEBUG=1 to see the traceback, and please report it.",
+    except OSError as error:
+        from checker.io.write import unnamed_write_error
+
+        if not unnamed_write_error(error):
+            return _internal_error(error)
+        _discard_stdout()
+        print(f"ampcheck: cannot write to standard output: {error.strerror or error}",
               file=sys.stderr)
-        return EXIT_INTERNAL
+        return EXIT_USAGE
+    except Exception as error:  # the last guard: no traceback reaches a user
+        return _internal_error(error)
+
+
+def _discard_stdout() -> None:
+    """Point standard output at the null device, so the interpreter's last flush of
+    what could not be written fails no more (it would print a traceback)."""
+    try:
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+    except (OSError, ValueError, AttributeError):
+        pass
+
+
+def _internal_error(error: Exception) -> int:
+    if os.environ.get("AMPCHECK_DEBUG"):
+        raise error
+    print(f"ampcheck: internal error: {type(error).__name__}: {error}\n"
+          "Set AMPCHECK_DEBUG=1 to see the traceback, and please report it.",
+          file=sys.stderr)
+    return EXIT_INTERNAL
 
 
 def _library(paths: list[str]):
@@ -310,16 +331,26 @@ def _request(args):
             raise UsageError(f"--stray-capacitance: {error}") from None
         if stray < 0:  # as a configuration file's stray-capacitance (options.py)
             raise UsageError("--stray-capacitance cannot be negative")
+        from checker.options import MAX_STRAY_F, STRAY_TOO_LARGE
+
+        if stray > MAX_STRAY_F:
+            raise UsageError(f"--stray-capacitance {args.stray_capacitance}: {STRAY_TOO_LARGE}")
     config_file = getattr(args, "config", None)
+    if config_file and getattr(args, "no_config", False):
+        raise UsageError("--config FILE and --no-config contradict each other: give one")
     if config_file and not os.path.isfile(config_file):
         raise UsageError(f"--config: no such file {config_file}")
     formats = {args.format} | {name for name, _ in _outputs(args)}
     for name, value in (("--time-budget", args.time_budget),
                         ("--memory-limit", args.memory_limit)):
         if value is not None and not 0 <= value <= 1e9:
-            raise UsageError(f"{name} takes a number from 0 (no limit) upwards")
-    return Request(config_file=config_file, select=ids(args.select, "--select"),
-                   ignore=ids(args.ignore),
+            raise UsageError(f"{name} takes a number from 0 (no limit) to 1e9")
+    select, ignore = ids(args.select, "--select"), ids(args.ignore)
+    if select and ignore and select <= ignore:  # as an empty --select: nothing would run
+        raise UsageError("every rule --select names is in --ignore too, so no rule would"
+                         " run; drop one of them")
+    return Request(config_file=config_file, select=select,
+                   ignore=ignore,
                    also_select=ids(args.also_select) or frozenset(),
                    stray_capacitance_f=stray, parts=tuple(args.parts),
                    rules_dirs=tuple(args.rules_dir), use_config=not args.no_config,
@@ -382,17 +413,26 @@ def _outputs(args) -> list[tuple[str, str]]:
             raise UsageError(f"--output {item!r}: write FORMAT:PATH with FORMAT one of"
                              f" {', '.join(FORMAT_NAMES)}, or a PATH ending in"
                              f" {', '.join(OUTPUT_ENDINGS)}")
+        if path == "-":  # a file named '-' is never what was meant
+            raise UsageError(f"--output {item}: standard output takes the --format report;"
+                             " --output writes files")
         outputs.append((name, path))
     if args.figures_csv:
         outputs.append(("figures-csv", args.figures_csv))
+    _distinct_outputs(outputs)
+    return outputs
+
+
+def _distinct_outputs(outputs: list[tuple[str, str]]) -> None:
+    """UsageError when two outputs (reports, a baseline written) name one file: the
+    last would win silently."""
     seen: dict[str, str] = {}
-    for name, path in outputs:  # two reports into one file: the last would win silently
+    for name, path in outputs:
         where = os.path.realpath(path)
         if where in seen:
             raise UsageError(f"--output {path} is given twice ({seen[where]} and {name});"
                              " give each report its own file")
         seen.setdefault(where, name)
-    return outputs
 
 
 def _caution_notice_wanted(args) -> bool:
@@ -469,13 +509,21 @@ def cmd_check(args) -> int:
         raise UsageError("--worst takes a whole number of at least 0")
 
     context = ReportContext(__version__, fail_on, rules, worst)
+    # no report over a file the run reads: the stages, and the configuration, part
+    # libraries, netlist map, rule files and the baseline (unless it is pruned in place)
+    read = [*paths, *audit.files_read(paths, request)]
+    if args.baseline and not args.prune_baseline:
+        read.append(args.baseline)
+    written = [(name, path) for name, path in (("--write-baseline", args.write_baseline),
+                                               ("--prune-baseline", args.baseline
+                                                if args.prune_baseline else None)) if path]
+    _distinct_outputs(outputs + written)
     sinks = []
     try:
-        for path in (args.write_baseline, args.baseline if args.prune_baseline else None):
-            if path:
-                probe_output(path, paths)
+        for _name, path in written:
+            probe_output(path, read)
         report: list[tuple[str, str | None]] = [] if args.quiet else [(args.format, None)]
-        sinks = open_sinks([*report, *outputs], context, paths)
+        sinks = open_sinks([*report, *outputs], context, read)
         # the human formats leave the baseline's findings out unless asked; the machine
         # formats keep each one, marked baselined, for the tools that read them
         hide_baselined = (baseline is not None and not args.show_baselined

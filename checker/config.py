@@ -149,12 +149,17 @@ def _read(path: str) -> tuple[dict, dict[tuple, int], tuple] | None:
         if len(data) > MAX_CONFIG_BYTES:
             raise ConfigError(f"{path}: larger than {MAX_CONFIG_BYTES // 1024} KiB; not a"
                               " configuration file")
-        table = tomllib.loads(data.decode("utf-8"))
+        if data.startswith(b"\xef\xbb\xbf"):  # a UTF-8 byte order mark, as stage files allow
+            data = data[3:]
+        text = data.decode("utf-8")
+        table = tomllib.loads(text)
     except tomllib.TOMLDecodeError as error:
         raise ConfigError(f"{path}: invalid TOML: {error}") from None
-    except (OSError, UnicodeDecodeError) as error:
+    except UnicodeDecodeError:
+        raise ConfigError(f"{path}: cannot read: not UTF-8 text (save it as UTF-8)") from None
+    except OSError as error:
         raise ConfigError(f"{path}: cannot read: {error}") from None
-    lines = _key_lines(data.decode("utf-8"))
+    lines = _key_lines(text)
     if os.path.basename(path) == "pyproject.toml":
         section = table.get("tool", {}).get("ampcheck")
         if section is None:

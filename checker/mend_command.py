@@ -65,6 +65,8 @@ def run(args) -> int:
         raise MendError(f"{args.to} would be read as {_SYNTAX_NAMES[syntax_of(args.to)]}, but"
                         f" the mended stage is {_SYNTAX_NAMES[syntax_of(path)]} like {path};"
                         " give it the same ending (`ampcheck convert` changes the syntax)")
+    if args.config and args.no_config:
+        raise MendError("--config FILE and --no-config contradict each other: give one")
     if args.config and not os.path.isfile(args.config):
         raise MendError(f"--config: no such file {args.config}")
     request = audit.Request(config_file=args.config, parts=tuple(args.parts),
@@ -108,7 +110,10 @@ def run(args) -> int:
         return EXIT_OK
     target = path if args.in_place else (args.to or mended_path(path))
     try:
-        write_new_file(target, mended.text, protect=[] if args.in_place else [path])
+        # never over a file the check read: the stage (unless mended in place), its
+        # configuration, part libraries and rule files
+        read = audit.files_read([path], request)
+        write_new_file(target, mended.text, protect=read if args.in_place else [path, *read])
     except (OSError, ValueError) as error:
         raise MendError(str(error)) from None
     print(f"ampcheck mend: {len(mended.applied)} fix{'es' if len(mended.applied) != 1 else ''}"

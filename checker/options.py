@@ -77,6 +77,10 @@ OPTIONS: tuple[Option, ...] = (
            flag="--worst", default_text="5"),
 )
 BY_NAME = {option.name: option for option in OPTIONS}
+# A layout's stray at an input is picofarads (common practice 0.5 to 2 pF); far beyond,
+# it is a component, which belongs in the stage.
+MAX_STRAY_F = 1e-9
+STRAY_TOO_LARGE = "a layout stray is picofarads, 1 nF at the most; draw a capacitor that large"
 TABLE_KEYS = ("rules", "overrides")  # the two tables besides the options
 
 
@@ -108,6 +112,8 @@ def parse_option(option: Option, value: object, known_rules=()) -> object:
             raise OptionError(f"{name}: {error}") from None
         if number < 0:
             raise OptionError(f"{name} cannot be negative")
+        if name == "stray-capacitance" and number > MAX_STRAY_F:
+            raise OptionError(f"{name}: {value!r} is no stray: {STRAY_TOO_LARGE}")
         return number
     if option.type == "count":
         if not isinstance(value, int) or isinstance(value, bool) or not 0 <= value <= 1024:

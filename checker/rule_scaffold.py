@@ -140,7 +140,11 @@ def scaffold(rule_id: str, into: str, tests: str | None, summary: str,
     for path, _template in planned:
         if os.path.lexists(path):
             raise ScaffoldError(f"{path} exists: new-rule never writes over a file")
-    summary = summary.replace('"', "'")
+    if not summary.strip() or not summary.isprintable():
+        raise ScaffoldError("--summary is one line of printable text (no line breaks or"
+                            " control characters)")
+    # inside the module's "..." strings: quotes become ', a backslash is doubled
+    summary = summary.replace("\\", "\\\\").replace('"', "'")
     for path, template in planned:
         write_new_file(path, template.format(rule_id=rule_id, function=name,
                                              summary=summary))

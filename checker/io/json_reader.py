@@ -14,7 +14,7 @@ import re
 from checker.io.positions import InputErrors, InputProblem, LineIndex, Path, Position
 from checker.units import underflows
 
-_TOKEN = re.compile(r'"(?:[^"\\]|\\.)*"|[{}\[\]:,]|[^\s{}\[\]:,"]+')
+_TOKEN = re.compile(r'"[^"\\]*(?:\\.[^"\\]*)*"|[{}\[\]:,]|[^\s{}\[\]:,"]+')
 MAX_DEPTH = 40
 
 

@@ -26,12 +26,11 @@ import re
 from dataclasses import field
 from checker.record import record
 
-from checker.io.positions import InputErrors, InputProblem
+from checker.io.positions import MAX_REPORTED, InputErrors, InputProblem, reported
 
 MAX_CARDS = 100_000
 MAX_WORDS = 4_000
 MAX_SUBCKT_DEPTH = 8
-MAX_REPORTED = 10
 
 _WORD = re.compile(r"[^\s(),=;]+|[(),=]")
 _FUNCTIONS = {"sin", "pulse", "pwl", "exp", "sffm", "am", "trrandom", "trnoise"}
@@ -197,7 +196,7 @@ def _logical_cards(text: str, path: str, problems: list[InputProblem]
             if len(cards[-1]) > MAX_WORDS:
                 problems.append(InputProblem(path, cards[-1][0].line, cards[-1][0].column,
                                              f"a card longer than {MAX_WORDS} words"))
-                raise InputErrors(problems[:MAX_REPORTED])
+                raise InputErrors(reported(problems))
             continue
         words = _words(body, number, indent + 1)
         if not words:
@@ -208,7 +207,7 @@ def _logical_cards(text: str, path: str, problems: list[InputProblem]
         if len(cards) > MAX_CARDS:
             problems.append(InputProblem(path, number, 1, f"more than {MAX_CARDS} cards:"
                                          " ampcheck reads netlists of at most that size"))
-            raise InputErrors(problems[:MAX_REPORTED])
+            raise InputErrors(reported(problems))
     return title, cards, len(lines)
 
 
@@ -391,13 +390,18 @@ class _Reader:
             card = self.card(words, inside)
             if card is None:
                 if len(self.problems) >= MAX_REPORTED:
+                    first = words[0]
+                    self.problems.append(InputProblem(
+                        self.path, first.line, first.column, f"reading stopped after"
+                        f" {MAX_REPORTED} problems; more may follow: mend these and check"
+                        " again"))
                     break
                 continue
             (stack[-1][2] if stack else top).append(card)
         for name, _pins, _cards in stack[:MAX_REPORTED]:
             self.fail(name, f".subckt {name.text} is never closed (a missing .ends)")
         if self.problems:
-            raise InputErrors(self.problems[:MAX_REPORTED])
+            raise InputErrors(self.problems[:MAX_REPORTED + 1])
         return Netlist(self.path, title, tuple(top), subcircuits, tuple(commands), line_count)
 
 

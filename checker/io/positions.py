@@ -30,6 +30,21 @@ class InputProblem:
         return f"{self.path}:{self.line}:{self.column}: {self.message}"
 
 
+MAX_REPORTED = 10  # problems listed per file: the first ones, then how many more
+
+
+def reported(problems: list[InputProblem]) -> list[InputProblem]:
+    """The first MAX_REPORTED problems, and where there are more, one more that says
+    how many were left out (at the first of them), so none is dropped silently."""
+    if len(problems) <= MAX_REPORTED:
+        return list(problems)
+    first_left, more = problems[MAX_REPORTED], len(problems) - MAX_REPORTED
+    return [*problems[:MAX_REPORTED], InputProblem(
+        first_left.path, first_left.line, first_left.column,
+        f"and {more} more problem{'s' if more != 1 else ''} from here on, not listed: mend"
+        f" the first {MAX_REPORTED} and check again")]
+
+
 class InputErrors(Exception):
     """Raised by a reader or the builder with every problem it found in one file."""
 

@@ -17,18 +17,18 @@ from functools import lru_cache
 import sexpdata
 
 from checker.io.grammar import FORMS, Child, Form, positional_slots
-from checker.io.positions import InputErrors, InputProblem, LineIndex, Path, Position
+from checker.io.positions import (MAX_REPORTED, InputErrors, InputProblem, LineIndex, Path,
+                                  Position, reported)
 from checker.units import underflows
 
 MAX_DEPTH = 40
-MAX_REPORTED = 10
 
 # Token boundaries must match sexpdata's exactly: it separates atoms only by ASCII
 # whitespace and reads a backslash in an atom as an escape, so other spaces and a bare
 # backslash are reported instead of being read.
 _TOKEN = re.compile(
     r'(?P<space>[ \t\n\r\f\v]+)|(?P<comment>;[^\n]*)|(?P<open>\()|(?P<close>\))'
-    r'|(?P<string>"(?:[^"\\]|\\[\s\S])*")|(?P<badstring>")'
+    r'|(?P<string>"[^"\\]*(?:\\[\s\S][^"\\]*)*")|(?P<badstring>")'
     r'|(?P<oddspace>[^\S \t\n\r\f\v])|(?P<bad>[\[\]\'`,\\])'
     r'|(?P<atom>[^\s()";\[\]\'`,\\]+)'
 )
@@ -126,7 +126,7 @@ def scan(text: str, path: str, index: LineIndex | None = None
                            " only parentheses, atoms, \"strings\" and ; comments")
     for start in open_stack[:MAX_REPORTED]:
         problem(start, "this '(' is never closed (a missing ')')")
-    return top, problems[:MAX_REPORTED]
+    return top, reported(problems)
 
 
 def parse(text: str, path: str) -> list[SNode]:
@@ -151,7 +151,7 @@ def read_sexp(text: str, path: str, forms: dict[str, Form] | None = None
     converter = _Converter(path, FORMS if forms is None else forms)
     tree = converter.document(nodes)
     if converter.problems:
-        raise InputErrors(converter.problems[:MAX_REPORTED])
+        raise InputErrors(reported(converter.problems))
     return tree, converter.positions
 
 
@@ -186,7 +186,9 @@ class _Converter:
             child = form.children.get(keyword)
             if child is None:
                 child = Child(keyword, "unknown")
-                hint = _nearest(keyword, form.children)
+                # past the problems listed, only the count is shown: no search for a hint
+                hint = _nearest(keyword, form.children) \
+                    if len(self.problems) < MAX_REPORTED else ""
                 self.fail(node.pos, f"unknown keyword {keyword!r} in {context}{hint}")
                 continue
             if child.repeated:

@@ -116,6 +116,18 @@ class AtomicOutput:
             self.temporary = None
 
 
+# A write that failed for want of room or of a device (not a missing file or a mistake).
+WRITE_ERRORS = frozenset({errno.ENOSPC, errno.EIO, errno.EFBIG,
+                          getattr(errno, "EDQUOT", errno.ENOSPC)})
+
+
+def unnamed_write_error(error: BaseException) -> bool:
+    """``error`` is a failed write that names no file: every file this tool writes
+    names itself in its errors (AtomicOutput), so it was standard output's."""
+    return isinstance(error, OSError) and error.filename is None \
+        and error.errno in WRITE_ERRORS
+
+
 def _named(error: OSError, path: str) -> OSError:
     """``error`` as an OSError naming ``path``, so its message says which output failed."""
     return OSError(error.errno, error.strerror or str(error), path)

@@ -36,7 +36,7 @@ from checker.record import record
 from checker.io.netlist_reader import (Card, Command, Instance, Netlist, OtherCard,
                                        SourceCard, TwoTerminal, Word)
 from checker.io.netlist_values import NetlistValueError, parse_netlist_number
-from checker.io.positions import InputErrors, InputProblem, Path, Position
+from checker.io.positions import InputErrors, InputProblem, Path, Position, reported
 from checker.model import Origin, ReaderNote
 from checker.netlist.mapping import UNUSED_PIN, NetlistMap, OpAmpModel, Scope, key
 
@@ -663,7 +663,7 @@ def extract(netlist: Netlist, netlist_map: NetlistMap | None) -> Extraction:
     board = _Board(netlist, netlist_map)
     board.read_cards()
     if board.problems:
-        raise InputErrors(sorted(board.problems, key=lambda p: (p.line, p.column))[:10])
+        raise InputErrors(reported(sorted(board.problems, key=lambda p: (p.line, p.column))))
     for opamp in board.opamps:
         for pin in ("v+", "v-"):
             net = opamp.pins[pin]
@@ -673,7 +673,7 @@ def extract(netlist: Netlist, netlist_map: NetlistMap | None) -> Extraction:
                            " holds; declare it in the netlist map with (rail"
                            f" {board.spelling[net]} VOLTS)", opamp.card.name.text)
     if board.problems:
-        raise InputErrors(board.problems[:10])
+        raise InputErrors(reported(board.problems))
     if not board.opamps:
         raise InputErrors([_no_opamp_problem(board)])
     groups, owned, _orphans = board.cut()

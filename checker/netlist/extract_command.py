@@ -68,7 +68,10 @@ def extract_into(paths: list[str], into: str, request) -> bool:
     audit.forget()
     failed = False
     written = []
-    temporary = tempfile.mkdtemp(dir=parent, prefix=".ampcheck-extract-")
+    try:
+        temporary = tempfile.mkdtemp(dir=parent, prefix=".ampcheck-extract-")
+    except OSError as error:
+        raise ExtractError(f"--into {into}: {error.strerror or error}") from None
     try:
         for netlist, name in items:
             try:
@@ -90,11 +93,19 @@ def extract_into(paths: list[str], into: str, request) -> bool:
                 failed = True
                 continue
             target = os.path.join(temporary, name)
-            os.makedirs(os.path.dirname(target), exist_ok=True)
-            with open(target, "w", encoding="utf-8") as handle:
-                handle.write(stage_file_text(extraction, netlist, map_path))
+            try:
+                os.makedirs(os.path.dirname(target), exist_ok=True)
+                with open(target, "w", encoding="utf-8") as handle:
+                    handle.write(stage_file_text(extraction, netlist, map_path))
+            except OSError as error:  # a full disk: named by the folder asked for
+                raise ExtractError(f"--into {into}: cannot write"
+                                   f" {os.path.join(into, name)}:"
+                                   f" {error.strerror or error}") from None
             written.append(name)
-        os.rename(temporary, into)
+        try:
+            os.rename(temporary, into)
+        except OSError as error:
+            raise ExtractError(f"--into {into}: {error.strerror or error}") from None
     except BaseException:
         shutil.rmtree(temporary, ignore_errors=True)
         raise

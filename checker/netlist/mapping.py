@@ -27,7 +27,7 @@ from functools import lru_cache
 
 from checker.io.grammar import FORMS, PART_PARAMETERS, REQUIREMENTS, Child, Form
 from checker.io.load import read_text
-from checker.io.positions import InputErrors, InputProblem, Path, Position, locate
+from checker.io.positions import InputErrors, InputProblem, Path, Position, locate, reported
 from checker.io.sexp_reader import read_sexp
 from checker.model import Origin
 from checker.units import UnitError, parse_value
@@ -363,7 +363,7 @@ def parse_map(text: str, path: str) -> NetlistMap:
             continue
         boards[name] = builder.scope(node, ("boards", i), f"board {name}")
     if builder.problems:
-        raise InputErrors(sorted(builder.problems, key=lambda p: (p.line, p.column))[:10])
+        raise InputErrors(reported(sorted(builder.problems, key=lambda p: (p.line, p.column))))
     return NetlistMap(path, models, connectors, common, boards)
 
 

@@ -1,6 +1,7 @@
 """One CSV row per stage with its figures, for a spreadsheet: plain SI numbers in the
 cells, the unit in each column's header (a transimpedance stage's gain is in ohms,
-which `gain_unit` says)."""
+which `gain_unit` says). Text that a spreadsheet would run as a formula gets a leading
+apostrophe (csv_cells.py)."""
 
 from __future__ import annotations
 
@@ -8,6 +9,7 @@ import csv
 
 from checker.findings import Severity
 from checker.report import Writer as BaseWriter
+from checker.report.csv_cells import safe_row
 
 COLUMNS = ["file", "stage", "gain", "gain_unit", "bandwidth (Hz)", "phase_margin (deg)",
            "output_low (V)", "output_high (V)", "errors", "warnings", "notes"]
@@ -36,4 +38,4 @@ class Writer(BaseWriter):
 
     def add(self, result) -> None:
         for stage in result.stages:
-            self.rows.writerow(stage_row(result.path, stage))
+            self.rows.writerow(safe_row(stage_row(result.path, stage)))

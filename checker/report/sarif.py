@@ -22,6 +22,7 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+from urllib.parse import quote
 
 from checker.cautions import KINDS as CAUTION_KINDS
 from checker.catalogue import ENGINE_CATALOGUE, ENGINE_RULES
@@ -49,6 +50,13 @@ def repository_root(start: str) -> str:
         if parent == folder:
             return os.path.abspath(start)
         folder = parent
+
+
+def uri_reference(path: str) -> str:
+    """A relative path as the URI reference SARIF's ``uri`` holds (RFC 3986):
+    spaces, non-ASCII letters, ``#`` and ``%`` percent-encoded, ``/`` kept. The
+    fingerprints hash the plain path, so they stay as they were."""
+    return quote(path, safe="/")
 
 
 def fingerprint(finding: Finding | Caution, uri: str) -> str:
@@ -95,7 +103,7 @@ def caution_result(caution: Caution, root: str, index: dict[str, int]) -> dict:
         "ruleId": caution.caution, "ruleIndex": index[caution.caution], "level": "warning",
         "message": {"text": text},
         "locations": [{"physicalLocation": {
-            "artifactLocation": {"uri": uri, "uriBaseId": "SRCROOT"},
+            "artifactLocation": {"uri": uri_reference(uri), "uriBaseId": "SRCROOT"},
             "region": {"startLine": caution.line, "startColumn": caution.column}}}],
         "partialFingerprints": partial_fingerprints(caution, uri),
         "properties": properties,
@@ -137,7 +145,7 @@ def result_entry(finding: Finding, root: str, index: dict[str, int]) -> dict:
         "ruleId": finding.rule, "ruleIndex": index[finding.rule],
         "level": LEVEL[finding.severity], "message": {"text": text},
         "locations": [{"physicalLocation": {
-            "artifactLocation": {"uri": uri, "uriBaseId": "SRCROOT"},
+            "artifactLocation": {"uri": uri_reference(uri), "uriBaseId": "SRCROOT"},
             "region": {"startLine": finding.line, "startColumn": finding.column}}}],
         "partialFingerprints": partial_fingerprints(finding, uri),
     }

@@ -20,12 +20,22 @@ from checker.units import format_si
 _KEYWORDS = {field: keyword for keyword, field in PART_ATTRIBUTES.items()}
 
 
+class PipeConsole(Console):
+    """A console whose reader going away (| head) ends the run as any other output's
+    does, through BrokenPipeError (the command line's exit 128 + SIGPIPE), not with the
+    terminal library's own exit status 1, which would read as findings."""
+
+    def on_broken_pipe(self) -> None:
+        self.quiet = True
+        raise BrokenPipeError
+
+
 def console(stderr: bool = False) -> Console:
     """A console that honours NO_COLOR / FORCE_COLOR and goes plain off a terminal,
     where it does not wrap lines either (one finding line stays one line for grep)."""
-    out = Console(stderr=stderr, highlight=False)
+    out = PipeConsole(stderr=stderr, highlight=False)
     if not out.is_terminal:
-        out = Console(stderr=stderr, highlight=False, soft_wrap=True, width=200)
+        out = PipeConsole(stderr=stderr, highlight=False, soft_wrap=True, width=200)
     return out
 
 
