@@ -264,8 +264,9 @@ def _cut_bottom(view, sf):
         return
     frequencies = view.figures.frequencies_hz
     band = band_points(frequencies, source)
-    gains = np.abs(sf.gain_from_source)
-    peak = float(np.max(gains[band])) if band is not None else float(np.max(gains))
+    if band is None:
+        return
+    peak = abs(view.figures.band_peak(stage.output_net, ("source", sf.index), band)[1])
     bottom = float(abs(_at(frequencies, sf.gain_from_source, low)))
     loss_db = 20 * math.log10(peak / bottom) if bottom > 0 else math.inf
     yield view.finding(

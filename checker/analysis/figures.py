@@ -169,10 +169,13 @@ class Figures:
         return ranges.unranged_sources(self.solution, nets)
 
     def node_range(self, net: str) -> NodeRange:
-        return ranges.node_range(self.solution, net)
+        """Extremes of ``net`` (ranges.node_range), once per net: several rules and the
+        verdicts read the same outputs and inputs."""
+        return self.cached(("node_range", net), lambda: ranges.node_range(self.solution, net))
 
     def difference_range(self, net_a: str, net_b: str) -> NodeRange:
-        return ranges.difference_range(self.solution, net_a, net_b)
+        return self.cached(("difference_range", net_a, net_b),
+                           lambda: ranges.difference_range(self.solution, net_a, net_b))
 
     def input_window(self, net: str, index: int) -> tuple[float, float] | None:
         return ranges.input_window(self.solution, net, index)

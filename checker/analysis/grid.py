@@ -129,12 +129,13 @@ def band_peak(frequencies: np.ndarray, values: np.ndarray, band: np.ndarray, val
         return magnitude * weight(freqs) if weight is not None else magnitude
 
     inside = np.flatnonzero(band)
-    scores = score(frequencies, values)
-    i = int(inside[np.argmax(scores[inside])])
     first, last = int(inside[0]), int(inside[-1])
+    scores = score(frequencies[first:last + 1], values[first:last + 1])
+    i = first + int(np.argmax(scores))
     left, right = max(i - 1, first), min(i + 1, last)
-    best = scores[i]
-    if left == right or all(scores[k] >= best * (1 - FLAT_NEIGHBOURS) for k in {left, right} - {i}):
+    best = scores[i - first]
+    if left == right or all(scores[k - first] >= best * (1 - FLAT_NEIGHBOURS)
+                            for k in {left, right} - {i}):
         return frequencies, values, i
     extra_f, extra_v = [], []
     span = (frequencies[left], frequencies[right])
