@@ -43,7 +43,12 @@ class SignalFigures:
 
 
 def stage_signals(figures) -> list[SignalFigures]:
-    """The stage's signals (none when it has no source)."""
+    """The stage's signals (none when it has no source), worked out once per stage: the
+    verdicts, the rules and the report read them alike (do not change the list)."""
+    return figures.cached("stage_signals", lambda: _signals(figures))
+
+
+def _signals(figures) -> list[SignalFigures]:
     sources = figures.sources
     if not sources:
         return []
