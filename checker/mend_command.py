@@ -36,6 +36,15 @@ def register(commands) -> None:
 _SYNTAX_NAMES = {"json": "JSON", "sexp": "an s-expression"}
 
 
+def _starts_with_mark(path: str) -> bool:
+    """The file begins with a UTF-8 byte order mark (the reader drops it)."""
+    try:
+        with open(path, "rb") as handle:
+            return handle.read(3) == b"\xef\xbb\xbf"
+    except OSError:
+        return False
+
+
 def mended_path(path: str) -> str:
     """conductivity.stage -> conductivity.mended.stage (x.stage.json ->
     x.mended.stage.json)."""
@@ -113,7 +122,9 @@ def run(args) -> int:
         # never over a file the check read: the stage (unless mended in place), its
         # configuration, part libraries and rule files
         read = audit.files_read([path], request)
-        write_new_file(target, mended.text, protect=read if args.in_place else [path, *read])
+        mark = "\ufeff" if _starts_with_mark(path) else ""  # as the file was written
+        write_new_file(target, mark + mended.text,
+                       protect=read if args.in_place else [path, *read])
     except (OSError, ValueError) as error:
         raise MendError(str(error)) from None
     print(f"ampcheck mend: {len(mended.applied)} fix{'es' if len(mended.applied) != 1 else ''}"

@@ -210,3 +210,15 @@ def test_an_output_file_named_dash_is_refused(project, capsys):
     code, _out, err = run(capsys, "check", "a.stage", "-o", "json:-", "--no-config")
     assert code == 2 and "standard output takes the --format report" in err
     assert not (project / "-").exists()
+
+
+def test_mend_keeps_a_byte_order_mark(tmp_path, capsys):
+    # samples/conductivity.stage has verified fixes to write (its feedback pole)
+    with open("samples/conductivity.stage", "rb") as handle:
+        text = handle.read()
+    stage = tmp_path / "bom.stage"
+    stage.write_bytes(b"\xef\xbb\xbf" + text)
+    code, _out, err = run(capsys, "mend", str(stage), "--no-config")
+    assert code == 0 and "written to" in err
+    mended = (tmp_path / "bom.mended.stage").read_bytes()
+    assert mended.startswith(b"\xef\xbb\xbf") and not mended.startswith(b"\xef\xbb\xbf" * 2)
