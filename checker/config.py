@@ -309,6 +309,9 @@ def _rule_tables(table: dict, keys: tuple, where, fail: Callable[[tuple, str], N
                             f" {setting.key!r} now (the old spelling still works)")
             if setting is None:
                 fail(path, _unknown(name, allowed).replace("key", f"setting of {rule_id}"))
+            if setting.name in checked:  # both spellings: which one is meant?
+                fail(path, f"{rule_id} setting {setting.key!r} is given twice (as"
+                           f" {setting.key!r} and {setting.name!r}); keep one")
             try:
                 value = setting.parse(value)
             except OptionError as error:

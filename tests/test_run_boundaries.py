@@ -222,3 +222,10 @@ def test_mend_keeps_a_byte_order_mark(tmp_path, capsys):
     assert code == 0 and "written to" in err
     mended = (tmp_path / "bom.mended.stage").read_bytes()
     assert mended.startswith(b"\xef\xbb\xbf") and not mended.startswith(b"\xef\xbb\xbf" * 2)
+
+
+def test_a_rule_setting_in_both_spellings_is_an_error(project, capsys):
+    (project / "c.toml").write_text("[rules.feedback-pole]\nwarn_below_deg = 50\n"
+                                    "warn-below-deg = 60\n", encoding="utf-8")
+    code, _out, err = run(capsys, "check", "a.stage", "--config", "c.toml")
+    assert code == 2 and "is given twice" in err and "c.toml:3" in err
