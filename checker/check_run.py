@@ -13,7 +13,7 @@ from collections import Counter
 
 from checker import audit
 from checker import baseline as baselines
-from checker.io.write import AtomicOutput, unnamed_write_error
+from checker.io.write import AtomicOutput, new_folder, unnamed_write_error
 from checker.records import DEFERRAL, Caution
 from checker.report import Receiver, writer, writes_folder
 from checker.report.context import ReportContext
@@ -130,7 +130,7 @@ class FolderSink:
         parent = os.path.dirname(target) or "."
         if not os.path.isdir(parent):
             raise RunError(f"cannot write {path}: no folder {os.path.dirname(path) or '.'}")
-        self.temporary = tempfile.mkdtemp(dir=parent, prefix=".ampcheck-", suffix=".tmp")
+        self.temporary = new_folder(parent, ".ampcheck-", ".tmp")
         self.writer = writer(name, None, context, folder=self.temporary)
 
     def start(self) -> None:

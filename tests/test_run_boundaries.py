@@ -229,3 +229,15 @@ def test_a_rule_setting_in_both_spellings_is_an_error(project, capsys):
                                     "warn-below-deg = 60\n", encoding="utf-8")
     code, _out, err = run(capsys, "check", "a.stage", "--config", "c.toml")
     assert code == 2 and "is given twice" in err and "c.toml:3" in err
+
+
+@pytest.mark.skipif(sys.platform == "win32", reason="POSIX modes")
+def test_a_review_folder_gets_the_mode_a_folder_made_by_hand_gets(project, capsys):
+    mask = os.umask(0o022)
+    try:
+        code, _out, _err = run(capsys, "check", "a.stage", "-o", "html:review", "-q",
+                               "--no-config", "--fail-on", "never")
+    finally:
+        os.umask(mask)
+    assert code == 0
+    assert (project / "review").stat().st_mode & 0o777 == 0o755

@@ -27,6 +27,16 @@ def _umask() -> int:
     return mask
 
 
+def new_folder(parent: str, prefix: str, suffix: str = "") -> str:
+    """A new, empty hidden folder in ``parent`` (tempfile.mkdtemp) given the mode a
+    folder made by hand would get (0755 under umask 022), not mkdtemp's private 0700:
+    it becomes a report or extract folder that others read."""
+    folder = tempfile.mkdtemp(dir=parent, prefix=prefix, suffix=suffix)
+    with contextlib.suppress(OSError):  # a platform without modes: it stays as made
+        os.chmod(folder, 0o777 & ~_umask())
+    return folder
+
+
 class AtomicOutput:
     """One output file being written: ``stream`` is a text stream; ``commit`` finishes
     it, ``abandon`` drops it (both safe to call twice)."""

@@ -10,9 +10,10 @@ from __future__ import annotations
 import os
 import shutil
 import sys
-import tempfile
+
 
 from checker.io.positions import InputErrors, InputProblem
+from checker.io.write import new_folder
 from checker.netlist import NETLIST_ENDINGS
 from checker.netlist.load import build_netlist_stages, read_netlist_file
 from checker.netlist.stage_writer import stage_file_text
@@ -69,7 +70,7 @@ def extract_into(paths: list[str], into: str, request) -> bool:
     failed = False
     written = []
     try:
-        temporary = tempfile.mkdtemp(dir=parent, prefix=".ampcheck-extract-")
+        temporary = new_folder(parent, ".ampcheck-extract-")
     except OSError as error:
         raise ExtractError(f"--into {into}: {error.strerror or error}") from None
     try:
