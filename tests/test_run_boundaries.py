@@ -241,3 +241,14 @@ def test_a_review_folder_gets_the_mode_a_folder_made_by_hand_gets(project, capsy
         os.umask(mask)
     assert code == 0
     assert (project / "review").stat().st_mode & 0o777 == 0o755
+
+
+def test_carriage_returns_alone_are_refused_at_their_position(tmp_path, capsys):
+    # positions count LF; a file of CR-only lines would put every problem on line 1
+    path = tmp_path / "cr.stage"
+    path.write_bytes(b"(stage a (ground gnd)\r  (bogus))\r")
+    _code, out, _err = run(capsys, "check", str(path), "-f", "compact", "--no-config")
+    assert "cr.stage:1:22: error input-invalid: a line ends in a carriage return alone" in out
+    path.write_bytes(b"(stage a (ground gnd)\r\n  (bogus))\r\n")  # CRLF reads as LF
+    _code, out, _err = run(capsys, "check", str(path), "-f", "compact", "--no-config")
+    assert "cr.stage:2:3: error input-invalid: unknown keyword 'bogus'" in out

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import re
 import stat
 from checker.record import record
 
@@ -83,9 +84,19 @@ def _not_regular(mode: int) -> str | None:
     return "not a plain file"
 
 
+_LONE_CR = re.compile(r"\r(?!\n)")
+
+
 def parse_text(text: str, path: str, syntax: str | None = None) -> ParsedFile:
     """Parse and validate ``text``; raise InputErrors with every problem found."""
     syntax = syntax or syntax_of(path)
+    lone = _LONE_CR.search(text)
+    if lone:  # every position would read as line 1, and a comment would run to the end
+        line = text.count("\n", 0, lone.start()) + 1
+        raise InputErrors([InputProblem(path, line, lone.start() - text.rfind("\n", 0, lone.start()),
+                                        "a line ends in a carriage return alone (an old"
+                                        " convention): save the file with LF or CRLF line"
+                                        " endings")])
     if syntax == "json":
         tree, positions = read_json(text, path)
     else:
