@@ -112,7 +112,7 @@ class FolderSink:
     existing folder there is replaced only when an earlier review wrote it."""
 
     def __init__(self, name: str, path: str, context: ReportContext, inputs: list[str]):
-        from checker.report.html_page import is_review_folder
+        from checker.report.html_page import foreign_files, is_review_folder
 
         self.path: str | None = path  # None once the folder is in place, or abandoned
         target = os.path.realpath(path)
@@ -123,6 +123,12 @@ class FolderSink:
             if os.listdir(target) and not is_review_folder(target):
                 raise RunError(f"refusing to replace the folder {path}: it is not an"
                                f" earlier {name} review (no index.html of ours)")
+            others = foreign_files(target) if os.listdir(target) else []
+            if others:  # replacing the folder would delete them
+                raise RunError(f"refusing to replace the review folder {path}: it holds"
+                               f" {others[0]}, which no review wrote"
+                               f"{f' (and {len(others) - 1} more)' if len(others) > 1 else ''};"
+                               " move it out, or write the review elsewhere")
         inside = [p for p in inputs
                   if os.path.realpath(p).startswith(target.rstrip(os.sep) + os.sep)]
         if inside:

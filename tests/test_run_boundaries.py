@@ -252,3 +252,14 @@ def test_carriage_returns_alone_are_refused_at_their_position(tmp_path, capsys):
     path.write_bytes(b"(stage a (ground gnd)\r\n  (bogus))\r\n")  # CRLF reads as LF
     _code, out, _err = run(capsys, "check", str(path), "-f", "compact", "--no-config")
     assert "cr.stage:2:3: error input-invalid: unknown keyword 'bogus'" in out
+
+
+def test_a_review_folder_holding_foreign_files_is_not_replaced(project, capsys):
+    argv = ("check", "a.stage", "-o", "html:review", "-q", "--no-config", "--fail-on", "never")
+    assert run(capsys, *argv)[0] == 0
+    (project / "review" / "notes.txt").write_text("kept", encoding="utf-8")
+    code, _out, err = run(capsys, *argv)
+    assert code == 2 and "it holds notes.txt, which no review wrote" in err
+    assert (project / "review" / "notes.txt").read_text(encoding="utf-8") == "kept"
+    (project / "review" / "notes.txt").unlink()
+    assert run(capsys, *argv)[0] == 0  # an earlier review alone is replaced as before

@@ -60,6 +60,31 @@ def is_review_folder(path: str) -> bool:
         return False
 
 
+def foreign_files(path: str) -> list[str]:
+    """The files in an earlier review folder that no review wrote (anything but our
+    index.html and stage pages, each marked as ours): replacing the folder would delete
+    them."""
+    found = []
+    for folder, _subfolders, names in os.walk(path):
+        for name in names:
+            full = os.path.join(folder, name)
+            relative = os.path.relpath(full, path).replace(os.sep, "/")
+            ours = relative == "index.html" or (
+                relative.startswith(STAGE_FOLDER + "/") and relative.count("/") == 1
+                and name.endswith(".html"))
+            if not (ours and _marked(full)):
+                found.append(relative)
+    return sorted(found)
+
+
+def _marked(path: str) -> bool:
+    try:
+        with open(path, encoding="utf-8") as handle:
+            return MARKER in handle.read(2000)
+    except (OSError, UnicodeDecodeError):
+        return False
+
+
 def slug(text: str) -> str:
     return re.sub(r"[^a-z0-9]+", "-", text.lower()).strip("-")[:60] or "stage"
 
