@@ -137,6 +137,9 @@ def _builtin_modules() -> list[ModuleType]:
 
 
 def _folder_modules(folder: str) -> list[ModuleType]:
+    if os.path.exists(folder) and not os.path.isdir(folder):
+        raise RuleError(f"rule folder {folder} is a file: --rules-dir names a folder of"
+                        " rule modules")
     if not os.path.isdir(folder):
         raise RuleError(f"rule folder {folder} does not exist")
     modules = []

@@ -66,6 +66,12 @@ def run(args) -> int:
     path = args.file
     if not os.path.exists(path):
         raise MendError(f"no such file {path}")
+    if os.path.isdir(path):
+        raise MendError(f"{path} is a folder: mend edits one stage file at a time")
+    if args.to is not None and not args.to.strip():
+        raise MendError("--to names the copy to write, e.g. filter.mended.stage")
+    if args.to and not os.path.isdir(os.path.dirname(os.path.abspath(args.to))):
+        raise MendError(f"--to {args.to}: no folder {os.path.dirname(args.to) or '.'}")
     if not path.endswith(STAGE_ENDINGS):
         raise MendError(f"{path} is not a stage file (*.stage, *.stage.json): mend edits"
                         " stage files only; for a netlist, `ampcheck extract` writes its"

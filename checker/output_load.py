@@ -5,6 +5,8 @@ smaller resistance) makes it swing less. The output drives its declared loads an
 feedback network together: an inverting stage's feedback resistor ends at a virtual
 ground and loads the output as a resistor to ground would (Ohm's law on the solved
 incremental currents, figures.output_loads), which a glance at the load alone misses.
+Only in-phase current counts: a capacitive load's current is zero at the voltage's peak,
+where the headroom is decided.
 """
 
 from __future__ import annotations

@@ -41,8 +41,9 @@ def bandwidth(view):
         adds there. It must stay within the stage's `gain-tolerance` or, without one,
         `max_gain_error` (warning). On a stage that states a `gain` or a `bandwidth`,
         a solved lower -3 dB edge above the bottom of a source's band (a coupling
-        capacitor too small for the band) is warned too; without one, a high-pass
-        shapes the band on purpose. A stage with an op-amp that has no negative
+        capacitor too small for the band; any lower edge for a band from 0 Hz, whose DC
+        a series capacitor blocks) is warned too; without one, a high-pass shapes the
+        band on purpose. A stage with an op-amp that has no negative
         feedback is left to the `open-loop` rule.
 
     Why it matters:
@@ -67,9 +68,10 @@ def bandwidth(view):
         (a feedback capacitor, a source's RC) sets the bandwidth: against a stated
         `bandwidth` requirement the rule says so; against the band's top alone it
         stays quiet, since a filter or an integrator shapes the band on purpose.
-        For a cut bottom of the band, the first series capacitor (neither end on a
-        rail) whose smallest E12 value up to 1000 times the drawn one, solved, brings
-        the lower edge to the band's bottom. For the gain error it reports the loop gain at the band's top and the GBW that
+        For a cut bottom of the band, the first capacitor (series ones first, then
+        those to a fixed net, such as a gain leg's) whose smallest E12 value up to 1000
+        times the drawn one, solved, brings the lower edge to the band's bottom. For
+        the gain error it reports the loop gain at the band's top and the GBW that
         brings the error within the limit, found the same way over the E12 values
         around the GBW a single pole needs for that error (an edge of
         f / sqrt(1/(1 - e)^2 - 1) times the noise gain); "from which" matters here,
@@ -255,39 +257,45 @@ def _check_source(view, sf, ideal):
 
 def _cut_bottom(view, sf):
     """The bottom of a band cut by the stage: the solved lower -3 dB edge (from the
-    band's largest gain) above the band's lower edge, on a stage that states a gain or a
-    bandwidth for the signal (without one, a high-pass shapes the band on purpose)."""
+    band's largest gain) above the band's lower edge (any edge, for a band from 0 Hz:
+    a series capacitor blocks the DC the band holds), on a stage that states a gain or
+    a bandwidth for the signal (without one, a high-pass shapes the band on purpose)."""
     stage, source = view.stage, sf.source
-    low, edge = source.band_low_hz, sf.bandwidth_low_hz
+    low, edge = source.band_low_hz or 0.0, sf.bandwidth_low_hz
     stated = stage.require.gain is not None or stage.require.bandwidth_hz is not None
-    if not (stated and low and edge is not None and above(edge, low)):
+    if not (stated and source.band_high_hz and edge is not None and above(edge, low)):
         return
-    frequencies = view.figures.frequencies_hz
-    band = band_points(frequencies, source)
+    figures = view.figures
+    band = band_points(figures.frequencies_hz, source)
     if band is None:
         return
-    peak = abs(view.figures.band_peak(stage.output_net, ("source", sf.index), band)[1])
-    bottom = float(abs(_at(frequencies, sf.gain_from_source, low)))
-    loss_db = 20 * math.log10(peak / bottom) if bottom > 0 else math.inf
+    peak = abs(figures.band_peak(stage.output_net, ("source", sf.index), band)[1])
+    bottom = abs(figures.dc_transfer(stage.output_net, ("source", sf.index))) if low == 0 \
+        else float(abs(_at(figures.frequencies_hz, sf.gain_from_source, low)))
+    loss = (f"{20 * math.log10(peak / bottom):.1f} dB below its largest in the band"
+            if bottom > 0 else "nothing (the DC is blocked)")
     yield view.finding(
         f"{source.name} reaches the output with its lower -3 dB edge at"
         f" {format_si(edge, 'Hz')}, inside its band from {format_si(low, 'Hz')}: at the"
-        f" band's bottom the gain is {loss_db:.1f} dB below its largest in the band, so the"
-        " stated gain does not hold there", sf.source.origin, elements=(source.name,),
+        f" band's bottom the gain is {loss}", sf.source.origin, elements=(source.name,),
         measured=edge, limit=low, unit="Hz",
         suggestion=lambda: _larger_coupling(view, sf, low),
-        loss_db=loss_db, **view.answers("gain", "bandwidth"))
+        loss_db=20 * math.log10(peak / bottom) if bottom > 0 else None,
+        **view.answers("gain", "bandwidth"))
 
 
 def _larger_coupling(view, sf, low: float) -> Suggestion:
-    """The first series capacitor (neither end on a rail) of the stage whose smallest E12
-    value, up to 1000 times the drawn one, brings the solved lower edge to ``low`` or
-    below; each value solved in full."""
+    """The first capacitor of the stage (series ones first, then those to a fixed net,
+    such as a gain leg's) whose smallest E12 value, up to 1000 times the drawn one,
+    brings the solved lower edge to ``low`` or below; each value solved in full. A band
+    from 0 Hz has no such value: a series capacitor passes no DC at any size."""
     stage = view.stage
+    if low <= 0:
+        return Suggestion("the band starts at DC, which a series capacitor blocks at any"
+                          " size: couple the signal directly, or state the band from the"
+                          " lowest frequency the stage is meant to pass")
     rails = set(stage.rail_voltages)
-    for capacitor in stage.capacitors():
-        if set(capacitor.nets) & rails:
-            continue
+    for capacitor in sorted(stage.capacitors(), key=lambda c: bool(set(c.nets) & rails)):
 
         def passes(farads, capacitor=capacitor):
             changed = tuple(replace(p, value=farads) if p.ref == capacitor.ref else p

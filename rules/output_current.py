@@ -109,7 +109,7 @@ def output_current(view):
                    f" the load and feedback network at the output's extremes")
         if capacitive:
             message += (f", plus {format_si(capacitive, 'A')} into the capacitance on the"
-                        f" output at the top of the band")
+                        f" output where the band swings it fastest")
         yield view.finding(message, opamp.origin, elements=(opamp.ref,), measured=total,
                            limit=limit, unit="A",
                            suggestion=lambda: _suggest(view, opamp, total, capacitive,

@@ -16,7 +16,7 @@ from checker.units import format_si
 
 
 @rule("slew-rate", "error",
-      "The largest output swing at the top of the band needs a faster slew rate than the"
+      "The fastest output swing the band asks for needs a faster slew rate than the"
       " op-amp has.",
       min_ratio=1.0)
 def slew_rate(view):

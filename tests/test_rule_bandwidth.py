@@ -277,3 +277,40 @@ def test_open_loop_stage_is_left_to_the_open_loop_rule():
           (load out (resistance 100k)))
         """
     assert findings(text, RULE) == []
+
+
+def test_a_band_from_dc_through_a_series_capacitor_is_warned():
+    # 10 nF into 10k blocks DC: the band from 0 Hz loses its bottom whatever the size
+    opamp = params(open_loop_gain=1e6, gbw=100e6)
+    text = f"""
+        (version 1)
+        (stage dc-blocked (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 {opamp} (in+ pos) (in- out) (out out) (v+ vcc) (v- vee))
+          (capacitor C1 in pos 10n) (resistor R1 pos gnd 10k)
+          (source in (range 0V 2V) (band 0Hz 1kHz))
+          (load out (resistance 100k))
+          (require (bandwidth 1kHz)))
+        """
+    finding = only(text, RULE)
+    assert finding.limit == 0 and "the DC is blocked" in finding.message
+    assert "blocks at any size" in finding.suggestion.text
+
+
+def test_a_gain_legs_capacitor_to_ground_is_the_one_to_raise():
+    # Non-inverting gain 11 with R1 1k in series with C2 4.7 uF to ground: a corner near
+    # 1/(2 pi 1k C2) = 33.9 Hz, inside a band from 20 Hz; C2 >= 1/(2 pi 1k 20 Hz) = 7.96
+    # uF puts it at the bottom (first-order high-pass of the leg, common practice),
+    # 8.2 uF in E12 (IEC 60063).
+    opamp = params(open_loop_gain=1e6, gbw=100e6)
+    text = f"""
+        (version 1)
+        (stage leg (ground gnd) (supply vcc 15V) (supply vee -15V)
+          (opamp U1 {opamp} (in+ in) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R2 fb out 10k) (resistor R1 fb x 1k) (capacitor C2 x gnd 4.7u)
+          (source in (amplitude 0.1V) (band 20Hz 20kHz))
+          (load out (resistance 100k))
+          (require (gain 11) (gain-tolerance 5%)))
+        """
+    finding = only(text, RULE)
+    assert finding.suggestion.element == "C2"
+    assert finding.suggestion.value == pytest.approx(8.2e-6)

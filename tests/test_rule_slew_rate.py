@@ -154,3 +154,25 @@ def test_part_without_slew_rate_cannot_be_checked():
     assert finding.severity is Severity.INFO
     assert finding.message.startswith("could not check the slew rate of U1")
     assert finding.details.get("unchecked") is True
+
+
+def test_a_resonance_inside_the_band_is_where_the_slew_is_read():
+    # R2 || L1 || C1 in the feedback of a non-inverting stage: gain 1 away from
+    # f0 = 1/(2 pi sqrt(L C)) = 30 kHz and 1 + R2/R1 = 11 at it (the tank's impedance is
+    # R2 there; parallel resonance, any circuits text), Q = R2 sqrt(C/L) = 50. On a near
+    # ideal op-amp, 0.5 V swings the output 5.5 V at 30 kHz: 2 pi f0 5.5 V = 1.04 V/us
+    # (SR = 2 pi f Vpeak), against 0.5 V/us. The band's top, 100 kHz, asks for only
+    # 2 pi 100 kHz 0.5 V = 0.31 V/us, and the resonance lies between grid points.
+    opamp = params(open_loop_gain=1e9, gbw=1e12, slew_rate="0.5V/us")
+    text = f"""
+        (version 1)
+        (stage bump (ground gnd) (supply vcc 12V) (supply vee -12V)
+          (opamp U1 {opamp} (in+ in) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 fb gnd 1k) (resistor R2 fb out 10k)
+          (inductor L1 fb out 1.061m) (capacitor C1 fb out 26.5n)
+          (source in (amplitude 0.5V) (band 1kHz 100kHz))
+          (load out (resistance 100k)))
+        """
+    f0 = 1 / (TWO_PI * math.sqrt(1.061e-3 * 26.5e-9))
+    finding = only(text, RULE)
+    assert finding.measured == pytest.approx(TWO_PI * f0 * 0.5 * 11, rel=0.01)

@@ -117,13 +117,15 @@ FLAT_NEIGHBOURS = 1e-3
 def band_peak(frequencies: np.ndarray, values: np.ndarray, band: np.ndarray, value_at,
               weight=None) -> tuple[np.ndarray, np.ndarray, int]:
     """Where |values| (times ``weight(frequencies)`` when given) is largest inside
-    ``band``, pinned down so a narrow resonance between grid points is not missed: the
-    true maximum of a peak lies between the grid maximum's neighbours, so a local grid of
-    REFINE_POINTS is solved there by ``value_at(frequencies)``, and again between the
-    neighbours of its own maximum (spacing about 0.4 % of the frequency for the default
-    grid, where a peak of Q 50 is 2 % wide). No local solve where the response is flat
-    at the grid maximum. Returns (frequencies, values, at): the grid with the local
-    points merged in, sorted, and the index of the maximum in them."""
+    ``band``, pinned down so a narrow resonance between grid points is not missed. The
+    true maximum of a peak lies between the neighbours of a grid point that is larger
+    than both, so a local grid of REFINE_POINTS is solved there by
+    ``value_at(frequencies)``, and again between the neighbours of its own maximum
+    (spacing about 0.4 % of the frequency for the default grid, where a peak of Q 50 is
+    2 % wide). The grid points looked at: the largest score, and every grid point where
+    |values| itself peaks. No local solve where the response is flat at a point.
+    Returns (frequencies, values, at): the grid with the local points merged in,
+    sorted, and the index of the maximum in them."""
     def score(freqs: np.ndarray, vals: np.ndarray) -> np.ndarray:
         magnitude = np.abs(vals)
         return magnitude * weight(freqs) if weight is not None else magnitude
@@ -131,21 +133,31 @@ def band_peak(frequencies: np.ndarray, values: np.ndarray, band: np.ndarray, val
     inside = np.flatnonzero(band)
     first, last = int(inside[0]), int(inside[-1])
     scores = score(frequencies[first:last + 1], values[first:last + 1])
-    i = first + int(np.argmax(scores))
-    left, right = max(i - 1, first), min(i + 1, last)
-    best = scores[i - first]
-    if left == right or all(scores[k - first] >= best * (1 - FLAT_NEIGHBOURS)
-                            for k in {left, right} - {i}):
-        return frequencies, values, i
+    starts = {first + int(np.argmax(scores))}
+    # every peak of |values| itself inside the band: a narrow one may rise above the
+    # grid's largest value between two points, and under a rising weight (2 pi f) the
+    # weighted score does not peak there at all
+    magnitude = np.abs(values[first:last + 1])
+    bumps = np.flatnonzero((magnitude[1:-1] > magnitude[:-2])
+                           & (magnitude[1:-1] > magnitude[2:])) + 1
+    starts.update(first + int(k) for k in bumps)
     extra_f, extra_v = [], []
-    span = (frequencies[left], frequencies[right])
-    for _level in range(2):
-        fine = local_grid(*span)
-        fine_values = np.asarray(value_at(fine))
-        extra_f.append(fine)
-        extra_v.append(fine_values)
-        k = int(np.argmax(score(fine, fine_values)))
-        span = (fine[max(k - 1, 0)], fine[min(k + 1, fine.size - 1)])
+    for i in sorted(starts):
+        left, right = max(i - 1, first), min(i + 1, last)
+        best = scores[i - first]
+        if left == right or all(scores[k - first] >= best * (1 - FLAT_NEIGHBOURS)
+                                for k in {left, right} - {i}):
+            continue
+        span = (frequencies[left], frequencies[right])
+        for _level in range(2):
+            fine = local_grid(*span)
+            fine_values = np.asarray(value_at(fine))
+            extra_f.append(fine)
+            extra_v.append(fine_values)
+            k = int(np.argmax(score(fine, fine_values)))
+            span = (fine[max(k - 1, 0)], fine[min(k + 1, fine.size - 1)])
+    if not extra_f:
+        return frequencies, values, min(starts, key=lambda k: -scores[k - first])
     merged_f = np.concatenate([frequencies] + extra_f)
     merged_v = np.concatenate([values] + extra_v)
     order = np.argsort(merged_f, kind="stable")

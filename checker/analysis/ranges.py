@@ -211,12 +211,14 @@ def output_currents(solution: Solution) -> dict[str, OutputCurrent]:
 
 
 def output_loads(solution: Solution) -> dict[str, float | None]:
-    """Per op-amp, the least resistance its output pin drives as a source moves it:
-    |dV(out)| / |dI(out)| per unit of each source that moves the output, the load and
-    the feedback network together (Ohm's law on the incremental solution: an inverting
-    stage's feedback resistor ends at a virtual ground, so it loads the output as a
-    resistor to ground). A source read over its band is taken where its swing at the
-    output peaks; None where no source moves the output."""
+    """Per op-amp, the least resistance its output pin drives as a source moves it, the
+    load and the feedback network together (an inverting stage's feedback resistor ends
+    at a virtual ground, so it loads the output as a resistor to ground): per source
+    that moves the output, dV(out) / dI(out) at DC (Ohm's law on the incremental
+    solution), or for a source read over its band 1 / Re(I/V) where its swing peaks
+    (pinned down: grid.band_peak). Only the in-phase current counts: a capacitor's
+    current is zero at the voltage's peak, where the headroom is decided (i = C dv/dt).
+    None where no source moves the output."""
     circuit = solution.circuit
     result: dict[str, float | None] = {}
     for block in circuit.gain_blocks:
@@ -224,19 +226,31 @@ def output_loads(solution: Solution) -> dict[str, float | None]:
         row = circuit.row_of_branch(branch)
         least = None
         for name, _mid, half, source in _source_terms(solution):
-            if read_over_band(source):
-                volts = np.abs(solution.grid[:, block.out - 1, solution.column(name)]) \
-                    if block.out else np.zeros(1)
-                band = band_mask(solution.frequencies_hz, source)
-                at = int(np.flatnonzero(band)[np.argmax(volts[band])])
-                dv = float(volts[at])
-                di = float(abs(solution.branch_response(branch, name)[at]))
-            else:
-                dv = abs(solution.dc_unknown(block.out - 1, name)) if block.out else 0.0
-                di = abs(solution.dc_unknown(row, name))
-            if half <= 0 or dv <= 0 or di <= dv * 1e-15:  # the output stays, or drives nothing
+            if half <= 0 or not block.out:
                 continue
-            ohms = dv / di
-            least = ohms if least is None else min(least, ohms)
+            if read_over_band(source):
+                ohms = _band_load(solution, block, name, source)
+            else:
+                dv = abs(solution.dc_unknown(block.out - 1, name))
+                di = abs(solution.dc_unknown(row, name))
+                ohms = dv / di if dv > 0 and di > dv * 1e-15 else None
+            if ohms is not None:
+                least = ohms if least is None else min(least, ohms)
         result[block.ref] = least
     return result
+
+
+def _band_load(solution: Solution, block, name, source: Source) -> float | None:
+    """1 / Re(I/V) of op-amp ``block``'s output where source ``name``'s swing of it
+    peaks over the band; None where the output draws no in-phase current there."""
+    net = solution.circuit.node_names[block.out]
+    band = band_mask(solution.frequencies_hz, source)
+    freqs, _values, at = band_peak(solution.frequencies_hz, solution.node_response(net, name),
+                                   band, _net_response_at(solution, (net,), name))
+    X = solution.solve_excitations(np.array([freqs[at]]), [name])
+    volts = X[0, block.out - 1, 0]
+    amps = -X[0, solution.circuit.row_of_branch(solution.circuit.gain_branch[block.ref]), 0]
+    if volts == 0:
+        return None
+    conductance = float((amps / volts).real)
+    return 1 / conductance if conductance > 1e-15 else None
