@@ -144,8 +144,10 @@ def band_peak(frequencies: np.ndarray, values: np.ndarray, band: np.ndarray, val
     extra_f, extra_v = [], []
     for i in sorted(starts):
         left, right = max(i - 1, first), min(i + 1, last)
-        best = scores[i - first]
-        if left == right or all(scores[k - first] >= best * (1 - FLAT_NEIGHBOURS)
+        # flat: |values| at the neighbours as at i (a weight alone moves the maximum to a
+        # band edge, which is on the grid, and hides no peak)
+        here = magnitude[i - first]
+        if left == right or all(magnitude[k - first] >= here * (1 - FLAT_NEIGHBOURS)
                                 for k in {left, right} - {i}):
             continue
         span = (frequencies[left], frequencies[right])
