@@ -26,7 +26,7 @@ def heaviest_load(figures, opamp) -> tuple[float, str] | None:
     moves the output, whichever is lower; None if there is neither."""
     found = [(load.resistance_ohm, f"{opamp.out} carries {format_si(load.resistance_ohm, 'Ω')}")
              for load in figures.stage.loads if load.net == opamp.out and load.resistance_ohm]
-    driven = figures.output_loads.get(opamp.ref) if figures.solution.solvable else None
+    driven = figures.output_loads.get(opamp.ref) if figures.solvable else None
     if driven is not None:  # a tie with a declared load keeps the load's plainer text
         found.append((driven * (1 + 1e-9), f"{opamp.out} drives {format_si(driven, 'Ω')} as"
                       " the signal moves it (its load and feedback network together)"))
