@@ -244,12 +244,17 @@ def _band_load(solution: Solution, block, name, source: Source) -> float | None:
     """1 / Re(I/V) of op-amp ``block``'s output where source ``name``'s swing of it
     peaks over the band; None where the output draws no in-phase current there."""
     net = solution.circuit.node_names[block.out]
-    band = band_mask(solution.frequencies_hz, source)
-    freqs, _values, at = band_peak(solution.frequencies_hz, solution.node_response(net, name),
-                                   band, _net_response_at(solution, (net,), name))
-    X = solution.solve_excitations(np.array([freqs[at]]), [name])
-    volts = X[0, block.out - 1, 0]
-    amps = -X[0, solution.circuit.row_of_branch(solution.circuit.gain_branch[block.ref]), 0]
+    grid = solution.frequencies_hz
+    branch = solution.circuit.gain_branch[block.ref]
+    freqs, values, at = band_peak(grid, solution.node_response(net, name),
+                                  band_mask(grid, source),
+                                  _net_response_at(solution, (net,), name))
+    if freqs is grid:  # the peak is a grid point: read the grid's solution there
+        volts, amps = values[at], -solution.branch_response(branch, name)[at]
+    else:
+        X = solution.solve_excitations(np.array([freqs[at]]), [name])
+        volts = X[0, block.out - 1, 0]
+        amps = -X[0, solution.circuit.row_of_branch(branch), 0]
     if volts == 0:
         return None
     conductance = float((amps / volts).real)
