@@ -24,13 +24,19 @@ def heaviest_load(figures, opamp) -> tuple[float, str] | None:
     """(ohms, what it is, as text) of the heaviest resistive load on ``opamp``'s output:
     a declared load on its net, or the load and feedback network together as the signal
     moves the output, whichever is lower; None if there is neither."""
-    found = [(load.resistance_ohm, f"{opamp.out} carries {format_si(load.resistance_ohm, 'Ω')}")
+    # (ohms, 0 for a declared load, 1 for the solved one, text): a tie keeps the load's
+    # plainer text
+    found = [(load.resistance_ohm, 0,
+              f"{opamp.out} carries {format_si(load.resistance_ohm, 'Ω')}")
              for load in figures.stage.loads if load.net == opamp.out and load.resistance_ohm]
     driven = figures.output_loads.get(opamp.ref) if figures.solvable else None
-    if driven is not None:  # a tie with a declared load keeps the load's plainer text
-        found.append((driven * (1 + 1e-9), f"{opamp.out} drives {format_si(driven, 'Ω')} as"
-                      " the signal moves it (its load and feedback network together)"))
-    return min(found, key=lambda item: item[0]) if found else None
+    if driven is not None:
+        found.append((driven, 1, f"{opamp.out} drives {format_si(driven, 'Ω')} as the signal"
+                      " moves it (its load and feedback network together)"))
+    if not found:
+        return None
+    ohms, _kind, text = min(found)
+    return ohms, text
 
 
 def heavier_than_rated(figures, opamp) -> str | None:

@@ -133,7 +133,8 @@ def band_peak(frequencies: np.ndarray, values: np.ndarray, band: np.ndarray, val
     inside = np.flatnonzero(band)
     first, last = int(inside[0]), int(inside[-1])
     scores = score(frequencies[first:last + 1], values[first:last + 1])
-    starts = {first + int(np.argmax(scores))}
+    largest = first + int(np.argmax(scores))
+    starts = {largest}
     # every peak of |values| itself inside the band: a narrow one may rise above the
     # grid's largest value between two points, and under a rising weight (2 pi f) the
     # weighted score does not peak there at all
@@ -159,7 +160,7 @@ def band_peak(frequencies: np.ndarray, values: np.ndarray, band: np.ndarray, val
             k = int(np.argmax(score(fine, fine_values)))
             span = (fine[max(k - 1, 0)], fine[min(k + 1, fine.size - 1)])
     if not extra_f:
-        return frequencies, values, min(starts, key=lambda k: -scores[k - first])
+        return frequencies, values, largest
     merged_f = np.concatenate([frequencies] + extra_f)
     merged_v = np.concatenate([values] + extra_v)
     order = np.argsort(merged_f, kind="stable")
