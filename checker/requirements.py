@@ -17,7 +17,7 @@ from collections.abc import Callable
 from checker.analysis.dc_error import dc_error_terms
 from checker.analysis.figures import signed_gain
 from checker.analysis.mna import SingularCircuit
-from checker.analysis.noise import noise_band, output_noise
+from checker.analysis.noise import noise_above_band, noise_band, output_noise
 from checker.analysis.poles import stage_poles
 from checker.analysis.signal import SignalFigures, stage_signals
 from checker.output_load import heavier_than_rated
@@ -31,6 +31,9 @@ from checker.units import format_si
 # With `gain` and no `gain-tolerance`, the nominal gain must be within this of it: a gain
 # set by 1 % resistors is good to about 1 % nominal (common practice).
 DEFAULT_GAIN_TOLERANCE = 0.01
+# Above this ratio of the noise up to the top of the analysis to the noise in the band,
+# the noise verdict says what an unfiltered output carries (6 dB: common practice).
+WIDEBAND_NOTE_RATIO = 2.0
 # Settings read from the rules that explain these requirements, so both read alike.
 SPREAD_RULES = {"gain-tolerance": "gain-tolerance", "cmrr": "difference-balance"}
 
@@ -448,12 +451,14 @@ def _noise(c: _Context) -> Verdict:
     required = c.stage.require.noise_v
     assert required is not None  # a judge runs only for a stated requirement
     text = _required(c.stage, "noise")
-    result = stage_noise(c.figures, c.settings_of("noise").get("temperature_k", 300.0))
+    temperature_k = c.settings_of("noise").get("temperature_k", 300.0)
+    result = stage_noise(c.figures, temperature_k)
     if result is None:
         return c.verdict("noise", UNCHECKED, text, "no band",
                          reason="no source gives a band and the stage requires no bandwidth")
     statement = (f"output noise {format_si(result.total_vrms, 'V')} rms over"
-                 f" {format_si(result.band_low_hz, 'Hz')} to {format_si(result.band_high_hz, 'Hz')}")
+                 f" {format_si(result.band_low_hz, 'Hz')} to {format_si(result.band_high_hz, 'Hz')}"
+                 + _wideband_note(c.figures, result, temperature_k))
     missing = [f"{ref} gives no noise density" for ref in result.missing]
     if not within(result.total_vrms, required):
         return c.verdict("noise", NOT_MET, text, statement, measured=result.total_vrms,
@@ -464,6 +469,22 @@ def _noise(c: _Context) -> Verdict:
                          limit=required, unit="V", reason="; ".join(missing))
     return c.verdict("noise", MET, text, statement, measured=result.total_vrms,
                      limit=required, unit="V")
+
+
+def _wideband_note(figures, result, temperature_k: float) -> str:
+    """What the output carries up to the top of the analysis, when that is well beyond
+    the band's figure: the requirement holds over the band, and whatever follows the
+    stage sees the rest unless a filter limits it (not part of the verdict)."""
+    above = noise_above_band(figures, result.band_high_hz, temperature_k)
+    if above is None:
+        return ""
+    rms, top = above
+    wide = math.sqrt(result.total_vrms ** 2 + rms ** 2)
+    if not wide > WIDEBAND_NOTE_RATIO * result.total_vrms:
+        return ""
+    return (f"; up to {format_si(top, 'Hz')} the output carries"
+            f" {format_si(wide, 'V')} rms, which what follows sees unless a filter"
+            " limits it")
 
 
 def differential_pair(signals: list[SignalFigures]) -> SignalFigures | None:

@@ -212,6 +212,40 @@ def test_noise_met_and_not_met_and_unchecked():
         "noise"].status == UNCHECKED  # no band to integrate over
 
 
+def follower_gain_101(require: str, band: str) -> str:
+    """Gain 101 (R2/R1 = 10k/100) on a 1 MHz single-pole part whose only noise is its
+    en of 10 nV/rtHz (no current noise, resistors of 100 Ohm || 10k add 1.28 nV/rtHz)."""
+    opamp = params(open_loop_gain=1e9, gbw=1e6, input_resistance=1e12, output_resistance=0.0,
+                   voltage_noise=10e-9, current_noise=0.0)
+    return f"""
+        (version 1)
+        (stage quiet {rails()}
+          (opamp U1 {opamp} (in+ in) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 fb gnd 100) (resistor R2 fb out 10k)
+          (source in (range -0.01V 0.01V) {band})
+          (require {require}))
+        """
+
+
+def test_noise_verdict_says_what_an_unfiltered_output_carries_beyond_the_band():
+    # By hand: input density sqrt(en^2 + 4kT (R1 || R2)) = sqrt(10^2 + 1.280^2) nV/rtHz
+    # = 10.08 nV/rtHz, times the noise gain 101 = 1.018 uV/rtHz at the output. Over
+    # 10 Hz to 100 Hz: 1.018 uV * sqrt(90 Hz) = 9.66 uV. The closed-loop pole sits at
+    # GBW/101 = 9.90 kHz, whose equivalent noise bandwidth is pi/2 * 9.90 kHz = 15.55 kHz
+    # (T. Sobering, "Equivalent Noise Bandwidth", Technote 1): 1.018 uV * sqrt(15.55 kHz)
+    # = 127 uV rms on an output that nothing filters.
+    verdict = verdicts(follower_gain_101("(noise 20uV)", "(band 10Hz 100Hz)"))["noise"]
+    assert verdict.status == MET  # the requirement holds over the band
+    assert verdict.measured == pytest.approx(9.66e-6, rel=0.01)
+    carried = re.search(r"the output carries ([\d.]+) µV rms", verdict.statement)
+    assert carried, verdict.statement
+    assert float(carried.group(1)) == pytest.approx(127, rel=0.02)
+    assert "unless a filter limits it" in verdict.statement
+    # a band that holds most of the stage's own noise bandwidth gets no such note
+    wide = verdicts(follower_gain_101("(noise 1mV)", "(band 10Hz 50kHz)"))["noise"]
+    assert "the output carries" not in wide.statement
+
+
 def difference(require: str, tolerance: str = "1%") -> str:
     return f"""
         (version 1)
