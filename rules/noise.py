@@ -47,7 +47,9 @@ def noise(view):
         gain) falls by the square of that ratio; the rule rounds to E96 or E24 and
         steps down until the solved noise meets the limit with every gain within
         `gain_tolerance`, down to `lowest_factor` (a noise set by a capacitor, kT/C,
-        does not fall with R, and the rule then says so). An op-amp's noise needs a
+        does not fall with R, and the rule then says so; where a smaller network
+        meets the noise only by moving a gain, as a source impedance in series with
+        the input resistor makes it, the rule says by how much). An op-amp's noise needs a
         density lowered by that ratio: the rule names the built-in part classes that
         have it and run from the stage's supplies, and solves the stage with each,
         least change first. The source's own impedance noise can only be cut by a
@@ -178,6 +180,7 @@ def _smaller_network(view, resistor, factor: float, limit: float, band) -> Sugge
     refs = ", ".join(r.ref for r in group)
     tried = 0
     previous = None
+    gain_lost = None  # (values, noise, worst gain change) of a quiet enough candidate
     k = factor
     while k >= settings["lowest_factor"] * factor and tried < MAX_TRIES:
         values = rounded(group, k)
@@ -189,6 +192,8 @@ def _smaller_network(view, resistor, factor: float, limit: float, band) -> Sugge
         passives = tuple(replace(p, value=values[p.ref]) if p.ref in values else p
                          for p in stage.passives)
         total, solved = _noise_of(view, replace(stage, passives=passives), band)
+        if within(total, limit) and not gain_kept(view.figures, solved, tolerance):
+            gain_lost = gain_lost or (values, total, _gain_change(view.figures, solved))
         if within(total, limit) and gain_kept(view.figures, solved, tolerance):
             listing = ", ".join(f"{ref} {format_si(v, 'Ω')}" for ref, v in values.items())
             scale = values[resistor.ref] / resistor.value
@@ -197,10 +202,27 @@ def _smaller_network(view, resistor, factor: float, limit: float, band) -> Sugge
                               f" {format_si(total, 'V')} rms", value=values[resistor.ref],
                               unit="Ω", element=resistor.ref,
                               changes=tuple(SetValue(ref, v) for ref, v in values.items()))
+    if gain_lost is not None:
+        values, total, change = gain_lost
+        listing = ", ".join(f"{ref} {format_si(v, 'Ω')}" for ref, v in values.items())
+        return Suggestion(f"lowering {refs} ({listing}) brings the solved noise to"
+                          f" {format_si(total, 'V')} rms but moves a signal gain by"
+                          f" {format_si(change, '%')}, beyond ±{format_si(tolerance, '%')}:"
+                          " the resistances in series with the input resistor (a source's"
+                          " impedance) do not scale with it; choose the smaller network"
+                          " for the gain with them, or narrow the band", element=resistor.ref)
     return Suggestion(f"lowering {refs} does not bring the solved noise under"
                       f" {format_si(limit, 'V')}: the noise is set by a capacitor (kT/C) or"
                       " by the gain; narrow the band or move the filter pole",
                       element=resistor.ref)
+
+
+def _gain_change(before, after) -> float:
+    """The largest relative change of a source's signal gain from ``before`` to
+    ``after`` (as gain_kept reads it)."""
+    return max((abs(new.gain_from_source_mid / old.gain_from_source_mid - 1)
+                for old, new in zip(before.sources, after.sources)
+                if old.gain_from_source_mid != 0), default=0.0)
 
 
 def _quieter_part(view, opamp, attribute: str, ratio: float, limit: float,

@@ -21,6 +21,7 @@ resistors' noise is all there is.
 from __future__ import annotations
 
 import math
+import re
 
 import pytest
 import scipy.constants
@@ -237,3 +238,29 @@ def test_without_a_band_the_noise_cannot_be_checked():
     finding = only(text, RULE)
     assert finding.severity is Severity.INFO
     assert finding.message.startswith("could not check the output noise")
+
+
+def test_a_smaller_network_that_loses_the_gain_against_the_source_says_so():
+    # R1 10k, R2 1M behind a 1 kOhm source: the gain is -1M/11k = -90.9. At the network's
+    # half size that meets the noise (R1 5.36k, R2 536k, E96), the source's 1 kOhm does not
+    # scale with it: -536k/6.36k = -84.3, 7.3 % off, beyond the default +-5 %. The rule
+    # must name the gain as what stops it, not a capacitor's kT/C. (The fish-counter
+    # sample; the part's own 9 nV/rtHz makes the 40 uV budget fail.)
+    text = """
+        (version 1)
+        (stage electrode (supply vcc 12V) (supply vee -12V) (ground gnd)
+          (opamp U1 (part precision-bipolar) (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+          (resistor R1 in fb 10k (tolerance 1%))
+          (resistor R2 fb out 1M (tolerance 1%))
+          (source in (amplitude 1mV) (band 10Hz 1kHz) (impedance 1k))
+          (require (noise 40uV)))
+        """
+    finding = only(text, RULE)
+    suggestion = finding.suggestion.text
+    assert "kT/C" not in suggestion
+    assert "moves a signal gain by" in suggestion
+    moved = float(suggestion.split("moves a signal gain by ")[1].split(" %")[0])
+    r1, r2 = (float(v) * 1e3 for v in
+              re.search(r"R1 ([\d.]+) kΩ, R2 ([\d.]+) kΩ", suggestion).groups())
+    assert moved == pytest.approx(abs((r2 / (r1 + 1e3)) / (1e6 / 11e3) - 1) * 100, abs=0.06)
+    assert moved > 5.0
