@@ -102,12 +102,14 @@ def best_factor(resistors, k_min: float, k_max: float, tolerance: float,
     return min(by_closeness, key=spread)
 
 
+def gain_change(before, after) -> float:
+    """The largest relative change of a source's signal gain (from the source, at its
+    reference) from ``before`` to ``after``; sources of no gain before are skipped."""
+    return max((abs(new.gain_from_source_mid / old.gain_from_source_mid - 1)
+                for old, new in zip(before.sources, after.sources)
+                if old.gain_from_source_mid != 0), default=0.0)
+
+
 def gain_kept(before, after, tolerance: float) -> bool:
-    """Every source's signal gain (from the source, at its reference) of ``after`` within
-    ``tolerance`` of ``before``."""
-    for old, new in zip(before.sources, after.sources):
-        if old.gain_from_source_mid == 0:
-            continue
-        if abs(new.gain_from_source_mid / old.gain_from_source_mid - 1) > tolerance:
-            return False
-    return True
+    """Every source's signal gain of ``after`` within ``tolerance`` of ``before``."""
+    return not gain_change(before, after) > tolerance

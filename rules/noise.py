@@ -12,7 +12,7 @@ from checker.findings import Suggestion
 from checker.limits import within
 from checker.parts.library import builtin_parts
 from checker.requirements import stage_noise
-from checker.rules._resistor_networks import gain_kept, network_of, rounded
+from checker.rules._resistor_networks import gain_change, network_of, rounded
 from checker.units import format_si
 
 MAX_TRIES = 30  # solved candidates per suggestion
@@ -192,10 +192,13 @@ def _smaller_network(view, resistor, factor: float, limit: float, band) -> Sugge
         passives = tuple(replace(p, value=values[p.ref]) if p.ref in values else p
                          for p in stage.passives)
         total, solved = _noise_of(view, replace(stage, passives=passives), band)
-        if within(total, limit) and not gain_kept(view.figures, solved, tolerance):
-            gain_lost = gain_lost or (values, total, _gain_change(view.figures, solved))
-        if within(total, limit) and gain_kept(view.figures, solved, tolerance):
-            listing = ", ".join(f"{ref} {format_si(v, 'Ω')}" for ref, v in values.items())
+        if not within(total, limit):
+            continue
+        change = gain_change(view.figures, solved)
+        if change > tolerance:
+            gain_lost = gain_lost or (values, total, change)
+        else:
+            listing = _listing(values)
             scale = values[resistor.ref] / resistor.value
             return Suggestion(f"lower {refs} by a factor {1 / scale:.3g} ({listing}, E96/E24"
                               f" by tolerance, every gain kept): solved noise then"
@@ -204,7 +207,7 @@ def _smaller_network(view, resistor, factor: float, limit: float, band) -> Sugge
                               changes=tuple(SetValue(ref, v) for ref, v in values.items()))
     if gain_lost is not None:
         values, total, change = gain_lost
-        listing = ", ".join(f"{ref} {format_si(v, 'Ω')}" for ref, v in values.items())
+        listing = _listing(values)
         return Suggestion(f"lowering {refs} ({listing}) brings the solved noise to"
                           f" {format_si(total, 'V')} rms but moves a signal gain by"
                           f" {format_si(change, '%')}, beyond ±{format_si(tolerance, '%')}:"
@@ -217,12 +220,8 @@ def _smaller_network(view, resistor, factor: float, limit: float, band) -> Sugge
                       element=resistor.ref)
 
 
-def _gain_change(before, after) -> float:
-    """The largest relative change of a source's signal gain from ``before`` to
-    ``after`` (as gain_kept reads it)."""
-    return max((abs(new.gain_from_source_mid / old.gain_from_source_mid - 1)
-                for old, new in zip(before.sources, after.sources)
-                if old.gain_from_source_mid != 0), default=0.0)
+def _listing(values: dict[str, float]) -> str:
+    return ", ".join(f"{ref} {format_si(v, 'Ω')}" for ref, v in values.items())
 
 
 def _quieter_part(view, opamp, attribute: str, ratio: float, limit: float,
