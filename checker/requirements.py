@@ -17,7 +17,7 @@ from collections.abc import Callable
 from checker.analysis.dc_error import dc_error_terms
 from checker.analysis.figures import signed_gain
 from checker.analysis.mna import SingularCircuit
-from checker.analysis.noise import noise_above_band, noise_band, output_noise
+from checker.analysis.noise import noise_band, noise_in_and_above_band
 from checker.analysis.poles import stage_poles
 from checker.analysis.signal import SignalFigures, stage_signals
 from checker.output_load import heavier_than_rated
@@ -440,11 +440,18 @@ def _dc_error(c: _Context) -> Verdict:
 
 def stage_noise(figures, temperature_k: float):
     """The stage output's noise over its noise band (None without a band), once."""
+    both = _stage_noise_and_above(figures, temperature_k)
+    return None if both is None else both[0]
+
+
+def _stage_noise_and_above(figures, temperature_k: float):
+    """(the band's NoiseResult, noise_above_band's figure or None), once per stage and
+    temperature, from one solve (None without a band)."""
     band = noise_band(figures.stage)
     if band is None:
         return None
-    return figures.cached(("noise", band, temperature_k),
-                          lambda: output_noise(figures, band[0], band[1], temperature_k))
+    return figures.cached(("noise", band, temperature_k), lambda: noise_in_and_above_band(
+        figures, band[0], band[1], temperature_k))
 
 
 def _noise(c: _Context) -> Verdict:
@@ -475,7 +482,7 @@ def _wideband_note(figures, result, temperature_k: float) -> str:
     """What the output carries up to the top of the analysis, when that is well beyond
     the band's figure: the requirement holds over the band, and whatever follows the
     stage sees the rest unless a filter limits it (not part of the verdict)."""
-    above = noise_above_band(figures, result.band_high_hz, temperature_k)
+    above = _stage_noise_and_above(figures, temperature_k)[1]
     if above is None:
         return ""
     rms, top = above

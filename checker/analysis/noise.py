@@ -145,19 +145,8 @@ def output_noise(figures, band_low_hz: float, band_high_hz: float,
                  temperature_k: float = 300.0, net: str | None = None,
                  points: int = 200) -> NoiseResult:
     """Integrated noise at ``net`` (default the stage output) over the band."""
-    start = max(band_low_hz, band_high_hz * 1e-4)
-    frequencies = np.geomspace(start, band_high_hz, points)
-    density = noise_density(figures, frequencies, temperature_k, net)
-    if not density.names:
-        return NoiseResult(band_low_hz, band_high_hz, 0.0, (), density.missing)
-    power = density.power
-    integrated = _trapezoid(power, frequencies, axis=0) + power[0] * (start - band_low_hz)
-    contributions = sorted(
-        (NoiseContribution(name, element, float(math.sqrt(max(value, 0.0))))
-         for (name, element), value in zip(density.names, integrated)),
-        key=lambda c: -c.vrms)
-    total = float(math.sqrt(max(float(np.sum(integrated)), 0.0)))
-    return NoiseResult(band_low_hz, band_high_hz, total, tuple(contributions), density.missing)
+    return noise_in_and_above_band(figures, band_low_hz, band_high_hz, temperature_k, net,
+                                   points, above=False)[0]
 
 
 # Above the band the output noise is integrated at this many points per decade (the
@@ -175,14 +164,55 @@ def noise_above_band(figures, band_high_hz: float, temperature_k: float = 300.0,
     noise bandwidth of the stage's own roll-off adds; for a single pole it is about
     1.57 times the -3 dB frequency: T. Sobering, "Equivalent Noise Bandwidth",
     Technote 1). None when the band reaches the grid's top."""
+    frequencies = _above_band_grid(figures, band_high_hz)
+    if frequencies is None:
+        return None
+    density = noise_density(figures, frequencies, temperature_k, net)
+    return _above_band_figure(density.names, density.power, frequencies)
+
+
+def noise_in_and_above_band(figures, band_low_hz: float, band_high_hz: float,
+                            temperature_k: float = 300.0, net: str | None = None,
+                            points: int = 200, above: bool = True
+                            ) -> tuple[NoiseResult, tuple[float, float] | None]:
+    """output_noise over the band and (when ``above``) noise_above_band, from one
+    noise_density call over both grids: one system stack, one adjoint solve. The
+    figures are those of the two functions alone: each frequency's solve is its own."""
+    start = max(band_low_hz, band_high_hz * 1e-4)
+    frequencies = np.geomspace(start, band_high_hz, points)
+    beyond = _above_band_grid(figures, band_high_hz) if above else None
+    density = noise_density(figures, frequencies if beyond is None
+                            else np.concatenate([frequencies, beyond]), temperature_k, net)
+    if not density.names:
+        return NoiseResult(band_low_hz, band_high_hz, 0.0, (), density.missing), None
+    power = density.power[:points]
+    integrated = _trapezoid(power, frequencies, axis=0) + power[0] * (start - band_low_hz)
+    contributions = sorted(
+        (NoiseContribution(name, element, float(math.sqrt(max(value, 0.0))))
+         for (name, element), value in zip(density.names, integrated)),
+        key=lambda c: -c.vrms)
+    total = float(math.sqrt(max(float(np.sum(integrated)), 0.0)))
+    result = NoiseResult(band_low_hz, band_high_hz, total, tuple(contributions),
+                         density.missing)
+    if beyond is None:
+        return result, None
+    return result, _above_band_figure(density.names, density.power[points:], beyond)
+
+
+def _above_band_grid(figures, band_high_hz: float) -> np.ndarray | None:
+    """The log grid from the band's top to the analysis grid's top (None: no such span)."""
     top = float(figures.frequencies_hz[-1])
     if not band_high_hz or band_high_hz >= top:
         return None
     decades = math.log10(top / band_high_hz)
     points = max(2, int(math.ceil(decades * ABOVE_BAND_POINTS_PER_DECADE)) + 1)
-    frequencies = np.geomspace(band_high_hz, top, points)
-    density = noise_density(figures, frequencies, temperature_k, net)
-    if not density.names:
+    return np.geomspace(band_high_hz, top, points)
+
+
+def _above_band_figure(names, power: np.ndarray, frequencies: np.ndarray
+                       ) -> tuple[float, float] | None:
+    """(rms V, top Hz) of the power (F, m) over the above-band grid."""
+    if not names:
         return None
-    power = float(_trapezoid(np.sum(density.power, axis=1), frequencies))
-    return math.sqrt(max(power, 0.0)), top
+    total = float(_trapezoid(np.sum(power, axis=1), frequencies))
+    return math.sqrt(max(total, 0.0)), float(frequencies[-1])
