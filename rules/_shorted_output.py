@@ -22,7 +22,9 @@ def shorted_by_load(view, opamp):
     loads = [load for load in view.stage.loads if load.net == opamp.out]
     if not loads:
         return None
-    unloaded = view.reanalyse(replace(view.stage, loads=()))
+    # the copy is the same for every op-amp and both rules that ask: solved once
+    unloaded = view.figures.cached("without-loads",
+                                   lambda: view.reanalyse(replace(view.stage, loads=())))
     if not unloaded.solvable or unloaded.loops[opamp.ref].feedback != "negative":
         return None
     return loads, unloaded

@@ -108,8 +108,9 @@ class Solution:
             self._unreferenced_cache.update({True: tuple(dc), False: tuple(ac)})
         return self._unreferenced_cache[at_dc]
 
-    @property
+    @cached_property
     def solvable(self) -> bool:
+        """No fatal structural problem (fixed once the circuit is built)."""
         return not any(p.fatal for p in self.problems)
 
     def require_solvable(self) -> None:
