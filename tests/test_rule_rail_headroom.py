@@ -349,6 +349,27 @@ def test_a_narrow_resonance_between_grid_points_is_found():
     assert finding.measured == pytest.approx(0.1 * 1e6 / (2 * 10e3), rel=0.005)
 
 
+def test_a_resonance_of_q_500_is_followed_down_to_its_peak():
+    # The band-pass above with R2 1.0001 and C1 = C2 = 100n: R1 || R2 = 0.9999 Ohm, so
+    # Q = sqrt(1M / 0.9999)/2 = 500 and f0 = 1/(2 pi 100n sqrt(1M 0.9999)) = 1.59 kHz
+    # (same formulas, from memory), the same peak gain of 50: 0.2 % wide, and a search
+    # of two fixed levels straddled it and read no clipping at all.
+    opamp = params(open_loop_gain=1e9, gbw=1e12, output_headroom_high=1.5,
+                   output_headroom_low=1.5)
+    text = f"""
+    (version 1)
+    (stage mfb (ground gnd) (supply vcc 5V) (supply vee -5V)
+      (opamp U1 {opamp} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
+      (resistor R1 in a 10k) (resistor R2 a gnd 1.0001)
+      (capacitor C1 a fb 100n) (capacitor C2 a out 100n) (resistor R3 fb out 1M)
+      (source in (amplitude 100mV) (band 100Hz 10kHz))
+      (load out (resistance 100k)))
+    """
+    finding = only(text, RULE)
+    assert finding.severity is Severity.ERROR
+    assert finding.measured == pytest.approx(0.1 * 1e6 / (2 * 10e3), rel=0.002)
+
+
 def test_a_capacitive_load_is_no_heavier_load_for_the_headroom():
     # A follower into 100k || 1 nF swung at up to 100 kHz: the capacitor's current is
     # zero at the voltage's peak (i = C dv/dt, a quarter cycle apart), so at the peak the
