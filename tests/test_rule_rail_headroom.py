@@ -327,45 +327,40 @@ def test_a_range_without_a_band_is_read_at_dc():
     assert findings(ac_coupled("-1V", "1V", band=""), RULE) == []
 
 
-def test_a_narrow_resonance_between_grid_points_is_found():
-    # A multiple-feedback band-pass with C1 = C2 = 10n, R1 10k, R2 100, R3 1M on a near
-    # ideal op-amp: f0 = 1/(2 pi C sqrt(R3 (R1 || R2))) = 1.6 kHz, Q = sqrt(R3/(R1 || R2))/2
-    # = 50, and a peak gain of R3/(2 R1) = 50 (multiple-feedback band-pass with equal
-    # capacitors, from memory). 100 mV in the band swings the output +-5 V against the
-    # usable +-3.5 V; the peak is 2 % wide, narrower than the grid's spacing.
+def band_pass(r2: str, capacitance: str) -> str:
+    """A multiple-feedback band-pass, R1 10k in, R2 to ground, R3 1M and two equal
+    capacitors, on a near-ideal op-amp whose output stays 1.5 V inside +-5 V rails."""
     opamp = params(open_loop_gain=1e9, gbw=1e12, output_headroom_high=1.5,
                    output_headroom_low=1.5)
-    text = f"""
+    return f"""
     (version 1)
     (stage mfb (ground gnd) (supply vcc 5V) (supply vee -5V)
       (opamp U1 {opamp} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
-      (resistor R1 in a 10k) (resistor R2 a gnd 100)
-      (capacitor C1 a fb 10n) (capacitor C2 a out 10n) (resistor R3 fb out 1M)
+      (resistor R1 in a 10k) (resistor R2 a gnd {r2})
+      (capacitor C1 a fb {capacitance}) (capacitor C2 a out {capacitance})
+      (resistor R3 fb out 1M)
       (source in (amplitude 100mV) (band 100Hz 10kHz))
       (load out (resistance 100k)))
     """
-    finding = only(text, RULE)
+
+
+def test_a_narrow_resonance_between_grid_points_is_found():
+    # With C1 = C2 = 10n and R2 100: f0 = 1/(2 pi C sqrt(R3 (R1 || R2))) = 1.6 kHz,
+    # Q = sqrt(R3/(R1 || R2))/2 = 50, and a peak gain of R3/(2 R1) = 50 (multiple-feedback
+    # band-pass with equal capacitors, from memory). 100 mV in the band swings the output
+    # +-5 V against the usable +-3.5 V; the peak is 2 % wide, narrower than the grid's
+    # spacing.
+    finding = only(band_pass("100", "10n"), RULE)
     assert finding.severity is Severity.ERROR
     assert finding.measured == pytest.approx(0.1 * 1e6 / (2 * 10e3), rel=0.005)
 
 
 def test_a_resonance_of_q_500_is_followed_down_to_its_peak():
-    # The band-pass above with R2 1.0001 and C1 = C2 = 100n: R1 || R2 = 0.9999 Ohm, so
-    # Q = sqrt(1M / 0.9999)/2 = 500 and f0 = 1/(2 pi 100n sqrt(1M 0.9999)) = 1.59 kHz
-    # (same formulas, from memory), the same peak gain of 50: 0.2 % wide, and a search
-    # of two fixed levels straddled it and read no clipping at all.
-    opamp = params(open_loop_gain=1e9, gbw=1e12, output_headroom_high=1.5,
-                   output_headroom_low=1.5)
-    text = f"""
-    (version 1)
-    (stage mfb (ground gnd) (supply vcc 5V) (supply vee -5V)
-      (opamp U1 {opamp} (in+ gnd) (in- fb) (out out) (v+ vcc) (v- vee))
-      (resistor R1 in a 10k) (resistor R2 a gnd 1.0001)
-      (capacitor C1 a fb 100n) (capacitor C2 a out 100n) (resistor R3 fb out 1M)
-      (source in (amplitude 100mV) (band 100Hz 10kHz))
-      (load out (resistance 100k)))
-    """
-    finding = only(text, RULE)
+    # R2 1.0001 and C1 = C2 = 100n: R1 || R2 = 0.9999 Ohm, so Q = sqrt(1M / 0.9999)/2 =
+    # 500 and f0 = 1/(2 pi 100n sqrt(1M 0.9999)) = 1.59 kHz (the same formulas), the same
+    # peak gain of 50: 0.2 % wide, and a search of two fixed levels straddled it and read
+    # no clipping at all.
+    finding = only(band_pass("1.0001", "100n"), RULE)
     assert finding.severity is Severity.ERROR
     assert finding.measured == pytest.approx(0.1 * 1e6 / (2 * 10e3), rel=0.002)
 
