@@ -30,9 +30,12 @@ def noise(view):
         requirement when no source gives a band): the thermal noise sqrt(4kTR) of every
         resistor, the source's impedance and the load at `temperature_k`, and each
         op-amp's input voltage and current noise, each carried to the output by its own
-        transfer from the solver. Above the requirement is an error, reported at the
-        largest contributor. An op-amp whose part gives no noise density cannot be
-        counted: the rule says so, and still reports a total that already fails.
+        transfer from the solver (integrated with points of its own around every
+        natural frequency of the stage sharper than Q 8, so a narrow resonance's
+        noise is not lost between grid points). Above the requirement is an error,
+        reported at the largest contributor. An op-amp whose part gives no noise
+        density cannot be counted: the rule says so, and still reports a total that
+        already fails.
 
     Why it matters:
         Noise sets the smallest signal the stage can resolve. Resistors chosen for

@@ -264,3 +264,30 @@ def test_a_smaller_network_that_loses_the_gain_against_the_source_says_so():
               re.search(r"R1 ([\d.]+) kΩ, R2 ([\d.]+) kΩ", suggestion).groups())
     assert moved == pytest.approx(abs((r2 / (r1 + 1e3)) / (1e6 / 11e3) - 1) * 100, abs=0.06)
     assert moved > 5.0
+
+
+def tank(ohms: str) -> str:
+    """A parallel RLC tank (10 mH, 10 nF: f0 = 15.9 kHz) fed by a current sensor and
+    read by a quiet follower; Q = R sqrt(C/L), so 50k gives Q 50 and 500k Q 500."""
+    return f"""
+    (version 1)
+    (stage tank (ground gnd) (supply vcc 15V) (supply vee -15V)
+      (opamp U1 {QUIET} (in+ tank) (in- out) (out out) (v+ vcc) (v- vee))
+      (resistor R1 tank gnd {ohms}) (inductor L1 tank gnd 10m) (capacitor C1 tank gnd 10n)
+      (source tank (kind current) (range 0A 1uA) (band 1.6kHz 160kHz))
+      (require (noise 500nV)))
+    """
+
+
+@pytest.mark.parametrize("ohms", ["50k", "500k"])
+def test_a_resonant_tank_integrates_to_kt_over_c_however_sharp(ohms):
+    # The thermal noise across any capacitor in equilibrium is kT/C in total, whatever
+    # the resistance and the inductance (equipartition: the tank's noise concentrates
+    # at its resonance, R sets only how narrowly; e.g. C. Kittel, Elementary Statistical
+    # Physics, from memory). A band a decade either side of f0 holds all but about
+    # 1e-4 of it. At Q 500 the resonance is 0.2 % wide: between any log grid's points,
+    # where it read 62 % low before the noise grid took the stage's natural
+    # frequencies.
+    finding = only(tank(ohms), RULE)
+    kt_over_c = math.sqrt(scipy.constants.k * 300.0 / 10e-9)  # 0.643 uV rms
+    assert finding.measured == pytest.approx(kt_over_c, rel=0.01)
